@@ -1,0 +1,185 @@
+"""Folding of frequencies at a sample rate: apparent frequency, Nyquist zone, inversion.
+
+Everything here is vectorised: arrays of frequencies in, arrays out.
+
+References
+----------
+.. [1] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
+   Pearson, 2010, sec. 4.2 (sampling, aliasing of a continuous-time sinusoid).
+.. [2] R. G. Lyons, *Understanding Digital Signal Processing*, 3rd ed., 2011, sec. 2.3
+   (band-pass sampling, Nyquist zones, spectral inversion in even zones).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+__all__ = [
+    "fold",
+    "fold_intervals",
+    "is_inverted",
+    "nyquist_zone",
+]
+
+FloatArray = NDArray[np.float64]
+
+
+def _check_rate(sample_rate_hz: float, name: str = "sample_rate_hz") -> float:
+    rate = float(sample_rate_hz)
+    if not np.isfinite(rate) or rate <= 0:
+        raise ValueError(f"{name}={sample_rate_hz!r} must be a finite number > 0")
+    return rate
+
+
+def _check_freqs(freq_hz: ArrayLike, name: str = "freq_hz") -> FloatArray:
+    f = np.asarray(freq_hz, dtype=np.float64)
+    if not np.all(np.isfinite(f)):
+        bad = f[~np.isfinite(f)].ravel()[0]
+        raise ValueError(f"{name} contains {bad!r}; every frequency must be finite")
+    if np.any(f < 0):
+        bad = f[f < 0].ravel()[0]
+        raise ValueError(f"{name} contains {bad!r}; frequencies must be >= 0 Hz")
+    return f
+
+
+def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
+    """Apparent frequency of a sinusoid after sampling.
+
+    Parameters
+    ----------
+    freq_hz : array_like
+        True frequencies, Hz, >= 0.
+    sample_rate_hz : float
+        Sample rate, Hz (samples per second), > 0.
+
+    Returns
+    -------
+    ndarray
+        Apparent frequencies in [0, sample_rate_hz / 2], Hz.
+
+    Notes
+    -----
+    ``fold(f, fs) = |f - fs * round(f / fs)|`` [1]_. A tone at exactly an odd multiple of
+    fs/2 reads fs/2; at a multiple of fs it reads 0 Hz (DC).
+
+    References
+    ----------
+    .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.2.
+    """
+    fs = _check_rate(sample_rate_hz)
+    f = _check_freqs(freq_hz)
+    return _fold_unchecked(f, fs)
+
+
+def _fold_unchecked(f: FloatArray, fs: float) -> FloatArray:
+    out: FloatArray = np.abs(f - fs * np.rint(f / fs))
+    return out
+
+
+def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]:
+    """Nyquist zone of each frequency, counted from 1.
+
+    Zone ``k`` covers ``((k - 1) * fs/2, k * fs/2]``; 0 Hz belongs to zone 1. A tone in
+    zone 1 is not aliased; one in a higher zone folds back into zone 1 [2]_.
+
+    Parameters
+    ----------
+    freq_hz : array_like
+        True frequencies, Hz, >= 0.
+    sample_rate_hz : float
+        Sample rate, Hz, > 0.
+
+    Returns
+    -------
+    ndarray of int
+        Zone numbers, >= 1.
+
+    References
+    ----------
+    .. [2] Lyons, *Understanding Digital Signal Processing*, sec. 2.3.
+    """
+    fs = _check_rate(sample_rate_hz)
+    f = _check_freqs(freq_hz)
+    return _zone_unchecked(f, fs)
+
+
+def _zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
+    zone = np.ceil(f / (fs / 2.0))
+    # Guard against round-off putting an exact multiple of fs/2 one zone high: the fold
+    # formula is the arbiter, so zone and apparent frequency always agree.
+    return np.maximum(zone, 1).astype(np.int64)
+
+
+def is_inverted(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.bool_]:
+    """Whether the spectrum is mirrored where each frequency lands (even Nyquist zone).
+
+    In an even zone a rising true frequency gives a falling apparent frequency, and
+    upper and lower sidebands swap sides [2]_.
+
+    Parameters
+    ----------
+    freq_hz : array_like
+        True frequencies, Hz, >= 0.
+    sample_rate_hz : float
+        Sample rate, Hz, > 0.
+
+    Returns
+    -------
+    ndarray of bool
+    """
+    out: NDArray[np.bool_] = nyquist_zone(freq_hz, sample_rate_hz) % 2 == 0
+    return out
+
+
+def fold_intervals(
+    low_hz: ArrayLike, high_hz: ArrayLike, sample_rate_hz: float
+) -> tuple[FloatArray, FloatArray]:
+    """Fold frequency intervals (for example a tone with a speed tolerance).
+
+    Inside one Nyquist zone the fold is monotonic, so an interval keeps its width. An
+    interval that crosses one zone edge has two pieces that both reach that edge's
+    apparent value (0 Hz or fs/2), so their union is again one interval. An interval
+    that spans a whole zone covers the whole band ``[0, fs/2]``. The result is therefore
+    always a single apparent interval per input interval.
+
+    Parameters
+    ----------
+    low_hz, high_hz : array_like
+        Interval ends, Hz, ``0 <= low <= high``; broadcast together.
+    sample_rate_hz : float
+        Sample rate, Hz, > 0.
+
+    Returns
+    -------
+    apparent_low, apparent_high : ndarray
+        Apparent interval ends, Hz, in ``[0, fs/2]``.
+    """
+    fs = _check_rate(sample_rate_hz)
+    lo = _check_freqs(low_hz, "low_hz")
+    hi = _check_freqs(high_hz, "high_hz")
+    lo, hi = (np.atleast_1d(a).astype(np.float64) for a in np.broadcast_arrays(lo, hi))
+    if np.any(hi < lo):
+        i = int(np.flatnonzero(hi < lo)[0])
+        raise ValueError(f"high_hz[{i}]={hi[i]!r} is below low_hz[{i}]={lo[i]!r}")
+    nyq = fs / 2.0
+    a_lo = _fold_unchecked(lo, fs)
+    a_hi = _fold_unchecked(hi, fs)
+    z_lo = _zone_unchecked(lo, fs)
+    z_hi = _zone_unchecked(hi, fs)
+    # A low end exactly on a zone's upper edge: the interval runs into the next zone.
+    on_edge = (hi > lo) & (lo > 0) & (lo == z_lo * nyq)
+    z_lo = np.where(on_edge, z_lo + 1, z_lo)
+
+    out_lo = np.minimum(a_lo, a_hi)
+    out_hi = np.maximum(a_lo, a_hi)
+    crosses = z_hi == z_lo + 1
+    # An odd zone ends at fs/2 on the apparent axis, an even zone at 0 Hz.
+    ends_at_nyquist = crosses & (z_lo % 2 == 1)
+    ends_at_dc = crosses & (z_lo % 2 == 0)
+    out_hi = np.where(ends_at_nyquist, nyq, out_hi)
+    out_lo = np.where(ends_at_dc, 0.0, out_lo)
+    spans = z_hi >= z_lo + 2
+    out_lo = np.where(spans, 0.0, out_lo)
+    out_hi = np.where(spans, nyq, out_hi)
+    return out_lo, out_hi
