@@ -82,9 +82,17 @@ _MINUS = "\u2212"  # a real minus sign in labels: "carrier 1× − 2·f1"
 # --------------------------------------------------------------------------- checks
 
 
+def _r(value: object) -> str:
+    """Short repr for messages: numpy scalars as plain numbers, long values cut."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    text = repr(value)
+    return text if len(text) <= 80 else text[:77] + "..."
+
+
 def _check_label(value: object, name: str = "label") -> str:
     if not isinstance(value, str) or not value.strip():
-        raise ValueError(f"{name}={value!r} must be a non-empty string")
+        raise ValueError(f"{name}={_r(value)} must be a non-empty string")
     if len(value) > MAX_LABEL_CHARS:
         raise ValueError(f"{name} has {len(value)} characters; must be at most {MAX_LABEL_CHARS}")
     return value
@@ -92,21 +100,21 @@ def _check_label(value: object, name: str = "label") -> str:
 
 def _as_float(value: object, name: str) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-        raise ValueError(f"{name}={value!r} must be a number")
+        raise ValueError(f"{name}={_r(value)} must be a number")
     return float(value)
 
 
 def _check_positive(value: object, name: str, upper: float | None = None) -> float:
     x = _as_float(value, name)
     if not math.isfinite(x) or x <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0")
+        raise ValueError(f"{name}={_r(value)} must be a finite number > 0")
     if upper is not None and x > upper:
-        raise ValueError(f"{name}={value!r} must be at most {upper:g}")
+        raise ValueError(f"{name}={_r(value)} must be at most {upper:g}")
     return x
 
 
 def _check_int(value: object, name: str, low: int, high: int) -> int:
-    msg = f"{name}={value!r} must be an integer between {low} and {high}"
+    msg = f"{name}={_r(value)} must be an integer between {low} and {high}"
     if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
         raise ValueError(msg)
     x = float(value)
@@ -123,7 +131,7 @@ def _check_amplitude(value: object, name: str = "amplitude") -> float | None:
     if math.isnan(x):
         return None
     if not math.isfinite(x) or x < 0:
-        raise ValueError(f"{name}={value!r} must be a finite number >= 0 (or omitted)")
+        raise ValueError(f"{name}={_r(value)} must be a finite number >= 0 (or omitted)")
     return x
 
 
@@ -157,7 +165,7 @@ def _check_one_amplitude_form(amplitude: float | None, harmonic_amplitudes: obje
 
 def _as_sequence(values: object, name: str) -> list[Any]:
     if isinstance(values, str | bytes | Mapping) or not isinstance(values, Sequence | np.ndarray):
-        raise ValueError(f"{name}={values!r} must be a list of values")
+        raise ValueError(f"{name}={_r(values)} must be a list of values")
     return list(values)
 
 
@@ -194,7 +202,7 @@ def speed_to_hz(value: float, unit: str) -> float:
         raise ValueError(f"unit={unit!r} must be one of {sorted(_SPEED_UNITS)}")
     x = _as_float(value, "value")
     if not math.isfinite(x) or x < 0:
-        raise ValueError(f"value={value!r} must be a finite number >= 0")
+        raise ValueError(f"value={_r(value)} must be a finite number >= 0")
     return x * _SPEED_UNITS[key]
 
 
@@ -286,12 +294,12 @@ def _check_bearing(
     big_d = _check_positive(pitch_diameter, "pitch_diameter")
     if d >= big_d:
         raise ValueError(
-            f"element_diameter={element_diameter!r} must be less than "
-            f"pitch_diameter={pitch_diameter!r}"
+            f"element_diameter={_r(element_diameter)} must be less than "
+            f"pitch_diameter={_r(pitch_diameter)}"
         )
     phi = _as_float(angle, "contact_angle_deg")
     if not math.isfinite(phi) or not 0.0 <= phi < 90.0:
-        raise ValueError(f"contact_angle_deg={angle!r} must be >= 0 and < 90 degrees")
+        raise ValueError(f"contact_angle_deg={_r(angle)} must be >= 0 and < 90 degrees")
     return n, d, big_d, phi
 
 
@@ -601,10 +609,12 @@ class Bearing(_Expandable):
         wanted = [str(x).upper() if isinstance(x, str) else x for x in seq]
         for i, x in enumerate(wanted):
             if x not in BEARING_DEFECTS:
-                raise ValueError(f"defects[{i}]={seq[i]!r} must be one of {list(BEARING_DEFECTS)}")
+                raise ValueError(
+                    f"defects[{i}]={_r(seq[i])} must be one of {list(BEARING_DEFECTS)}"
+                )
         if not wanted or len(set(wanted)) != len(wanted):
             raise ValueError(
-                f"defects={seq!r} must list each of {list(BEARING_DEFECTS)} at most once, "
+                f"defects={_r(seq)} must list each of {list(BEARING_DEFECTS)} at most once, "
                 "and at least one"
             )
         set_(self, "defects", tuple(x for x in BEARING_DEFECTS if x in wanted))
@@ -848,7 +858,7 @@ class PwmCarrier(_Expandable):
         )
         set_(self, "sidebands", _check_int(self.sidebands, "sidebands", 0, MAX_SIDEBANDS))
         if not isinstance(self.line_to_line, bool | np.bool_):
-            raise ValueError(f"line_to_line={self.line_to_line!r} must be true or false")
+            raise ValueError(f"line_to_line={_r(self.line_to_line)} must be true or false")
         set_(self, "line_to_line", bool(self.line_to_line))
         set_(self, "amplitude", _check_amplitude(self.amplitude))
 
@@ -995,7 +1005,7 @@ class ExplicitTones(_Expandable):
         bad = np.flatnonzero(~np.isfinite(f) | (f <= 0))
         if bad.size:
             i = int(bad[0])
-            raise ValueError(f"freq_hz[{i}]={f[i]!r} must be a finite number > 0")
+            raise ValueError(f"freq_hz[{i}]={_r(f[i])} must be a finite number > 0")
         set_(self, "freq_hz", tuple(f.tolist()))
         if self.tone_labels is not None:
             labels = _as_sequence(self.tone_labels, "tone_labels")
@@ -1015,7 +1025,9 @@ class ExplicitTones(_Expandable):
             _check_amplitudes(self.amplitudes, "amplitudes", f.size, exact=True),
         )
         if not isinstance(self.scales_with_speed, bool | np.bool_):
-            raise ValueError(f"scales_with_speed={self.scales_with_speed!r} must be true or false")
+            raise ValueError(
+                f"scales_with_speed={_r(self.scales_with_speed)} must be true or false"
+            )
         set_(self, "scales_with_speed", bool(self.scales_with_speed))
 
     def expand(self) -> ToneSet:
@@ -1133,12 +1145,12 @@ def source_from_dict(d: Mapping[str, Any]) -> Source:
         The validated source object.
     """
     if not isinstance(d, Mapping):
-        raise ValueError(f"a source must be an object with a 'type' key, got {d!r}")
+        raise ValueError(f"a source must be an object with a 'type' key, got {_r(d)}")
     body = dict(d)
     type_name = body.pop("type", None)
-    if type_name not in SOURCE_TYPES:
+    if not isinstance(type_name, str) or type_name not in SOURCE_TYPES:
         raise ValueError(
-            f"unknown source type {type_name!r}; expected one of {', '.join(SOURCE_TYPES)}"
+            f"unknown source type {_r(type_name)}; expected one of {', '.join(SOURCE_TYPES)}"
         )
     cls = SOURCE_TYPES[type_name]
     fields = {f.name: f for f in dataclasses.fields(cls)}
