@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["ToneSet"]
+__all__ = ["ToneSet", "strings"]
 
 FloatArray = NDArray[np.float64]
 ObjArray = NDArray[np.object_]
@@ -25,6 +25,13 @@ def _obj(values: Sequence[str] | ObjArray, n: int, name: str) -> ObjArray:
     arr[:] = list(values) if not isinstance(values, np.ndarray) else values
     if arr.shape != (n,):
         raise ValueError(f"{name} has {arr.size} entries; expected {n}")
+    return arr
+
+
+def strings(values: Sequence[str]) -> ObjArray:
+    """A 1-D object array of strings (numpy would otherwise pick a fixed-width dtype)."""
+    arr = np.empty(len(values), dtype=object)
+    arr[:] = list(values)
     return arr
 
 
@@ -112,7 +119,8 @@ class ToneSet:
     @classmethod
     def empty(cls) -> ToneSet:
         e = np.empty(0)
-        return cls(label=[], source=[], kind=[], fixed_hz=e, speed_hz=e, amplitude=e)
+        none = strings([])
+        return cls(label=none, source=none, kind=none, fixed_hz=e, speed_hz=e, amplitude=e)
 
     @classmethod
     def explicit(
@@ -126,9 +134,9 @@ class ToneSet:
         f = np.atleast_1d(np.asarray(freq_hz, dtype=np.float64))
         amp = np.full(f.size, np.nan) if amplitude is None else amplitude
         return cls(
-            label=list(label),
-            source=[source] * f.size,
-            kind=["tone"] * f.size,
+            label=strings(list(label)),
+            source=strings([source] * f.size),
+            kind=strings(["tone"] * f.size),
             fixed_hz=f,
             speed_hz=np.zeros(f.size),
             amplitude=np.asarray(amp, dtype=np.float64),

@@ -1,0 +1,83 @@
+"""Small helpers shared by the benchmark scripts (timing and a local server)."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import socket
+import subprocess
+import sys
+import time
+import urllib.request
+from collections.abc import Callable, Iterator
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def best_of(fn: Callable[[], object], repeat: int = 7, number: int = 1) -> float:
+    """Best wall time of ``repeat`` runs of ``number`` calls, seconds per call."""
+    best = float("inf")
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        for _ in range(number):
+            fn()
+        best = min(best, (time.perf_counter() - t0) / number)
+    return best
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+@contextlib.contextmanager
+def local_server(
+    env: dict[str, str] | None = None, workers: int = 1, data_dir: Path | None = None
+) -> Iterator[str]:
+    """Start ``foldwise serve`` on 127.0.0.1 and yield its base URL; stop it afterwards."""
+    port = free_port()
+    full_env = {**os.environ, **(env or {})}
+    if data_dir is not None:
+        full_env["FOLDWISE_DATA_DIR"] = str(data_dir)
+    proc = subprocess.Popen(
+        [
+            sys.executable,
+            "-m",
+            "service.cli",
+            "serve",
+            "--host",
+            "127.0.0.1",
+            "--port",
+            str(port),
+            "--workers",
+            str(workers),
+        ],
+        cwd=ROOT,
+        env=full_env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.PIPE,
+    )
+    base = f"http://127.0.0.1:{port}"
+    try:
+        deadline = time.monotonic() + 60
+        while True:
+            try:
+                with urllib.request.urlopen(base + "/healthz", timeout=1) as r:
+                    if r.status == 200:
+                        break
+            except OSError:
+                if proc.poll() is not None:
+                    err = proc.stderr.read().decode() if proc.stderr else ""
+                    raise RuntimeError(f"server exited: {err[-2000:]}") from None
+                if time.monotonic() > deadline:
+                    raise RuntimeError("server did not start in 60 s") from None
+                time.sleep(0.2)
+        yield base
+    finally:
+        proc.terminate()
+        try:
+            proc.wait(timeout=15)
+        except subprocess.TimeoutExpired:
+            proc.kill()

@@ -1,0 +1,1 @@
+"""The web layer: JSON API, pages and their wiring. Imports the core, never the reverse."""

@@ -1,0 +1,54 @@
+"""The application factory: routers, error handlers, storage, pages."""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
+
+from fastapi import FastAPI
+
+from .. import COMPUTATION_VERSION, __version__
+from ..config import Settings, get_settings
+from .examples import install_examples
+from .problems import install_problem_handlers
+from .routes import fold, health
+
+__all__ = ["create_app"]
+
+log = logging.getLogger("foldwise")
+
+DESCRIPTION = """
+Foldwise tells which peaks of a machine spectrum are real and which are aliases folded
+back from above the Nyquist frequency, and of what.
+
+* **fold** — predict where each known tone lands through an acquisition chain, and how strongly.
+
+Errors are `application/problem+json` (RFC 9457) and name the field, the value and the limit.
+
+**Caution.** An alias verdict is a hypothesis about the measurement, not about the machine.
+Before a peak is dismissed in a decision about machine protection or safety, confirm it with
+a second sample rate or a wider-band measurement, and follow the applicable standards, site
+procedures and qualified personnel.
+"""
+
+
+def create_app(settings: Settings | None = None) -> FastAPI:
+    settings = settings or get_settings()
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI) -> AsyncIterator[None]:
+        yield
+
+    app = FastAPI(
+        title="Foldwise",
+        version=f"{__version__} (computation {COMPUTATION_VERSION})",
+        description=DESCRIPTION,
+        lifespan=lifespan,
+    )
+    app.state.settings = settings
+    install_problem_handlers(app)
+    app.include_router(health.router)
+    app.include_router(fold.router)
+    install_examples(app, settings)
+    return app

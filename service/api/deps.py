@@ -1,0 +1,19 @@
+"""Shared dependencies of the routers, as ``Annotated`` aliases."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+from fastapi import Depends, Request
+
+from ..config import Settings
+
+__all__ = ["SettingsDep"]
+
+
+def _settings(request: Request) -> Settings:
+    settings: Settings = request.app.state.settings
+    return settings
+
+
+SettingsDep = Annotated[Settings, Depends(_settings)]

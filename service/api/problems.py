@@ -1,0 +1,184 @@
+"""Errors as ``application/problem+json`` (RFC 9457) that name the field, value and limit.
+
+Every error a client can cause ends here as a 4xx problem; anything unexpected becomes a
+plain 500 problem with no stack trace (the trace goes to the log only).
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from typing import Any
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+__all__ = ["PROBLEM_JSON", "Problem", "input_errors", "install_problem_handlers"]
+
+PROBLEM_JSON = "application/problem+json"
+log = logging.getLogger("foldwise.errors")
+
+_TITLES = {
+    400: "Bad request",
+    401: "API key required",
+    403: "Forbidden",
+    404: "Not found",
+    405: "Method not allowed",
+    409: "Conflict",
+    413: "Too large",
+    415: "Unsupported media type",
+    422: "Invalid input",
+    429: "Too many requests",
+    500: "Internal error",
+    503: "Service unavailable",
+}
+
+
+class Problem(Exception):
+    """An error to answer with: status, a sentence a person can act on, and the field."""
+
+    def __init__(
+        self,
+        status: int,
+        detail: str,
+        *,
+        field: str | None = None,
+        value: Any = None,
+        limit: Any = None,
+        title: str | None = None,
+        kind: str | None = None,
+        headers: dict[str, str] | None = None,
+    ) -> None:
+        super().__init__(detail)
+        self.status = status
+        self.detail = detail
+        self.field = field
+        self.value = value
+        self.limit = limit
+        self.title = title or _TITLES.get(status, "Error")
+        self.kind = kind or self.title.lower().replace(" ", "-")
+        self.headers = headers
+
+    def body(self, instance: str | None = None) -> dict[str, Any]:
+        out: dict[str, Any] = {
+            "type": f"urn:foldwise:problem:{self.kind}",
+            "title": self.title,
+            "status": self.status,
+            "detail": self.detail,
+        }
+        if instance:
+            out["instance"] = instance
+        if self.field is not None:
+            err: dict[str, Any] = {"field": self.field, "message": self.detail}
+            if self.value is not None:
+                err["value"] = _jsonable(self.value)
+            if self.limit is not None:
+                err["limit"] = _jsonable(self.limit)
+            out["errors"] = [err]
+        return out
+
+
+def _jsonable(v: Any) -> Any:
+    if isinstance(v, float) and v != v:  # NaN is not JSON
+        return "NaN"
+    if isinstance(v, float) and v in (float("inf"), float("-inf")):
+        return "Infinity" if v > 0 else "-Infinity"
+    if isinstance(v, str | int | float | bool) or v is None:
+        return v
+    text = repr(v)
+    return text if len(text) <= 200 else text[:197] + "..."
+
+
+@contextmanager
+def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
+    """Turn a ``ValueError`` from the core into a problem naming ``field``."""
+    try:
+        yield
+    except ValueError as exc:
+        raise Problem(status, str(exc), field=field) from exc
+
+
+def _field_path(loc: Sequence[Any]) -> str:
+    parts = [p for p in loc if p not in ("body", "query", "path", "form", "header")]
+    out = ""
+    for p in parts:
+        if isinstance(p, int):
+            out += f"[{p}]"
+        elif (isinstance(p, str) and p.startswith("function-")) or p in ("tagged-union",):
+            continue
+        else:
+            out += ("." if out else "") + str(p)
+    return out or "body"
+
+
+_LIMIT_KEYS = ("gt", "ge", "lt", "le", "min_length", "max_length", "expected", "pattern")
+
+
+def _validation_problem(exc: RequestValidationError) -> Problem:
+    errors = []
+    for e in exc.errors():
+        etype = e.get("type", "")
+        if etype == "json_invalid":
+            ctx = e.get("ctx") or {}
+            where = e.get("loc", ("body", 0))
+            pos = where[1] if len(where) > 1 else 0
+            detail = f"malformed JSON at character {pos}: {ctx.get('error', 'cannot parse')}"
+            return Problem(400, detail, field="body", title="Malformed JSON", kind="malformed-json")
+        field = _field_path(e.get("loc", ()))
+        ctx = e.get("ctx") or {}
+        limit = next((f"{k} {ctx[k]}" for k in _LIMIT_KEYS if k in ctx), None)
+        msg = str(e.get("msg", "invalid"))
+        if msg.startswith("Value error, "):
+            msg = msg[len("Value error, ") :]
+        entry: dict[str, Any] = {"field": field, "message": msg}
+        if "input" in e and etype != "missing" and not isinstance(e["input"], dict | list):
+            entry["value"] = _jsonable(e["input"])
+        if limit:
+            entry["limit"] = limit
+        errors.append(entry)
+    first = errors[0] if errors else {"field": "body", "message": "invalid"}
+    shown = f"{first['field']}: {first['message']}"
+    if "value" in first:
+        shown += f" (got {first['value']!r})"
+    more = f" and {len(errors) - 1} more" if len(errors) > 1 else ""
+    p = Problem(422, shown + more, title="Invalid input", kind="invalid-input")
+    p.errors = errors  # type: ignore[attr-defined]
+    return p
+
+
+def _respond(request: Request, p: Problem) -> JSONResponse:
+    body = p.body(instance=request.url.path)
+    extra = getattr(p, "errors", None)
+    if extra:
+        body["errors"] = extra
+    return JSONResponse(body, status_code=p.status, media_type=PROBLEM_JSON, headers=p.headers)
+
+
+def install_problem_handlers(app: FastAPI) -> None:
+    @app.exception_handler(Problem)
+    async def _problem(request: Request, exc: Problem) -> JSONResponse:
+        return _respond(request, exc)
+
+    @app.exception_handler(RequestValidationError)
+    async def _invalid(request: Request, exc: RequestValidationError) -> JSONResponse:
+        return _respond(request, _validation_problem(exc))
+
+    @app.exception_handler(StarletteHTTPException)
+    async def _http(request: Request, exc: StarletteHTTPException) -> JSONResponse:
+        detail = exc.detail if isinstance(exc.detail, str) else _TITLES.get(exc.status_code, "")
+        if exc.status_code == 404 and detail == "Not Found":
+            detail = f"no such resource: {request.url.path}"
+        if exc.status_code == 405:
+            detail = f"{request.method} is not allowed on {request.url.path}"
+        return _respond(request, Problem(exc.status_code, detail, headers=exc.headers))
+
+    @app.exception_handler(Exception)
+    async def _unexpected(request: Request, exc: Exception) -> JSONResponse:
+        log.exception("unhandled error on %s %s", request.method, request.url.path)
+        return _respond(
+            request,
+            Problem(500, "an internal error occurred; it has been logged", kind="internal"),
+        )

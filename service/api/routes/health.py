@@ -1,0 +1,32 @@
+"""Liveness and readiness, for load balancers and orchestrators."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter, Request
+from starlette.concurrency import run_in_threadpool
+
+from ... import COMPUTATION_VERSION, __version__
+from ..problems import Problem
+
+router = APIRouter(tags=["health"])
+
+
+@router.get("/healthz", summary="Liveness: answers at once, touches nothing")
+async def healthz() -> dict[str, str]:
+    return {"status": "ok"}
+
+
+@router.get("/readyz", summary="Readiness: the store answers")
+async def readyz(request: Request) -> dict[str, str]:
+    store = getattr(request.app.state, "store", None)
+    if store is not None:
+        try:
+            await run_in_threadpool(store.ping)
+        except Exception as exc:
+            raise Problem(
+                503,
+                f"the database does not answer: {exc}",
+                kind="store-unavailable",
+                headers={"Retry-After": "5"},
+            ) from exc
+    return {"status": "ready", "version": __version__, "computation": COMPUTATION_VERSION}

@@ -1,0 +1,328 @@
+"""Request and response models of the JSON API (``…In`` / ``…Out``), and their conversion
+to the core's plain dataclasses. Field names here are a contract under /api/v1."""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from ..core import chain as ch
+from .source_schemas import SourceIn
+
+__all__ = [
+    "AnalogFilterIn",
+    "ChainIn",
+    "FoldIn",
+    "SourceIn",
+    "StageIn",
+    "ToneIn",
+    "chain_from_request",
+]
+
+#: The largest frequency any field accepts: well above any machine or converter.
+MAX_HZ = 1e10
+
+Hz = Annotated[float, Field(gt=0, le=MAX_HZ, allow_inf_nan=False, description="Hz, > 0")]
+HzOrZero = Annotated[float, Field(ge=0, le=MAX_HZ, allow_inf_nan=False, description="Hz, >= 0")]
+Db = Annotated[float, Field(ge=-400, le=400, allow_inf_nan=False, description="dB")]
+Label = Annotated[str, Field(min_length=1, max_length=200)]
+
+
+class StrictModel(BaseModel):
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
+
+
+FilterFamily = Literal["butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel"]
+
+
+class AnalogFilterIn(StrictModel):
+    """An analog low-pass: a named family design, or a measured response table."""
+
+    family: FilterFamily | None = Field(
+        None,
+        description="Design family. The cutoff is the -3 dB frequency for butterworth and "
+        "bessel, the passband (ripple) edge for chebyshev1 and elliptic, and the stopband "
+        "edge for chebyshev2.",
+    )
+    order: int | None = Field(None, ge=1, le=20, description="Filter order, 1 to 20")
+    cutoff_hz: Hz | None = None
+    ripple_db: float | None = Field(
+        None,
+        gt=0,
+        le=6,
+        allow_inf_nan=False,
+        description="Passband ripple, dB (chebyshev1, elliptic)",
+    )
+    stop_atten_db: float | None = Field(
+        None,
+        gt=0,
+        le=200,
+        allow_inf_nan=False,
+        description="Stopband attenuation, dB (chebyshev2, elliptic)",
+    )
+    table_hz: list[Hz] | None = Field(
+        None, min_length=2, max_length=10_000, description="Measured response: frequencies, Hz"
+    )
+    table_gain_db: list[Db] | None = Field(
+        None, min_length=2, max_length=10_000, description="Measured response: gain, dB"
+    )
+
+    @model_validator(mode="after")
+    def _one_kind(self) -> AnalogFilterIn:
+        has_table = self.table_hz is not None or self.table_gain_db is not None
+        if has_table and self.family is not None:
+            raise ValueError("give either a filter family or a measured table, not both")
+        if has_table:
+            if self.table_hz is None or self.table_gain_db is None:
+                raise ValueError("a measured table needs both table_hz and table_gain_db")
+            if len(self.table_hz) != len(self.table_gain_db):
+                raise ValueError(
+                    f"table_hz has {len(self.table_hz)} points but table_gain_db has "
+                    f"{len(self.table_gain_db)}; they must match"
+                )
+            return self
+        if self.family is None:
+            raise ValueError(
+                "give a filter family (butterworth, chebyshev1, chebyshev2, "
+                "elliptic, bessel) or a measured table"
+            )
+        if self.order is None or self.cutoff_hz is None:
+            raise ValueError(f"a {self.family} filter needs order and cutoff_hz")
+        if self.family in ("chebyshev1", "elliptic") and self.ripple_db is None:
+            raise ValueError(f"a {self.family} filter needs ripple_db")
+        if self.family in ("chebyshev2", "elliptic") and self.stop_atten_db is None:
+            raise ValueError(f"a {self.family} filter needs stop_atten_db")
+        return self
+
+    def to_core(self) -> ch.AnalogLowpass:
+        return ch.AnalogLowpass(
+            family=self.family,
+            order=self.order,
+            cutoff_hz=self.cutoff_hz,
+            ripple_db=self.ripple_db,
+            stop_atten_db=self.stop_atten_db,
+            table_hz=tuple(self.table_hz) if self.table_hz else None,
+            table_gain_db=tuple(self.table_gain_db) if self.table_gain_db else None,
+        )
+
+
+class SensorStageIn(StrictModel):
+    stage: Literal["sensor"]
+    natural_hz: Hz = Field(description="Mounted resonance of the sensor, Hz")
+    q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
+
+    def to_core(self) -> ch.SensorResonance:
+        return ch.SensorResonance(natural_hz=self.natural_hz, q=self.q)
+
+
+class AnalogStageIn(AnalogFilterIn):
+    stage: Literal["analog_lowpass"]
+
+
+class SampleStageIn(StrictModel):
+    stage: Literal["sample"]
+    rate_hz: Hz = Field(description="Converter sample rate, Hz (S/s)")
+
+    def to_core(self) -> ch.Sample:
+        return ch.Sample(rate_hz=self.rate_hz)
+
+
+class DigitalStageIn(StrictModel):
+    """A digital low-pass at the current rate: a design spec, or explicit coefficients."""
+
+    stage: Literal["digital_lowpass"]
+    passband_hz: Hz | None = None
+    stopband_hz: Hz | None = None
+    atten_db: float | None = Field(None, gt=0, le=200, allow_inf_nan=False)
+    b: list[Annotated[float, Field(allow_inf_nan=False)]] | None = Field(
+        None, min_length=1, max_length=8192, description="Numerator coefficients"
+    )
+    a: list[Annotated[float, Field(allow_inf_nan=False)]] | None = Field(
+        None, min_length=1, max_length=64, description="Denominator coefficients (IIR)"
+    )
+
+    @model_validator(mode="after")
+    def _one_kind(self) -> DigitalStageIn:
+        spec = (self.passband_hz, self.stopband_hz, self.atten_db)
+        if self.b is not None:
+            if any(v is not None for v in spec):
+                raise ValueError("give either a design spec or coefficients b (and a), not both")
+            return self
+        if self.a is not None:
+            raise ValueError("coefficients a need coefficients b")
+        if any(v is None for v in spec):
+            raise ValueError(
+                "a digital low-pass needs passband_hz, stopband_hz and atten_db, or coefficients b"
+            )
+        return self
+
+    def to_core(self) -> ch.DigitalLowpass:
+        return ch.DigitalLowpass(
+            passband_hz=self.passband_hz,
+            stopband_hz=self.stopband_hz,
+            atten_db=self.atten_db,
+            b=tuple(self.b) if self.b is not None else None,
+            a=tuple(self.a) if self.a is not None else None,
+        )
+
+
+class DecimateStageIn(StrictModel):
+    stage: Literal["decimate"]
+    factor: int = Field(ge=1, le=4096, description="Keep every factor-th sample")
+    filter: Literal["fir", "iir", "none"] = Field(
+        "fir",
+        description="'fir' and 'iir' filter before slicing (as scipy.signal.decimate does); "
+        "'none' is a bare slice x[::factor], so everything above the new Nyquist folds",
+    )
+
+    def to_core(self) -> ch.Decimate:
+        return ch.Decimate(factor=self.factor, filter=self.filter)
+
+
+StageIn = Annotated[
+    SensorStageIn | AnalogStageIn | SampleStageIn | DigitalStageIn | DecimateStageIn,
+    Field(discriminator="stage"),
+]
+
+
+class ChainIn(StrictModel):
+    """The acquisition chain: a shorthand (sample rate and optional anti-alias filter) or
+    a full ordered list of stages."""
+
+    sample_rate_hz: Hz | None = Field(None, description="Shorthand: the sample rate, Hz")
+    anti_alias: AnalogFilterIn | None = Field(
+        None, description="Shorthand: the analog anti-alias filter before the converter"
+    )
+    chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
+
+    @model_validator(mode="after")
+    def _shorthand_or_chain(self) -> ChainIn:
+        if self.chain is not None and self.sample_rate_hz is not None:
+            raise ValueError(
+                "give either sample_rate_hz (with optional anti_alias) or chain, not both"
+            )
+        if self.chain is None and self.sample_rate_hz is None:
+            raise ValueError("give sample_rate_hz (with optional anti_alias) or a chain")
+        if self.chain is not None and self.anti_alias is not None:
+            raise ValueError(
+                "anti_alias goes with sample_rate_hz; in a chain, add an "
+                "analog_lowpass stage instead"
+            )
+        return self
+
+
+def chain_from_request(req: ChainIn) -> ch.Chain:
+    """The core chain a request describes (not yet validated for stage order)."""
+    if req.chain is not None:
+        return ch.Chain(stages=tuple(s.to_core() for s in req.chain))
+    assert req.sample_rate_hz is not None
+    aa = req.anti_alias.to_core() if req.anti_alias is not None else None
+    return ch.Chain.shorthand(req.sample_rate_hz, aa)
+
+
+class ToneIn(StrictModel):
+    label: Label
+    freq_hz: HzOrZero
+    amplitude: float | None = Field(
+        None, ge=0, le=1e12, allow_inf_nan=False, description="Amplitude at the sensor, any unit"
+    )
+
+
+class FoldIn(ChainIn):
+    """Predict where each tone lands after the acquisition chain."""
+
+    tones: list[ToneIn] | None = Field(
+        None, min_length=1, description="Explicit tones (label, freq_hz, optional amplitude)"
+    )
+    sources: list[SourceIn] | None = Field(
+        None, min_length=1, max_length=500, description="Machine sources expanded into tones"
+    )
+    band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
+        None, description="Band of interest [low, high], Hz; default DC to final rate / 2.56"
+    )
+    lines: int | None = Field(
+        None,
+        ge=1,
+        le=1_048_576,
+        description="Analysis lines over final rate / 2.56 (bin numbers, collision "
+        "tolerance); default 3200",
+    )
+    speed_tolerance_pct: float = Field(
+        0.0,
+        ge=0,
+        le=50,
+        allow_inf_nan=False,
+        description="Machine speed uncertainty, %: speed-dependent tones become intervals",
+    )
+    collision_bins: float = Field(
+        3.0,
+        gt=0,
+        le=1000,
+        allow_inf_nan=False,
+        description="An alias within this many bins of another line is a masking risk",
+    )
+
+    @model_validator(mode="after")
+    def _something_to_fold(self) -> FoldIn:
+        if not self.tones and not self.sources:
+            raise ValueError("give at least one tone in tones or one source in sources")
+        if self.band_hz is not None and self.band_hz[1] <= self.band_hz[0]:
+            raise ValueError(f"band_hz={list(self.band_hz)} must be [low, high] with low < high")
+        return self
+
+
+class StageAttenuationOut(BaseModel):
+    stage: str
+    attenuation_db: float
+
+
+class FoldToneOut(BaseModel):
+    label: str = Field(description="What the tone is, e.g. 'BPFI 3×'")
+    source: str = Field(description="Label of the source it came from")
+    kind: str = Field(description="Source type")
+    family: str | None = Field(None, description="Harmonic family, if any")
+    harmonic: float | None = None
+    freq_hz: float = Field(description="True frequency at the sensor, Hz")
+    apparent_hz: float = Field(description="Where it shows up after sampling, Hz")
+    apparent_low_hz: float = Field(description="Low end of the apparent interval (speed tolerance)")
+    apparent_high_hz: float = Field(description="High end of the apparent interval")
+    zone: int = Field(description="Nyquist zone of the final rate, from 1")
+    inverted: bool = Field(description="Even zone: moves opposite to speed, sidebands swap")
+    aliased: bool = Field(description="True frequency above the final Nyquist frequency")
+    in_band: bool = Field(description="Lands (or may land) in the band of interest")
+    attenuation_db: float = Field(description="Total attenuation through the chain, dB")
+    stage_attenuation_db: list[float] = Field(description="Per stage, in chain order, dB")
+    folded_at: str | None = Field(None, description="Stage at which the tone first folds")
+    amplitude: float | None = Field(None, description="Amplitude at the sensor, if given")
+    apparent_amplitude: float | None = Field(None, description="Predicted level in the capture")
+    bin: int = Field(description="Bin index for the analysis lines")
+
+
+class CollisionOut(BaseModel):
+    alias: str = Field(description="Label of the aliased tone")
+    alias_source: str
+    alias_index: int = Field(description="Index of the aliased tone in `tones`")
+    other: str = Field(description="Label of the line it lands on or near")
+    other_source: str
+    other_index: int
+    other_aliased: bool
+    apparent_hz: float
+    separation_hz: float
+    separation_bins: float
+
+
+class FoldOut(BaseModel):
+    nyquist_hz: float = Field(description="Nyquist frequency of the final rate, Hz")
+    sample_rate_hz: float = Field(description="Converter sample rate, Hz")
+    final_rate_hz: float = Field(description="Rate after all decimation, Hz")
+    band_hz: tuple[float, float]
+    lines: int
+    bin_width_hz: float
+    speed_tolerance_pct: float
+    stages: list[str] = Field(description="The chain, one readable name per stage")
+    notes: list[str] = Field(description="Warnings about the chain")
+    tones: list[FoldToneOut]
+    collisions: list[CollisionOut] = Field(description="Aliases that may mask other lines")
+    collisions_total: int
+    computation_version: str

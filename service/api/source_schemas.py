@@ -1,0 +1,136 @@
+"""Request models for machine sources, one per source type, told apart by ``type``."""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, model_validator
+
+from ..core import sources as src
+
+__all__ = ["SourceIn", "source_to_core"]
+
+MAX_HZ = 1e10
+Hz = Annotated[float, Field(gt=0, le=MAX_HZ, allow_inf_nan=False)]
+Label = Annotated[str, Field(min_length=1, max_length=200)]
+Amplitude = Annotated[float, Field(ge=0, le=1e12, allow_inf_nan=False)]
+Harmonics = Annotated[int, Field(ge=1, le=100, description="Number of harmonics, 1 to 100")]
+
+
+class _SourceBase(BaseModel):
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
+
+    label: Label
+    amplitude: Amplitude | None = Field(
+        None, description="Amplitude of the main line at the sensor, any unit"
+    )
+
+
+class _Speed(_SourceBase):
+    speed_hz: Hz | None = Field(None, description="Shaft speed, Hz (give one of the three)")
+    speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
+    speed_cpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
+
+    @model_validator(mode="after")
+    def _one_speed(self) -> _Speed:
+        given = [n for n in ("speed_hz", "speed_rpm", "speed_cpm") if getattr(self, n) is not None]
+        if len(given) != 1:
+            raise ValueError(
+                f"give exactly one of speed_hz, speed_rpm, speed_cpm (got {given or 'none'})"
+            )
+        return self
+
+
+class ShaftIn(_Speed):
+    type: Literal["shaft"]
+    orders: list[Annotated[float, Field(gt=0, le=10_000, allow_inf_nan=False)]] = Field(
+        default_factory=lambda: [1.0, 2.0, 3.0],
+        min_length=1,
+        max_length=200,
+        description="Orders (multiples of shaft speed); fractional orders allowed",
+    )
+
+
+class GearMeshIn(_Speed):
+    type: Literal["gear_mesh"]
+    teeth: int = Field(ge=1, le=100_000, description="Teeth on the gear whose shaft speed is given")
+    harmonics: Harmonics = 3
+    sidebands: int = Field(2, ge=0, le=50, description="± shaft-speed sidebands per harmonic")
+
+
+class BearingIn(_Speed):
+    type: Literal["bearing"]
+    n_elements: int = Field(ge=3, le=1000, description="Number of rolling elements")
+    element_diameter: float = Field(
+        gt=0, le=1e4, allow_inf_nan=False, description="Any length unit"
+    )
+    pitch_diameter: float = Field(gt=0, le=1e5, allow_inf_nan=False, description="Same unit")
+    contact_angle_deg: float = Field(0.0, ge=0, lt=90, allow_inf_nan=False)
+    harmonics: Harmonics = 3
+
+
+class BladePassIn(_Speed):
+    type: Literal["blade_pass"]
+    blades: int = Field(ge=1, le=10_000)
+    harmonics: Harmonics = 3
+
+
+class LineIn(_SourceBase):
+    type: Literal["line"]
+    line_hz: Hz = 50.0
+    harmonics: Harmonics | list[Annotated[int, Field(ge=1, le=10_000)]] = Field(
+        default_factory=lambda: [1, 2, 3, 5, 7],
+        description="How many harmonics (1..N), or which ones",
+    )
+
+
+class PwmIn(_SourceBase):
+    type: Literal["pwm"]
+    carrier_hz: Hz = Field(description="Switching (carrier) frequency, Hz")
+    fundamental_hz: Annotated[float, Field(ge=0, le=MAX_HZ, allow_inf_nan=False)] | None = Field(
+        None, description="Electrical output frequency f1, Hz (or give pole_pairs and a speed)"
+    )
+    pole_pairs: int | None = Field(None, ge=1, le=1000)
+    speed_hz: Hz | None = None
+    speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
+    carrier_multiples: int = Field(3, ge=1, le=50)
+    sidebands: int = Field(4, ge=0, le=50)
+    line_to_line: bool = Field(
+        False, description="Line-to-line voltage of a three-phase bridge: triplen sidebands cancel"
+    )
+
+    @model_validator(mode="after")
+    def _fundamental(self) -> PwmIn:
+        speeds = [s for s in (self.speed_hz, self.speed_rpm) if s is not None]
+        if self.fundamental_hz is not None:
+            if self.pole_pairs is not None or speeds:
+                raise ValueError("give fundamental_hz, or pole_pairs with a speed, not both")
+        elif self.pole_pairs is None or len(speeds) != 1:
+            raise ValueError("give fundamental_hz, or pole_pairs with one of speed_hz, speed_rpm")
+        return self
+
+
+class ResonanceIn(_SourceBase):
+    type: Literal["resonance"]
+    freq_hz: Hz
+
+
+class TonesIn(BaseModel):
+    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
+
+    type: Literal["tones"]
+    label: Label
+    freq_hz: list[Hz] = Field(min_length=1, max_length=100_000)
+    tone_labels: list[Label] | None = None
+    amplitudes: list[Amplitude] | None = None
+
+
+SourceIn = Annotated[
+    ShaftIn | GearMeshIn | BearingIn | BladePassIn | LineIn | PwmIn | ResonanceIn | TonesIn,
+    Field(discriminator="type"),
+]
+
+
+def source_to_core(s: Any) -> Any:
+    """The core source dataclass for one validated request source."""
+    return src.source_from_dict(s.model_dump(exclude_none=True))

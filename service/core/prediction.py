@@ -1,0 +1,211 @@
+"""Push labelled tones through an acquisition chain: where each lands and how strongly.
+
+References
+----------
+.. [1] Common practice (no single source): the alias-protected span is fs/2.56 and the
+   bin width is span / lines.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from .chain import Chain, ChainResponse
+from .folding import fold_intervals
+from .tones import ToneSet
+
+__all__ = ["DEFAULT_LINES", "SPAN_DIVISOR", "Collisions", "Prediction", "predict"]
+
+FloatArray = NDArray[np.float64]
+IntArray = NDArray[np.int64]
+
+#: Common practice: an analyser shows DC to fs/2.56 as its alias-protected span.
+SPAN_DIVISOR = 2.56
+#: Analysis lines assumed for bin numbers and collision tolerance when none are given.
+DEFAULT_LINES = 3200
+#: How close (in bins) a predicted alias may come to another line before it can mask it.
+DEFAULT_COLLISION_BINS = 3.0
+#: At most this many collisions are listed; the total is always counted.
+MAX_COLLISIONS = 2000
+
+
+@dataclass(frozen=True)
+class Collisions:
+    """Pairs of tones whose apparent frequencies come within ``tolerance_hz``.
+
+    ``separation_hz`` is the gap between the two apparent intervals (0 where they overlap).
+
+    ``alias`` always indexes an aliased tone; ``other`` is any other tone (direct or
+    aliased) with a different true frequency.
+    """
+
+    alias: IntArray
+    other: IntArray
+    separation_hz: FloatArray
+    tolerance_hz: float
+    total: int
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """Where each tone lands after the chain, and how strongly."""
+
+    tones: ToneSet
+    chain: Chain
+    response: ChainResponse
+    band_hz: tuple[float, float]
+    lines: int
+    bin_width_hz: float
+    bin: IntArray
+    apparent_low_hz: FloatArray
+    apparent_high_hz: FloatArray
+    apparent_amplitude: FloatArray
+    aliased: NDArray[np.bool_]
+    in_band: NDArray[np.bool_]
+    collisions: Collisions
+    speed_tolerance_pct: float
+    notes: tuple[str, ...]
+
+    @property
+    def nyquist_hz(self) -> float:
+        return self.response.final_rate_hz / 2.0
+
+
+def _check_band(band_hz: tuple[float, float] | None, nyquist: float) -> tuple[float, float]:
+    if band_hz is None:
+        return (0.0, 2.0 * nyquist / SPAN_DIVISOR)
+    lo, hi = (float(v) for v in band_hz)
+    if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
+        raise ValueError(f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high")
+    return (lo, hi)
+
+
+def _check_lines(lines: int | None) -> int:
+    if lines is None:
+        return DEFAULT_LINES
+    if int(lines) != lines or not 1 <= lines <= 1_048_576:
+        raise ValueError(f"lines={lines!r} must be a whole number between 1 and 1048576")
+    return int(lines)
+
+
+def _check_tolerance(pct: float) -> float:
+    p = float(pct)
+    if not np.isfinite(p) or not 0 <= p <= 50:
+        raise ValueError(f"speed_tolerance_pct={pct!r} must be between 0 and 50")
+    return p
+
+
+def predict(
+    tones: ToneSet,
+    chain: Chain,
+    band_hz: tuple[float, float] | None = None,
+    lines: int | None = None,
+    speed_tolerance_pct: float = 0.0,
+    collision_bins: float = DEFAULT_COLLISION_BINS,
+) -> Prediction:
+    """Predict apparent frequency, zone, attenuation and level of every tone.
+
+    Parameters
+    ----------
+    tones : ToneSet
+        The tones at the sensor (true frequencies, Hz; amplitudes in any unit).
+    chain : Chain
+        The acquisition chain; validated here, its notes returned.
+    band_hz : (float, float), optional
+        Band of interest, Hz. Default DC to final rate / 2.56 (common practice).
+    lines : int, optional
+        Analysis lines over the span final rate / 2.56; default 3200. Sets the bin
+        width ``rate / (2.56 * lines)``, Hz.
+    speed_tolerance_pct : float
+        Uncertainty of machine speed, percent (0–50). Speed-proportional parts of each
+        tone become intervals, folded to apparent intervals.
+    collision_bins : float
+        Separation, in bins, below which an alias is reported as a masking risk.
+
+    Returns
+    -------
+    Prediction
+    """
+    notes = tuple(chain.validate())
+    n_lines = _check_lines(lines)
+    tol = _check_tolerance(speed_tolerance_pct)
+    if not np.isfinite(collision_bins) or collision_bins <= 0:
+        raise ValueError(f"collision_bins={collision_bins!r} must be > 0")
+    response = chain.evaluate(tones.freq_hz)
+    rate = response.final_rate_hz
+    band = _check_band(band_hz, rate / 2.0)
+    bin_width = rate / (SPAN_DIVISOR * n_lines)
+
+    if tol > 0:
+        spread = np.abs(tones.speed_hz) * (tol / 100.0)
+        true_lo = np.maximum(tones.freq_hz - spread, 0.0)
+        app_lo, app_hi = fold_intervals(true_lo, tones.freq_hz + spread, rate)
+    else:
+        app_lo = app_hi = response.apparent_hz
+    aliased = response.zone > 1
+    in_band = (app_hi >= band[0]) & (app_lo <= band[1])
+    level = tones.amplitude * 10.0 ** (-response.attenuation_db / 20.0)
+    bins = np.rint(response.apparent_hz / bin_width).astype(np.int64)
+    collisions = _collisions(tones.freq_hz, app_lo, app_hi, aliased, collision_bins * bin_width)
+    return Prediction(
+        tones=tones,
+        chain=chain,
+        response=response,
+        band_hz=band,
+        lines=n_lines,
+        bin_width_hz=bin_width,
+        bin=bins,
+        apparent_low_hz=app_lo,
+        apparent_high_hz=app_hi,
+        apparent_amplitude=level,
+        aliased=aliased,
+        in_band=in_band,
+        collisions=collisions,
+        speed_tolerance_pct=tol,
+        notes=notes,
+    )
+
+
+def _collisions(
+    true_hz: FloatArray,
+    lo: FloatArray,
+    hi: FloatArray,
+    aliased: NDArray[np.bool_],
+    tolerance_hz: float,
+) -> Collisions:
+    """Aliased tones whose apparent interval comes within ``tolerance_hz`` of another's.
+
+    Sorting by the interval's low end and searching a window ``max width + tolerance``
+    wide keeps this O(n log n + pairs) without a loop over tones.
+    """
+    empty_i = np.empty(0, dtype=np.int64)
+    n = true_hz.size
+    if n < 2 or not np.any(aliased):
+        return Collisions(empty_i, empty_i, np.empty(0), tolerance_hz, 0)
+    order = np.argsort(lo, kind="stable")
+    s_lo, s_hi = lo[order], hi[order]
+    reach = float(np.max(hi - lo)) + tolerance_hz
+    start = np.searchsorted(s_lo, s_lo - reach, side="left")
+    stop = np.searchsorted(s_lo, s_hi + reach, side="right")
+    counts = stop - start
+    # Bound the work: candidate pairs past a generous cap are not materialised.
+    cap = 50 * MAX_COLLISIONS
+    keep_rows = np.cumsum(counts) <= cap
+    rows = np.repeat(np.arange(n)[keep_rows], counts[keep_rows])
+    offs = np.arange(rows.size) - np.repeat(
+        np.cumsum(counts[keep_rows]) - counts[keep_rows], counts[keep_rows]
+    )
+    cols = start[rows] + offs
+    i, j = order[rows], order[cols]
+    gap = np.maximum(np.maximum(lo[j] - hi[i], lo[i] - hi[j]), 0.0)
+    ok = (i != j) & aliased[i] & (gap <= tolerance_hz)
+    ok &= np.abs(true_hz[i] - true_hz[j]) > tolerance_hz
+    # Both directions appear when both are aliased; keep one.
+    ok &= ~(aliased[j] & (j < i))
+    i, j, sep = i[ok], j[ok], gap[ok]
+    total = int(i.size)
+    first = np.argsort(sep, kind="stable")[:MAX_COLLISIONS]
+    return Collisions(i[first], j[first], sep[first], tolerance_hz, total)
