@@ -26,6 +26,15 @@ class _SourceBase(BaseModel):
     )
 
 
+class _WithHarmonicAmplitudes(BaseModel):
+    harmonic_amplitudes: list[Amplitude] | None = Field(
+        None,
+        max_length=200,
+        description="Amplitude of each harmonic (or listed order) in turn, instead of "
+        "`amplitude`; missing ones are unknown",
+    )
+
+
 class _Speed(_SourceBase):
     speed_hz: Hz | None = Field(None, description="Shaft speed, Hz (give one of the three)")
     speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
@@ -41,9 +50,9 @@ class _Speed(_SourceBase):
         return self
 
 
-class ShaftIn(_Speed):
+class ShaftIn(_Speed, _WithHarmonicAmplitudes):
     type: Literal["shaft"]
-    orders: list[Annotated[float, Field(gt=0, le=10_000, allow_inf_nan=False)]] = Field(
+    orders: list[Annotated[float, Field(gt=0, le=1000, allow_inf_nan=False)]] = Field(
         default_factory=lambda: [1.0, 2.0, 3.0],
         min_length=1,
         max_length=200,
@@ -51,14 +60,18 @@ class ShaftIn(_Speed):
     )
 
 
-class GearMeshIn(_Speed):
+class GearMeshIn(_Speed, _WithHarmonicAmplitudes):
     type: Literal["gear_mesh"]
-    teeth: int = Field(ge=1, le=100_000, description="Teeth on the gear whose shaft speed is given")
+    teeth: int = Field(ge=1, le=10_000, description="Teeth on the gear whose shaft speed is given")
     harmonics: Harmonics = 3
     sidebands: int = Field(2, ge=0, le=50, description="± shaft-speed sidebands per harmonic")
+    mating_speed_hz: Hz | None = Field(
+        None, description="Mating shaft speed, Hz, for its sidebands"
+    )
+    mating_speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
 
 
-class BearingIn(_Speed):
+class BearingIn(_Speed, _WithHarmonicAmplitudes):
     type: Literal["bearing"]
     n_elements: int = Field(ge=3, le=1000, description="Number of rolling elements")
     element_diameter: float = Field(
@@ -67,15 +80,18 @@ class BearingIn(_Speed):
     pitch_diameter: float = Field(gt=0, le=1e5, allow_inf_nan=False, description="Same unit")
     contact_angle_deg: float = Field(0.0, ge=0, lt=90, allow_inf_nan=False)
     harmonics: Harmonics = 3
+    defects: list[Literal["FTF", "BPFO", "BPFI", "BSF"]] | None = Field(
+        None, min_length=1, max_length=4, description="Which defect frequencies; default all"
+    )
 
 
-class BladePassIn(_Speed):
+class BladePassIn(_Speed, _WithHarmonicAmplitudes):
     type: Literal["blade_pass"]
-    blades: int = Field(ge=1, le=10_000)
+    blades: int = Field(ge=1, le=1000)
     harmonics: Harmonics = 3
 
 
-class LineIn(_SourceBase):
+class LineIn(_SourceBase, _WithHarmonicAmplitudes):
     type: Literal["line"]
     line_hz: Hz = 50.0
     harmonics: Harmonics | list[Annotated[int, Field(ge=1, le=10_000)]] = Field(
@@ -91,6 +107,7 @@ class PwmIn(_SourceBase):
         None, description="Electrical output frequency f1, Hz (or give pole_pairs and a speed)"
     )
     pole_pairs: int | None = Field(None, ge=1, le=1000)
+    speed_cpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
     speed_hz: Hz | None = None
     speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
     carrier_multiples: int = Field(3, ge=1, le=50)
@@ -101,7 +118,7 @@ class PwmIn(_SourceBase):
 
     @model_validator(mode="after")
     def _fundamental(self) -> PwmIn:
-        speeds = [s for s in (self.speed_hz, self.speed_rpm) if s is not None]
+        speeds = [s for s in (self.speed_hz, self.speed_rpm, self.speed_cpm) if s is not None]
         if self.fundamental_hz is not None:
             if self.pole_pairs is not None or speeds:
                 raise ValueError("give fundamental_hz, or pole_pairs with a speed, not both")
@@ -115,14 +132,12 @@ class ResonanceIn(_SourceBase):
     freq_hz: Hz
 
 
-class TonesIn(BaseModel):
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
-
+class TonesIn(_SourceBase):
     type: Literal["tones"]
-    label: Label
     freq_hz: list[Hz] = Field(min_length=1, max_length=100_000)
-    tone_labels: list[Label] | None = None
-    amplitudes: list[Amplitude] | None = None
+    tone_labels: list[Label] | None = Field(None, max_length=100_000)
+    amplitudes: list[Amplitude] | None = Field(None, max_length=100_000)
+    scales_with_speed: bool = Field(False, description="The tones move with machine speed")
 
 
 SourceIn = Annotated[
