@@ -7,12 +7,14 @@ from collections.abc import AsyncIterator
 from contextlib import asynccontextmanager
 
 from fastapi import FastAPI
+from starlette.concurrency import run_in_threadpool
 
 from .. import COMPUTATION_VERSION, __version__
 from ..config import Settings, get_settings
 from .examples import install_examples
 from .problems import install_problem_handlers
-from .routes import fold, health
+from .routes import diagnoses, fold, health
+from .store_access import StoreAccess
 
 __all__ = ["create_app"]
 
@@ -38,7 +40,14 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI) -> AsyncIterator[None]:
-        yield
+        access = StoreAccess(settings)
+        app.state.store_access = access
+        app.state.store = access
+        await run_in_threadpool(access.try_migrate)
+        try:
+            yield
+        finally:
+            access.close()
 
     app = FastAPI(
         title="Foldwise",
@@ -50,5 +59,6 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     install_problem_handlers(app)
     app.include_router(health.router)
     app.include_router(fold.router)
+    app.include_router(diagnoses.router)
     install_examples(app, settings)
     return app

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from typing import Any
 
+from fastapi import Body
+
 from ..demo import DEMO_RPM, demo_anti_alias, demo_fold_request, demo_sliced_chain
 
 FOLD_EXAMPLES: dict[str, Any] = {
@@ -60,3 +62,17 @@ def install_examples(app: Any, settings: Any) -> None:
         return schema
 
     app.openapi = openapi
+
+
+SAVE_EXAMPLES: Any = Body(
+    openapi_examples={
+        "save_fold": {
+            "summary": "Save the drive-unit prediction",
+            "value": {
+                "kind": "fold",
+                "request": demo_fold_request(),
+                "title": "EDU bench, 9000 rpm",
+            },
+        }
+    }
+)

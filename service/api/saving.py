@@ -1,0 +1,57 @@
+"""What each kind of result needs to be saved: its request model and how to compute it.
+
+A saved result is stored with the request that produced it and the computation version,
+and is rendered from what was stored — never recomputed — so a link shows the same
+verdicts after a restart or an upgrade, and says what computed them.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from fastapi.exceptions import RequestValidationError
+from pydantic import BaseModel, ValidationError
+
+from ..config import Settings
+from .compute import fold_payload
+from .schemas import FoldIn
+
+__all__ = ["SAVEABLE", "SaveParts", "validate_for_kind"]
+
+
+@dataclass(frozen=True)
+class SaveParts:
+    request: dict[str, Any]
+    result: dict[str, Any]
+    spectrum: tuple[np.ndarray, np.ndarray] | None = None
+
+
+def _fold(req: BaseModel, settings: Settings) -> SaveParts:
+    assert isinstance(req, FoldIn)
+    return SaveParts(
+        request=req.model_dump(mode="json", exclude_none=True),
+        result=fold_payload(req, settings),
+    )
+
+
+#: kind → (request model, compute-and-split function). Other kinds register here.
+SAVEABLE: dict[str, tuple[type[BaseModel], Callable[[BaseModel, Settings], SaveParts]]] = {
+    "fold": (FoldIn, _fold),
+}
+
+
+def validate_for_kind(kind: str, request: dict[str, Any]) -> BaseModel:
+    """Validate ``request`` against the model of ``kind``; errors point into ``request``."""
+    model, _ = SAVEABLE[kind]
+    try:
+        return model.model_validate(request)
+    except ValidationError as exc:
+        errors = []
+        for e in exc.errors():
+            e = dict(e)
+            e["loc"] = ("body", "request", *e["loc"])
+            errors.append(e)
+        raise RequestValidationError(errors) from None
