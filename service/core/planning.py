@@ -969,6 +969,18 @@ def _speed_at(tones: ToneSet, f: FloatArray, s_lo: float, s_hi: float) -> FloatA
     return out
 
 
+def _speed_one(prob: _Problem, i: int, f: float, s_lo: float, s_hi: float) -> float:
+    """Scalar :func:`_speed_at` for tone ``i`` (used per sentence, so kept cheap)."""
+    v = float(prob.tones.speed_hz[i])
+    if v == 0:
+        return math.nan
+    fixed = float(prob.tones.fixed_hz[i])
+    a = (f - fixed) / v
+    tol = 1e-9 * max(1.0, abs(s_hi))
+    s = a if s_lo - tol <= a <= s_hi + tol else (-f - fixed) / v
+    return min(max(s, s_lo), s_hi)
+
+
 def _lines_for(fs: float, required_bin: float | None, options: Sequence[int]) -> int:
     opts = sorted(options)
     if required_bin is None:
@@ -1187,7 +1199,7 @@ def _speed_phrase(
 ) -> str:
     if prob.tones.speed_hz[i] == 0 or s_range[1] == s_range[0]:
         return ""
-    s = float(_speed_at(prob.tones.take([i]), np.array([true_hz]), *s_range)[0])
+    s = _speed_one(prob, i, true_hz, *s_range)
     if rpm is not None:
         return f" at {_num(s * rpm, 4)} rpm"
     return f" at {_num(100 * s, 3)} % of nominal speed"
@@ -1283,7 +1295,7 @@ class _Context:
             f"{_level_text(level_db, self.prob)}, {_num(ex, 2)} dB above your {limit}"
             f"{_speed_phrase(self.prob, i, f_true, self.s_range, self.rpm)}"
         )
-        s = float(_speed_at(self.prob.tones.take([i]), np.array([f_true]), *self.s_range)[0])
+        s = _speed_one(self.prob, i, f_true, *self.s_range)
         return RejectedOption(fs, opt, cut, "alias", text, i, s, app, ex)
 
 
