@@ -28,6 +28,8 @@ class Settings(BaseSettings):
     max_time_samples: int = Field(50_000_000, ge=16)
     #: Above this many tones a fold request runs in a worker thread, not on the event loop.
     inline_tone_limit: int = Field(2_000, ge=1)
+    #: Identical fold requests answered from memory; 0 turns the cache off.
+    fold_cache_entries: int = Field(512, ge=0)
 
     #: Comma-separated API keys; when set, write endpoints need ``X-API-Key``.
     api_keys: str = ""

@@ -26,7 +26,7 @@ from service.config import Settings
 
 @pytest.fixture
 def settings(tmp_path: Path) -> Settings:
-    return Settings(data_dir=tmp_path / "data", max_tones=5000)
+    return Settings(data_dir=tmp_path / "data", max_tones=5000, max_body_bytes=2_000_000)
 
 
 @pytest.fixture

@@ -11,6 +11,7 @@ from starlette.concurrency import run_in_threadpool
 
 from .. import COMPUTATION_VERSION, __version__
 from ..config import Settings, get_settings
+from .bodies import ResponseCache
 from .examples import install_examples
 from .problems import install_problem_handlers
 from .routes import diagnoses, fold, health
@@ -56,6 +57,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         lifespan=lifespan,
     )
     app.state.settings = settings
+    app.state.fold_cache = ResponseCache(settings.fold_cache_entries)
     install_problem_handlers(app)
     app.include_router(health.router)
     app.include_router(fold.router)

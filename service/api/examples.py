@@ -7,6 +7,8 @@ from typing import Any
 from fastapi import Body
 
 from ..demo import DEMO_RPM, demo_anti_alias, demo_fold_request, demo_sliced_chain
+from .bodies import register_models
+from .schemas import FoldIn
 
 FOLD_EXAMPLES: dict[str, Any] = {
     "drive_unit": {
@@ -36,7 +38,6 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     """Real responses to the first example of each endpoint, computed by the app itself so
     the documentation can never drift from the code. Long lists are shortened."""
     from .compute import fold_payload
-    from .schemas import FoldIn
 
     fold = fold_payload(FoldIn.model_validate(demo_fold_request()), settings)
     fold["tones"] = [t for t in fold["tones"] if t["aliased"]][:4] + [
@@ -54,6 +55,7 @@ def install_examples(app: Any, settings: Any) -> None:
         if app.openapi_schema:
             return app.openapi_schema  # type: ignore[no-any-return]
         schema = original()
+        register_models(schema, [FoldIn])
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]
             content = op["responses"]["200"].setdefault("content", {})

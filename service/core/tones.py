@@ -21,6 +21,8 @@ ObjArray = NDArray[np.object_]
 
 
 def _obj(values: Sequence[str] | ObjArray, n: int, name: str) -> ObjArray:
+    if isinstance(values, np.ndarray) and values.dtype == object and values.shape == (n,):
+        return values
     arr = np.empty(n, dtype=object)
     arr[:] = list(values) if not isinstance(values, np.ndarray) else values
     if arr.shape != (n,):
@@ -87,12 +89,13 @@ class ToneSet:
         else:
             set_(self, "harmonic", np.asarray(self.harmonic, dtype=np.float64).reshape(n))
         f = self.freq_hz
-        if not np.all(np.isfinite(f)):
-            i = int(np.flatnonzero(~np.isfinite(f))[0])
-            raise ValueError(f"tone {self.label[i]!r} has frequency {f[i]!r}; must be finite")
-        if np.any(f < 0):
-            i = int(np.flatnonzero(f < 0)[0])
-            raise ValueError(f"tone {self.label[i]!r} has frequency {f[i]!r} Hz; must be >= 0")
+        # One min and one max catch NaN (propagates), negatives and +inf; reductions are
+        # the costly part for small sets, so the detailed search runs only on failure.
+        if n and not (f.min() >= 0 and f.max() < np.inf):
+            bad = ~np.isfinite(f) | (f < 0)
+            i = int(np.flatnonzero(bad)[0])
+            limit = "must be finite" if not np.isfinite(f[i]) else "must be >= 0 Hz"
+            raise ValueError(f"tone {self.label[i]!r} has frequency {f[i]!r} Hz; {limit}")
 
     def __len__(self) -> int:
         return int(self.fixed_hz.size)
@@ -147,6 +150,8 @@ class ToneSet:
         parts = [p for p in parts if len(p)]
         if not parts:
             return cls.empty()
+        if len(parts) == 1:
+            return parts[0]
         return cls(
             label=np.concatenate([p.label for p in parts]),
             source=np.concatenate([p.source for p in parts]),

@@ -241,3 +241,41 @@ class TestHealth:
         assert "drive_unit" in examples
         resp = op["responses"]["200"]["content"]["application/json"]
         assert "example" in resp and resp["example"]["tones"]
+
+
+class TestFoldBody:
+    def test_repeat_is_served_from_cache(self, client: TestClient) -> None:
+        body = {"sample_rate_hz": 1000, "tones": [{"label": "a", "freq_hz": 700}]}
+        first = _fold(client, body)
+        second = _fold(client, body)
+        assert first.headers["x-foldwise-cache"] == "miss"
+        assert second.headers["x-foldwise-cache"] == "hit"
+        assert first.content == second.content
+        # A different request is computed afresh.
+        body["tones"][0]["freq_hz"] = 800
+        third = _fold(client, body)
+        assert third.headers["x-foldwise-cache"] == "miss"
+        assert third.json()["tones"][0]["apparent_hz"] == 200
+
+    def test_errors_are_not_cached(self, client: TestClient) -> None:
+        body = {"sample_rate_hz": -1, "tones": [{"label": "a", "freq_hz": 700}]}
+        assert _fold(client, body).status_code == 422
+        assert _fold(client, body).status_code == 422
+
+    def test_wrong_content_type(self, client: TestClient) -> None:
+        r = client.post(
+            "/api/v1/fold", content="sample_rate_hz=5", headers={"content-type": "text/plain"}
+        )
+        assert r.status_code == 415 and r.headers["content-type"] == PROBLEM
+        assert r.json()["errors"][0]["field"] == "content-type"
+
+    def test_empty_body(self, client: TestClient) -> None:
+        r = client.post("/api/v1/fold", content=b"", headers={"content-type": "application/json"})
+        assert r.status_code == 400 and r.headers["content-type"] == PROBLEM
+
+    def test_body_too_large(self, client: TestClient, settings: object) -> None:
+        limit = client.app.state.settings.max_body_bytes  # type: ignore[attr-defined]
+        big = b'{"sample_rate_hz": 1000, "tones": [' + b" " * (limit + 10) + b"]}"
+        r = client.post("/api/v1/fold", content=big, headers={"content-type": "application/json"})
+        assert r.status_code == 413 and r.headers["content-type"] == PROBLEM
+        assert r.json()["errors"][0]["limit"] == limit
