@@ -1332,7 +1332,9 @@ def plan(request: PlanRequest) -> Plan:
     frequency that folds into the band is checked exactly: for a low-pass filter whose
     loss grows with frequency this is where its in-band alias is strongest, so the
     grid cannot step over it. Tones without an amplitude are taken at the level of the
-    strongest tone with one (all at one common level when none has one).
+    strongest tone with one (all at one common level when none has one). Without a
+    resolution requirement the plan uses 3200 lines (or the smallest offered count
+    when 3200 is not offered).
 
     References
     ----------
