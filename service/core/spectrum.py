@@ -329,7 +329,7 @@ def amplitude_spectrum(
     x = np.asarray(samples)
     if x.ndim != 1:
         raise ValueError(f"samples must be 1-D; got shape {x.shape}")
-    if not np.issubdtype(x.dtype, np.floating) or x.dtype.itemsize > 8:
+    if x.dtype not in (np.float32, np.float64):
         x = x.astype(np.float64)
     fs = _check_positive(sample_rate_hz, "sample_rate_hz", " Hz")
     window = _check_window(window)
@@ -511,9 +511,9 @@ def find_peaks(
         Bin frequencies, Hz, strictly increasing (at least 3 bins).
     amplitude : array_like
         Linear amplitude per bin, >= 0 (convert dB first with :func:`to_linear`).
-    floor : array_like, optional
-        Noise floor per bin, linear amplitude; default :func:`noise_floor` of
-        ``amplitude``.
+    floor : array_like or float, optional
+        Noise floor per bin (or one value for all bins), linear amplitude, > 0; default
+        :func:`noise_floor` of ``amplitude``.
     threshold_db : float
         A peak's highest bin must stand at least this far above the floor, dB (0 to 200).
     window : str
@@ -580,7 +580,10 @@ def find_peaks(
     if floor is None:
         fl = noise_floor(amp)
     else:
-        fl = _check_spectrum_array(floor, "floor")
+        fl = _check_spectrum_array(
+            np.broadcast_to(np.asarray(floor, float), amp.shape) if np.ndim(floor) == 0 else floor,
+            "floor",
+        )
         if fl.size != amp.size:
             raise ValueError(f"floor has {fl.size} values but amplitude has {amp.size}")
         if np.any(fl <= 0):
