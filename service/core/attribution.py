@@ -702,8 +702,8 @@ def _explanation(
         assert ctx.tones is not None
         fam_name = str(ctx.tones.family[tone])
         sentence = (
-            f"{p} {hedge} {what}, harmonic {_fmt_harmonic(harmonic)}× of {fam_name} "
-            f"(at {format_hz(true_hz, 4)}, in band){level}"
+            f"{p} {hedge} harmonic {_fmt_harmonic(harmonic)}× of {fam_name} ({label}, "
+            f"at {format_hz(true_hz, 4)}, in band){level}"
         )
     elif kind == _FAMILY:
         sentence = f"{p} {hedge} {what} (at {format_hz(true_hz, 4)}, in band){level}"

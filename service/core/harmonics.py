@@ -219,20 +219,20 @@ def _check_peaks(
         bad = ~np.isfinite(arr)
         if np.any(bad):
             i = int(np.argmax(bad))
-            raise ValueError(f"{name}[{i}]={arr[i]!r}; every value must be finite")
+            raise ValueError(f"{name}[{i}]={float(arr[i])!r}; every value must be finite")
     bad = (f < 0) | (f > nyquist * (1 + 1e-9))
     if np.any(bad):
         i = int(np.argmax(bad))
         raise ValueError(
-            f"peaks_freq_hz[{i}]={f[i]!r} must be between 0 and the Nyquist frequency "
+            f"peaks_freq_hz[{i}]={float(f[i])!r} must be between 0 and the Nyquist frequency "
             f"{nyquist:g} Hz"
         )
     if np.any(a <= 0):
         i = int(np.argmax(a <= 0))
-        raise ValueError(f"peaks_amplitude[{i}]={a[i]!r}; amplitudes must be > 0")
+        raise ValueError(f"peaks_amplitude[{i}]={float(a[i])!r}; amplitudes must be > 0")
     if np.any(fl <= 0):
         i = int(np.argmax(fl <= 0))
-        raise ValueError(f"floor[{i}]={fl[i]!r}; the floor must be > 0")
+        raise ValueError(f"floor[{i}]={float(fl[i])!r}; the floor must be > 0")
     return f, a, fl
 
 
