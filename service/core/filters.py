@@ -230,45 +230,50 @@ def _root_factors(roots: NDArray[np.complex128]) -> list[tuple[float | None, flo
     return [*pairs, *((None, float(r**2)) for r in real)]
 
 
-def _add_log2_abs2(
-    w2: FloatArray,
-    roots: NDArray[np.complex128],
-    out: FloatArray,
-    sign: float,
-    first: bool,
-    prod: FloatArray,
-    tmp: FloatArray,
+def _group_product(
+    w2: FloatArray, factors: list[tuple[float | None, float]], prod: FloatArray, tmp: FloatArray
 ) -> bool:
-    """Add ``sign * sum over roots r of log2 |j w - r|^2`` to ``out`` (``w2 = w^2``).
-
-    Real arithmetic only; up to four factors are multiplied before one logarithm is
-    taken (fewer logarithms, no overflow below f/fc ~ 1e19). The Horner form loses
-    relative accuracy of about ``eps * |p|^2 / Re(p)^2`` next to a pole, negligible for
-    these prototypes. With ``first`` the sum is stored instead of added. Returns
-    whether ``out`` still has to be initialised.
-    """
-    factors = _root_factors(roots)
-    for start in range(0, len(factors), _LOG_GROUP):
-        for n, (e, c2) in enumerate(factors[start : start + _LOG_GROUP]):
-            dst = prod if n == 0 else tmp
-            if e is None:
-                np.add(w2, c2, out=dst)
-            else:
-                np.add(w2, e, out=dst)
-                dst *= w2
-                dst += c2
-            if n:
-                prod *= tmp
-        with np.errstate(divide="ignore"):
-            np.log2(prod, out=prod)
-        if first:
-            np.multiply(prod, sign, out=out)
-            first = False
-        elif sign > 0:
-            out += prod
+    """``prod = product of the factors at w2`` (see :func:`_root_factors`); False if none."""
+    for n, (e, c2) in enumerate(factors):
+        dst = prod if n == 0 else tmp
+        if e is None:
+            np.add(w2, c2, out=dst)
         else:
-            out -= prod
-    return first
+            np.add(w2, e, out=dst)
+            dst *= w2
+            dst += c2
+        if n:
+            prod *= tmp
+    return bool(factors)
+
+
+def _log2_gain_sq_inv(
+    w2: FloatArray, poles: NDArray[np.complex128], zeros: NDArray[np.complex128], out: FloatArray
+) -> FloatArray:
+    """``out = log2(prod |jw - p|^2 / prod |jw - z|^2)`` for ``w2 = w^2 <= 1e30``.
+
+    Real arithmetic only. Up to four pole and four zero factors are multiplied and
+    divided before one logarithm is taken: fewer logarithms, and with w2 <= 1e30 no
+    group overflows. The Horner form loses relative accuracy of about
+    ``eps * |p|^2 / Re(p)^2`` next to a pole, negligible for these prototypes. An exact
+    transmission zero gives +inf, capped by the caller.
+    """
+    fp, fz = _root_factors(poles), _root_factors(zeros)
+    prod, zprod, tmp = np.empty_like(w2), np.empty_like(w2), np.empty_like(w2)
+    groups = -(-max(len(fp), len(fz)) // _LOG_GROUP)
+    out[...] = 0.0
+    with np.errstate(divide="ignore"):
+        for g in range(groups):
+            part = slice(g * _LOG_GROUP, (g + 1) * _LOG_GROUP)
+            has_p = _group_product(w2, fp[part], prod, tmp)
+            if _group_product(w2, fz[part], zprod, tmp):
+                if has_p:
+                    prod /= zprod
+                else:
+                    np.divide(1.0, zprod, out=prod)
+            np.log2(prod, out=prod)
+            out += prod
+    return out
 
 
 @functools.lru_cache(maxsize=64)
@@ -305,13 +310,13 @@ def _analog_unchecked(
     if family == "butterworth":
         return _butterworth(w2, order, out)
     z, p, k = _analog_prototype(family, order, ripple_db, stop_atten_db)
-    prod = np.empty_like(w2)
-    tmp = np.empty_like(w2) if max(p.size, z.size) > 1 else prod
-    # |H|^2 = k^2 prod|jw - z|^2 / prod|jw - p|^2, so A = 10 (log10 P - log10 Z) - 20 log10 k;
-    # the sums are taken in log2, which numpy computes about twice as fast as log10.
-    first = _add_log2_abs2(w2, p, out, 1.0, True, prod, tmp)
-    if z.size:
-        _add_log2_abs2(w2, z, out, -1.0, first, prod, tmp)
+    # Beyond f/fc = 1e15 every prototype is either at its constant high-frequency
+    # asymptote (as many zeros as poles) or more than 300 dB down, so clipping there
+    # changes no result and keeps every product finite.
+    np.minimum(w2, 1e30, out=w2)
+    # |H|^2 = k^2 prod|jw - z|^2 / prod|jw - p|^2, so A = 10 log10(P / Z) - 20 log10 k;
+    # the logarithm is taken in base 2, which numpy computes about twice as fast.
+    _log2_gain_sq_inv(w2, p, z, out)
     out *= 10.0 * _LOG10_2
     out -= 20.0 * math.log10(abs(k))
     return _to_attenuation(out)

@@ -127,6 +127,14 @@ class TestAnalogAttenuationDb:
         got = analog_attenuation_db([null_hz, 1e12], "elliptic", 6, 1000.0, 0.5, 60.0)
         assert np.all(np.isfinite(got)) and np.all(got > 60.0)
         assert np.all(got <= MAX_ATTENUATION_DB)
+        # Far above the cutoff (f/fc = 1e25) an even-order elliptic filter sits on its
+        # constant asymptote and an odd-order Chebyshev II is capped, never NaN.
+        far = analog_attenuation_db([4e7, 1e28], "elliptic", 4, 1000.0, 0.5, 70.0)
+        # Reference: scipy.signal.ellip (0.5 dB, 70 dB) + freqs at 4e4 fc, on the asymptote.
+        want = _freqs_reference_db("elliptic", 4, 1000.0, np.array([4e7]))[0]
+        np.testing.assert_allclose(far, [want, want], atol=1e-6)
+        got = analog_attenuation_db([1e28], "chebyshev2", 5, 1000.0, stop_atten_db=60.0)
+        assert got[0] == MAX_ATTENUATION_DB
         # Shape is kept.
         assert analog_attenuation_db(np.ones((2, 3)), "bessel", 3, 1.0).shape == (2, 3)
 
