@@ -480,7 +480,13 @@ def attribute(
     -----
     Frequency score: ``exp(−½·(d/σ)²)`` with ``d`` the distance of the peak outside the
     tone's folded apparent interval and ``σ = tol/3``; candidates with ``d > tol`` are
-    dropped. Level score: see :func:`_level_score`. Blind family members are scored
+    dropped. Level score with a known tone amplitude: ``exp(−½·(ΔL/level_tolerance)²)``
+    with ``ΔL`` = seen − predicted level in dB (predicted = amplitude × chain gain),
+    times :data:`BELOW_FLOOR_FACTOR` when the prediction is more than
+    :data:`BELOW_FLOOR_DB` below the floor; with an unknown amplitude
+    :data:`UNKNOWN_LEVEL_SCORE`, times ``exp(−½·(x/level_tolerance)²)`` where ``x`` is
+    how far the source would have to exceed the strongest peak by more than 40 dB
+    (seen level + the chain's attenuation). Blind family members are scored
     against ``tol + 3·k·σ(f0)``, times a factor growing with the family's significance.
     A peak above the protected band edge (final rate / 2.56 [3]_) may be the image of
     energy at ``fs − f`` just above the Nyquist frequency [2]_: a ``mirror`` whose
@@ -669,7 +675,10 @@ def _explanation(
     elif family >= 0:
         fam = ctx.families[family]
         label, source = f"{int(harmonic)}×", fam.label
-        what = f"harmonic {int(harmonic)}× of the {fam.label}"
+        what = (
+            f"harmonic {int(harmonic)}× of a {format_hz(fam.fundamental_hz, 4)} harmonic "
+            "family found without sources"
+        )
     else:
         label = source = None
         what = ""
@@ -683,7 +692,7 @@ def _explanation(
         if pred_db < ctx.floor_db[peak] - BELOW_FLOOR_DB:
             level += f", but that is far below the floor ({format_db(ctx.floor_db[peak])})"
     else:
-        level = f"; its level is not given, seen {seen}"
+        level = f"; seen {seen}" if tone < 0 else f"; its level is not given, seen {seen}"
     kind_name = KINDS[kind]
     if kind == _MIRROR:
         sentence = (
@@ -695,7 +704,8 @@ def _explanation(
     elif kind == _ALIAS:
         flip = " (inverted)" if inverted else ""
         sentence = (
-            f"{p} {hedge} the {what} at {format_hz(true_hz, 4)} folded from zone {zone}"
+            f"{p} {hedge} {'the ' if tone >= 0 else ''}{what} at {format_hz(true_hz, 4)} "
+            f"folded from zone {zone}"
             f"{flip}; the chain takes {format_db(atten)} off it{level}"
         )
     elif kind == _FAMILY and tone >= 0:
@@ -735,9 +745,12 @@ def _short(e: Explanation) -> str:
     """A short phrase naming an alternative explanation."""
     if e.kind == "mirror":
         return f"the image of energy at {format_hz(e.true_hz)} (mirror)"
-    what = f"{e.label} of '{e.source}'" if e.tone_index >= 0 else f"{e.label} of the {e.source}"
+    if e.tone_index >= 0:
+        what = f"the {e.label} of '{e.source}'"
+    else:
+        what = f"harmonic {e.label} of the {e.source}"
     if e.kind == "alias":
-        return f"the {what} folded from zone {e.zone} (true {format_hz(e.true_hz, 4)})"
+        return f"{what} folded from zone {e.zone} (true {format_hz(e.true_hz, 4)})"
     return f"{what} (in band)"
 
 
@@ -783,8 +796,6 @@ def _assemble(
             text += f"; or, about as likely, {_short(alts[1])}"
         sentence[i] = text
     in_band = (freq >= band[0]) & (freq <= band[1])
-    for arr in (freq, amp):
-        arr.flags.writeable = False
     return Attribution(
         freq_hz=freq,
         amplitude=amp,

@@ -180,8 +180,8 @@ class Family:
 
     @property
     def label(self) -> str:
-        """Source name for sentences, e.g. ``"harmonic family of 1.10 kHz (blind)"``."""
-        return f"harmonic family of {format_hz(self.fundamental_hz)} (blind)"
+        """Source name for sentences, e.g. ``"harmonic family of 1.100 kHz (blind)"``."""
+        return f"harmonic family of {format_hz(self.fundamental_hz, 4)} (blind)"
 
     @property
     def peaks(self) -> IntArray:

@@ -398,7 +398,7 @@ class TestAttributeSimulated:
             # Source: DESIGN.md §5 fold formula |f − fs·round(f/fs)|
             i = nearest_peak(p, abs(true - FS * round(true / FS)))
             assert at.verdict[i] == "alias", at.explanation[i]
-            assert at.source[i] == "harmonic family of 1.10 kHz (blind)"
+            assert at.source[i] == "harmonic family of 1.100 kHz (blind)"
             assert at.true_hz[i] == pytest.approx(true, abs=bw)
             assert at.zone[i] == int(np.ceil(true / (FS / 2)))
         i = nearest_peak(p, 3 * f0)

@@ -58,7 +58,7 @@ class TestFindFamilies:
             assert m.aliased == (true > FS / 2)
             assert m.inverted == (m.zone % 2 == 0)
         assert fam.p_value < 1e-4
-        assert fam.label == "harmonic family of 1.10 kHz (blind)"
+        assert fam.label == "harmonic family of 1.100 kHz (blind)"
 
     def test_simulated(self) -> None:
         """A record simulated with numpy (no anti-alias filter): family and its aliases."""
