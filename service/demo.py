@@ -111,3 +111,67 @@ def demo_sliced_chain() -> list[dict[str, Any]]:
         {"stage": "sample", "rate_hz": 12_800.0},
         {"stage": "decimate", "factor": 2, "filter": "none"},
     ]
+
+
+def demo_time_record(
+    rpm: float = DEMO_RPM, seconds: float = 4.0, sliced: bool = False, seed: int = 1
+) -> tuple[Any, float]:
+    """A synthetic accelerometer record of the bench, made by the app itself.
+
+    Each tone (from the demo sources, amplitudes invented) is weighted by the analog
+    filter's response and sampled at its true frequency at the converter's instants, so
+    aliasing happens exactly as in a real capture. With ``sliced`` the record is then
+    decimated by 2 by slicing, as the second channel's script does. Unknown harmonic
+    amplitudes are set to a fifth of their source's main line.
+    """
+    import numpy as np
+
+    from .core.chain import Chain
+    from .core.sources import expand_sources, source_from_dict
+    from .api.schemas import AnalogFilterIn
+
+    tones = expand_sources([source_from_dict(s) for s in demo_sources(rpm)])
+    amp = tones.amplitude.copy()
+    for src in set(tones.source.tolist()):
+        sel = tones.source == src
+        main = np.nanmax(amp[sel]) if np.any(np.isfinite(amp[sel])) else 0.01
+        amp[sel & ~np.isfinite(amp)] = 0.2 * main
+    rate = 12_800.0
+    chain = Chain.shorthand(rate, AnalogFilterIn(**demo_anti_alias()).to_core())
+    gain = 10.0 ** (-chain.evaluate(tones.freq_hz).attenuation_db / 20.0)
+    rng = np.random.default_rng(seed)
+    n = int(seconds * rate)
+    t = np.arange(n) / rate
+    phase = rng.uniform(0, 2 * np.pi, len(tones))
+    x = np.zeros(n)
+    for f, a, p in zip(tones.freq_hz, amp * gain, phase, strict=True):
+        x += a * np.cos(2 * np.pi * f * t + p)
+    x += rng.normal(0.0, 2e-4, n)
+    if sliced:
+        return x[::2], rate / 2
+    return x, rate
+
+
+def demo_spectrum(lines: int = 1600, sliced: bool = False) -> tuple[Any, Any, float]:
+    """The demo record's averaged amplitude spectrum: (freq_hz, amplitude, rate)."""
+    from .core.spectrum import amplitude_spectrum
+
+    x, rate = demo_time_record(sliced=sliced)
+    s = amplitude_spectrum(x, rate, lines=lines)
+    return s.freq_hz, s.amplitude, rate
+
+
+def demo_diagnose_request(lines: int = 1600) -> dict[str, Any]:
+    """A diagnose request for the bench's main channel with its demo spectrum."""
+    f, a, rate = demo_spectrum(lines)
+    return {
+        "sample_rate_hz": rate,
+        "anti_alias": demo_anti_alias(),
+        "spectrum": {
+            "freq_hz": [round(float(v), 4) for v in f],
+            "amplitude": [float(f"{v:.5g}") for v in a],
+            "unit": "linear",
+        },
+        "sources": demo_sources(),
+        "speed_tolerance_pct": 1.0,
+    }

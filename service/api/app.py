@@ -14,7 +14,7 @@ from ..config import Settings, get_settings
 from .bodies import ResponseCache
 from .examples import install_examples
 from .problems import install_problem_handlers
-from .routes import diagnoses, fold, health
+from .routes import diagnose, diagnoses, fold, health
 from .store_access import StoreAccess
 
 __all__ = ["create_app"]
@@ -61,6 +61,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     install_problem_handlers(app)
     app.include_router(health.router)
     app.include_router(fold.router)
+    app.include_router(diagnose.router)
     app.include_router(diagnoses.router)
     install_examples(app, settings)
     return app

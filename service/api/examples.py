@@ -6,7 +6,14 @@ from typing import Any
 
 from fastapi import Body
 
-from ..demo import DEMO_RPM, demo_anti_alias, demo_fold_request, demo_sliced_chain
+from ..demo import (
+    DEMO_RPM,
+    demo_anti_alias,
+    demo_diagnose_request,
+    demo_fold_request,
+    demo_sliced_chain,
+    demo_spectrum,
+)
 from .bodies import register_models
 from .schemas import FoldIn
 
@@ -34,6 +41,43 @@ FOLD_EXAMPLES: dict[str, Any] = {
 }
 
 
+def _short_spectrum(sliced: bool = False) -> dict[str, Any]:
+    f, a, _ = demo_spectrum(lines=400, sliced=sliced)
+    return {
+        "freq_hz": [round(float(v), 3) for v in f],
+        "amplitude": [float(f"{v:.4g}") for v in a],
+        "unit": "linear",
+    }
+
+
+DIAGNOSE_EXAMPLES: dict[str, Any] = {
+    "drive_unit": {
+        "summary": "Drive-unit bench, main channel, with its known sources",
+        "description": "A 400-line spectrum of the bench at 9000 rpm (synthetic, made by the "
+        "app from the invented demo scenario).",
+        "value": {**demo_diagnose_request(lines=400), "spectrum": _short_spectrum()},
+    },
+    "blind": {
+        "summary": "Same spectrum, no sources: blind harmonic family search",
+        "value": {
+            "sample_rate_hz": 12_800.0,
+            "anti_alias": demo_anti_alias(),
+            "spectrum": _short_spectrum(),
+        },
+    },
+}
+
+COMPARE_EXAMPLES: dict[str, Any] = {
+    "two_channels": {
+        "summary": "Main channel (12.8 kS/s) against the sliced channel (6.4 kS/s)",
+        "value": {
+            "a": {"sample_rate_hz": 12_800.0, "spectrum": _short_spectrum()},
+            "b": {"sample_rate_hz": 6_400.0, "spectrum": _short_spectrum(sliced=True)},
+        },
+    }
+}
+
+
 def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     """Real responses to the first example of each endpoint, computed by the app itself so
     the documentation can never drift from the code. Long lists are shortened."""
@@ -44,7 +88,25 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
         t for t in fold["tones"] if not t["aliased"]
     ][:2]
     fold["collisions"] = fold["collisions"][:3]
-    return {("/api/v1/fold", "post"): fold}
+    from .diagnose_schemas import CompareIn, DiagnoseIn
+    from .diagnosis import compare_payload, diagnose_payload
+
+    diag, _ = diagnose_payload(
+        DiagnoseIn.model_validate(DIAGNOSE_EXAMPLES["drive_unit"]["value"]), settings
+    )
+    diag["peaks"] = [p for p in diag["peaks"] if p["verdict"] == "alias"][:2] + [
+        p for p in diag["peaks"] if p["verdict"] == "direct"
+    ][:1]
+    cmp, _ = compare_payload(
+        CompareIn.model_validate(COMPARE_EXAMPLES["two_channels"]["value"]), settings
+    )
+    for side in ("a", "b"):
+        cmp[side]["peaks"] = cmp[side]["peaks"][:3]
+    return {
+        ("/api/v1/fold", "post"): fold,
+        ("/api/v1/diagnose", "post"): diag,
+        ("/api/v1/compare-rates", "post"): cmp,
+    }
 
 
 def install_examples(app: Any, settings: Any) -> None:
@@ -55,7 +117,9 @@ def install_examples(app: Any, settings: Any) -> None:
         if app.openapi_schema:
             return app.openapi_schema  # type: ignore[no-any-return]
         schema = original()
-        register_models(schema, [FoldIn])
+        from .diagnose_schemas import CompareIn, DiagnoseIn
+
+        register_models(schema, [FoldIn, DiagnoseIn, CompareIn])
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]
             content = op["responses"]["200"].setdefault("content", {})

@@ -1,0 +1,434 @@
+"""Plan requests in, the core planner and run-up, plain JSON-ready dicts out.
+
+Shared by POST /api/v1/plan and ``foldwise plan`` so both give the same answer.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
+
+import numpy as np
+
+from .. import COMPUTATION_VERSION
+from ..config import Settings
+from ..core import planning as pl
+from ..core.chain import SensorResonance
+from ..core.tones import ToneSet
+from .caution import CAUTION
+from .compute import tones_from_request
+from .plan_schemas import FilterIn, PlanIn
+from .problems import Problem
+
+__all__ = [
+    "PLAN_MAX_TONES",
+    "PlanProblem",
+    "plan_payload",
+    "plan_request_from_model",
+    "plan_to_dict",
+    "runup_payload",
+]
+
+#: Most tones one plan evaluates (each is followed over the whole speed grid for every
+#: candidate rate); the service's own ``max_tones`` applies when it is lower.
+PLAN_MAX_TONES = 20_000
+#: Largest run-up computed: lines × speed points.
+RUNUP_MAX_VALUES = 2_000_000
+#: Largest run-up sent: lines × points per array (the grid is thinned evenly to fit).
+RUNUP_JSON_VALUES = 200_000
+RUNUP_JSON_POINTS = 500
+RUNUP_MAX_CROSSINGS = 1000
+RUNUP_MAX_FOLD_LINES_PER_LINE = 200
+
+
+class PlanProblem(Problem):
+    """A 422 problem for a plan no offered setup can meet, with what would make it possible.
+
+    The body gains a ``suggestions`` member: a list of sentences.
+    """
+
+    def __init__(self, detail: str, suggestions: list[str], *, field: str) -> None:
+        super().__init__(
+            422, detail, field=field, title="No setup meets the requirements", kind="plan-impossible"
+        )
+        self.suggestions = suggestions
+
+    def body(self, instance: str | None = None) -> dict[str, Any]:
+        out = super().body(instance)
+        out["suggestions"] = list(self.suggestions)
+        return out
+
+
+# --------------------------------------------------------------------------- errors
+
+# Core parameter names → request fields.
+_CORE_FIELDS = {
+    "band_hz": "band_hz",
+    "speed_range": "speed_range_rpm",
+    "tolerance_pct": "speed_tolerance_pct",
+    "nominal_rpm": "nominal_rpm",
+    "rejection_db": "rejection_db",
+    "floor": "floor",
+    "bin_width_hz": "bin_width_hz",
+    "resolve": "resolve",
+    "window": "window",
+    "rates_hz": "rates_hz",
+    "rate_series": "rate_series",
+    "lines_options": "lines_options",
+    "averages": "averages",
+    "overlap_pct": "overlap_pct",
+    "max_band_loss_db": "max_band_loss_db",
+    "orders_of_interest": "runup.orders_of_interest",
+    "tolerance_hz": "runup.tolerance_hz",
+    "speed_factors": "runup.n_speeds",
+    "tones": "tones",
+}
+_LEADING = re.compile(r"^([A-Za-z_]+)((?:\[\d+\])*)[= ]")
+_WORD = re.compile(r"[A-Za-z_]+")
+
+
+def _field_of(message: str, default: str) -> str:
+    """The request field a core ``ValueError`` message is about."""
+    m = _LEADING.match(message)
+    if m and m.group(1) in _CORE_FIELDS:
+        return _CORE_FIELDS[m.group(1)] + m.group(2)
+    if "meet in frequency" in message:
+        return "resolve"
+    for word in _WORD.findall(message):
+        if "_" in word and word in _CORE_FIELDS:
+            return _CORE_FIELDS[word]
+    return default
+
+
+@contextmanager
+def _core_errors(default: str) -> Iterator[None]:
+    """A core ``ValueError`` becomes a 422 problem naming the request field."""
+    try:
+        yield
+    except pl.PlanImpossible:
+        raise
+    except ValueError as exc:
+        msg = str(exc)
+        raise Problem(422, msg, field=_field_of(msg, default)) from exc
+
+
+def _impossible(exc: pl.PlanImpossible, req: PlanIn) -> PlanProblem:
+    msg = str(exc)
+    if msg.startswith("no listed rate covers"):
+        field = "rates_hz" if req.rates_hz is not None else "rate_series"
+    elif msg.startswith("no listed setup meets the resolution"):
+        field = "bin_width_hz" if req.resolve is None else "resolve"
+        if req.bin_width_hz is not None and req.resolve is not None and "requested" in msg:
+            field = "bin_width_hz"
+    elif msg.startswith("every listed filter"):
+        field = "filters"
+    else:
+        field = "rejection_db" if req.rejection_db is not None else "floor"
+    tips = list(exc.suggestions)
+    detail = msg
+    if tips:
+        detail += ". What would make it possible: " + "; ".join(tips) + "."
+    return PlanProblem(detail, tips, field=field)
+
+
+# --------------------------------------------------------------------------- request
+
+
+def _filter_option(f: FilterIn) -> pl.FilterOption:
+    return pl.FilterOption(
+        family=f.family,
+        order=f.order or 0,
+        ripple_db=f.ripple_db,
+        stop_atten_db=f.stop_atten_db,
+        cutoff_hz=f.cutoff_hz,
+        cutoff_fraction=f.cutoff_fraction,
+        table_hz=tuple(f.table_hz) if f.table_hz is not None else None,
+        table_gain_db=tuple(f.table_gain_db) if f.table_gain_db is not None else None,
+        name=f.name,
+    )
+
+
+def _speed_range(req: PlanIn) -> tuple[float, float]:
+    if req.speed_range_rpm is not None:
+        assert req.nominal_rpm is not None  # checked by PlanIn
+        lo, hi = req.speed_range_rpm
+        return (lo / req.nominal_rpm, hi / req.nominal_rpm)
+    if req.speed_tolerance_pct is not None:
+        with _core_errors("speed_tolerance_pct"):
+            return pl.speed_range_from_tolerance(req.speed_tolerance_pct)
+    return (1.0, 1.0)
+
+
+def plan_request_from_model(
+    req: PlanIn, max_tones: int = PLAN_MAX_TONES, tones: ToneSet | None = None
+) -> pl.PlanRequest:
+    """The core request a validated :class:`PlanIn` describes.
+
+    ``tones`` may be passed when already expanded from the request; otherwise the tones
+    and sources are expanded here (at most ``max_tones``).
+    """
+    if tones is None:
+        tones = tones_from_request(req, min(max_tones, PLAN_MAX_TONES))  # type: ignore[arg-type]
+    filters = None
+    if req.filters is not None:
+        opts = []
+        for i, f in enumerate(req.filters):
+            with _core_errors(f"filters[{i}]"):
+                opts.append(_filter_option(f))
+        filters = tuple(opts)
+    sensor = None
+    if req.sensor is not None:
+        with _core_errors("sensor"):
+            sensor = SensorResonance(natural_hz=req.sensor.natural_hz, q=req.sensor.q)
+    extra: dict[str, Any] = {}
+    if req.lines_options is not None:
+        extra["lines_options"] = tuple(req.lines_options)
+    return pl.PlanRequest(
+        tones=tones,
+        band_hz=(float(req.band_hz[0]), float(req.band_hz[1])),
+        rejection_db=req.rejection_db,
+        floor=req.floor,
+        speed_range=_speed_range(req),
+        nominal_rpm=req.nominal_rpm,
+        bin_width_hz=req.bin_width_hz,
+        resolve=req.resolve,
+        window=req.window,
+        rates_hz=tuple(req.rates_hz) if req.rates_hz is not None else None,
+        rate_series=req.rate_series or "converter",
+        filters=filters,
+        averages=req.averages,
+        overlap_pct=req.overlap_pct,
+        max_band_loss_db=req.max_band_loss_db,
+        sensor=sensor,
+        **extra,
+    )
+
+
+# --------------------------------------------------------------------------- output
+
+
+def _num(x: Any) -> float | None:
+    """A finite float, or None (NaN and infinities are not JSON)."""
+    if x is None:
+        return None
+    v = float(x)
+    return v if math.isfinite(v) else None
+
+
+def _filter_dict(opt: pl.FilterOption, cutoff_hz: float | None) -> dict[str, Any]:
+    return {
+        "name": opt.describe(cutoff_hz),
+        "family": opt.family,
+        "order": opt.order,
+        "ripple_db": opt.ripple_db,
+        "stop_atten_db": opt.stop_atten_db,
+        "cutoff_hz": opt.cutoff_hz,
+        "cutoff_fraction": opt.cutoff_fraction,
+    }
+
+
+def _rpm(speed_factor: float, nominal_rpm: float | None) -> float | None:
+    if nominal_rpm is None or not math.isfinite(speed_factor):
+        return None
+    return speed_factor * nominal_rpm
+
+
+def plan_to_dict(p: pl.Plan, tones: ToneSet, nominal_rpm: float | None) -> dict[str, Any]:
+    """The JSON body of a plan (without run-up, caution and version)."""
+    rec = p.record
+    recommendation = {
+        "sample_rate_hz": p.sample_rate_hz,
+        "filter": _filter_dict(p.filter, p.cutoff_hz),
+        "cutoff_hz": p.cutoff_hz,
+        "chain": p.chain.describe(),
+        "stages": list(p.chain.stage_names),
+        "lines": rec.lines,
+        "span_hz": rec.span_hz,
+        "bin_width_hz": rec.bin_width_hz,
+        "required_bin_hz": p.required_bin_hz,
+        "record_s": rec.record_s,
+        "samples": rec.samples,
+        "averages": rec.averages,
+        "overlap_pct": rec.overlap_pct,
+        "total_s": rec.total_s,
+        "window": p.window,
+        "mainlobe_bins": p.mainlobe_bins,
+        "limit_db": p.limit_db,
+        "reference_db": p.reference_db,
+        "worst_margin_db": _num(p.worst_margin_db),
+        "band_loss_db": p.band_loss_db,
+    }
+    tone_rows = [
+        {
+            "label": t.label,
+            "source": t.source,
+            "aliases_into_band": t.aliases_into_band,
+            "true_hz": _num(t.true_hz),
+            "apparent_hz": _num(t.apparent_hz),
+            "zone": t.zone if t.aliases_into_band else None,
+            "speed_factor": _num(t.speed_factor),
+            "rpm": _num(t.rpm),
+            "level_db": _num(t.level_db),
+            "margin_db": _num(t.margin_db),
+            "amplitude_assumed": t.amplitude_assumed,
+        }
+        for t in p.tones
+    ]
+    rejected = []
+    for r in p.rejected:
+        i = r.tone_index
+        rejected.append(
+            {
+                "sample_rate_hz": r.sample_rate_hz,
+                "filter": _filter_dict(r.filter, r.cutoff_hz),
+                "cutoff_hz": r.cutoff_hz,
+                "failure": r.failure,
+                "reason": r.reason,
+                "tone": None if i is None else str(tones.label[i]),
+                "tone_source": None if i is None else str(tones.source[i]),
+                "apparent_hz": _num(r.apparent_hz),
+                "excess_db": _num(r.excess_db),
+                "speed_factor": _num(r.speed_factor),
+                "rpm": _num(_rpm(r.speed_factor, nominal_rpm)),
+            }
+        )
+    lo, hi = p.speed_range
+    return {
+        "band_hz": list(p.band_hz),
+        "speed_range": {
+            "factor": [lo, hi],
+            "rpm": None if nominal_rpm is None else [lo * nominal_rpm, hi * nominal_rpm],
+        },
+        "recommendation": recommendation,
+        "tones": tone_rows,
+        "rejected": rejected,
+        "residual_risk": list(p.residual_risk),
+    }
+
+
+def _runup_dict(ru: pl.RunUp, max_crossings: int) -> dict[str, Any]:
+    s_n, l_n = ru.apparent_hz.shape
+    points = min(s_n, RUNUP_JSON_POINTS, max(50, RUNUP_JSON_VALUES // max(1, l_n)))
+    keep = np.unique(np.rint(np.linspace(0, s_n - 1, points)).astype(np.int64))
+    interest = np.zeros(l_n, dtype=bool)
+    interest[ru.interest] = True
+    app = np.round(ru.apparent_hz[keep], 2).T.tolist()
+    zone = ru.zone[keep].T.tolist()
+    fl = ru.fold_lines
+    fl_rpm = fl.rpm if fl.rpm is not None else np.full(fl.speed_factor.size, np.nan)
+    per_line: list[list[dict[str, Any]]] = [[] for _ in range(l_n)]
+    for j, s, r, f, m in zip(
+        fl.tone_index.tolist(),
+        fl.speed_factor.tolist(),
+        fl_rpm.tolist(),
+        fl.true_hz.tolist(),
+        fl.multiple.tolist(),
+        strict=True,
+    ):
+        if len(per_line[j]) < RUNUP_MAX_FOLD_LINES_PER_LINE:
+            per_line[j].append(
+                {"speed_factor": s, "rpm": _num(r), "true_hz": f, "multiple": int(m)}
+            )
+    lines = [
+        {
+            "label": ru.label[j],
+            "source": ru.source[j],
+            "interest": bool(interest[j]),
+            "apparent_hz": app[j],
+            "zone": zone[j],
+            "fold_lines": per_line[j],
+        }
+        for j in range(l_n)
+    ]
+    c = ru.crossings
+    n_c = min(c.speed_factor.size, max_crossings)
+    c_rpm = c.rpm if c.rpm is not None else np.full(c.speed_factor.size, np.nan)
+    crossings = [
+        {
+            "speed_factor": float(c.speed_factor[k]),
+            "rpm": _num(c_rpm[k]),
+            "apparent_hz": float(c.apparent_hz[k]),
+            "alias_label": ru.label[int(c.alias_index[k])],
+            "alias_source": ru.source[int(c.alias_index[k])],
+            "crossed_label": ru.label[int(c.crossed_index[k])],
+            "crossed_source": ru.source[int(c.crossed_index[k])],
+            "alias_level": _num(c.alias_level[k]),
+            "crossed_level": _num(c.crossed_level[k]),
+            "touching": bool(c.touching[k]),
+        }
+        for k in range(n_c)
+    ]
+    return {
+        "speed_factor": np.round(ru.speed_factor[keep], 6).tolist(),
+        "rpm": None if ru.rpm is None else np.round(ru.rpm[keep], 2).tolist(),
+        "points_computed": int(s_n),
+        "final_rate_hz": ru.final_rate_hz,
+        "tolerance_hz": ru.tolerance_hz,
+        "band_hz": list(ru.band_hz),
+        "lines": lines,
+        "fold_lines_total": int(fl.total),
+        "crossings": crossings,
+        "crossings_total": int(c.total),
+    }
+
+
+def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
+    """The run-up through the plan's recommended chain, as asked for in ``req.runup``."""
+    assert req.runup is not None
+    lo, hi = plan.speed_range
+    if hi <= lo:
+        raise Problem(
+            422,
+            "a run-up needs a speed range: give speed_range_rpm (with nominal_rpm) or "
+            "speed_tolerance_pct above 0",
+            field="runup",
+        )
+    n = req.runup.n_speeds
+    n_lines = len(tones) + sum(
+        not isinstance(x, str) for x in (req.runup.orders_of_interest or ())
+    )
+    if n * n_lines > RUNUP_MAX_VALUES:
+        limit = max(2, RUNUP_MAX_VALUES // n_lines)
+        raise Problem(
+            422,
+            f"a run-up of {n_lines} lines at {n} speeds is more than the limit of "
+            f"{RUNUP_MAX_VALUES:,} values; use n_speeds <= {limit} or fewer sources",
+            field="runup.n_speeds",
+            value=n,
+            limit=limit,
+        )
+    with _core_errors("runup"):
+        ru = pl.run_up(
+            tones,
+            plan.chain,
+            np.linspace(lo, hi, n),
+            nominal_rpm=req.nominal_rpm,
+            band_hz=plan.band_hz,
+            orders_of_interest=req.runup.orders_of_interest,
+            lines=plan.record.lines,
+            tolerance_hz=req.runup.tolerance_hz,
+        )
+    return _runup_dict(ru, RUNUP_MAX_CROSSINGS)
+
+
+def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
+    """Plan (and, when asked, the run-up) for a validated request, as plain JSON data.
+
+    Raises :class:`Problem` for input the core rejects (naming the field) and
+    :class:`PlanProblem` (422, with ``suggestions``) when no offered setup works.
+    """
+    tones = tones_from_request(req, min(settings.max_tones, PLAN_MAX_TONES))  # type: ignore[arg-type]
+    core_req = plan_request_from_model(req, tones=tones)
+    try:
+        with _core_errors("body"):
+            result = pl.plan(core_req)
+    except pl.PlanImpossible as exc:
+        raise _impossible(exc, req) from exc
+    out = plan_to_dict(result, tones, req.nominal_rpm)
+    out["runup"] = runup_payload(req, result, tones) if req.runup is not None else None
+    out["caution"] = CAUTION
+    out["computation_version"] = COMPUTATION_VERSION
+    return out

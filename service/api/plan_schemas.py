@@ -1,0 +1,468 @@
+"""Request and response models of POST /api/v1/plan (``PlanIn`` / ``PlanOut``), and its
+worked examples from the invented demo scenario. Field names are a contract under /api/v1.
+
+Cross-field rules are checked in field validators (not one model validator) so that an
+error names the field it is about, e.g. ``floor`` when both ``rejection_db`` and
+``floor`` are given.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, Field, ValidationInfo, field_validator
+
+from ..demo import demo_sources
+from .schemas import Hz, HzOrZero, Label, StrictModel, ToneIn
+from .source_schemas import SourceIn
+
+__all__ = [
+    "PLAN_EXAMPLES",
+    "FilterIn",
+    "PlanIn",
+    "PlanOut",
+    "RunUpIn",
+    "SensorIn",
+    "demo_plan_request",
+]
+
+#: Limits on list lengths (kept well inside the core's own limits).
+MAX_RATES = 200
+MAX_FILTERS = 50
+MAX_SOURCES = 500
+MAX_TONES_IN = 100_000
+MAX_LINES_OPTIONS = 64
+MAX_ORDERS_OF_INTEREST = 100
+MAX_RUNUP_SPEEDS = 5000
+
+Rpm = Annotated[float, Field(ge=0, le=6e6, allow_inf_nan=False, description="rpm, >= 0")]
+Lines = Annotated[int, Field(ge=1, le=1_048_576, description="Analysis lines")]
+Order = Annotated[float, Field(gt=0, le=1000, allow_inf_nan=False, description="Order, > 0")]
+
+PlanFilterFamily = Literal[
+    "none", "butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic", "table"
+]
+Window = Literal["rectangular", "hann", "hamming", "blackmanharris", "flattop"]
+
+
+class FilterIn(StrictModel):
+    """One analog anti-alias filter the planner may choose."""
+
+    family: PlanFilterFamily = Field(
+        description="'none' (no filter), a design family, or 'table' (a measured response)"
+    )
+    order: int | None = Field(
+        None,
+        ge=0,
+        le=20,
+        validate_default=True,
+        description="Order, 1 to 20 for a design family; 0 or absent otherwise",
+    )
+    ripple_db: float | None = Field(
+        None, gt=0, le=6, allow_inf_nan=False, description="Passband ripple, dB"
+    )
+    stop_atten_db: float | None = Field(
+        None, gt=0, le=200, allow_inf_nan=False, description="Stopband attenuation, dB"
+    )
+    cutoff_hz: Hz | None = Field(
+        None, description="A fixed cutoff, Hz (does not follow the sample rate)"
+    )
+    cutoff_fraction: float | None = Field(
+        None,
+        gt=0,
+        le=0.5,
+        allow_inf_nan=False,
+        description="Cutoff as a fraction of the sample rate, e.g. 0.390625 for fs/2.56. With "
+        "neither cutoff the cutoff sits at the band's upper edge",
+    )
+    table_hz: list[Hz] | None = Field(
+        None, min_length=2, max_length=10_000, description="Measured response: Hz"
+    )
+    table_gain_db: list[Annotated[float, Field(ge=-400, le=400, allow_inf_nan=False)]] | None = (
+        Field(None, min_length=2, max_length=10_000, description="Measured response: gain, dB")
+    )
+    name: str = Field("", max_length=200, description="Display name (for a measured table)")
+
+    @field_validator("order")
+    @classmethod
+    def _order_needed(cls, v: int | None, info: ValidationInfo) -> int | None:
+        fam = info.data.get("family")
+        if fam in ("none", "table"):
+            if v not in (None, 0):
+                raise ValueError(f"order={v} does not apply to family {fam!r}; leave it out")
+        elif fam is not None and not v:
+            raise ValueError(f"a {fam} filter needs an order between 1 and 20")
+        return v
+
+    @field_validator("cutoff_fraction")
+    @classmethod
+    def _one_cutoff(cls, v: float | None, info: ValidationInfo) -> float | None:
+        if v is not None and info.data.get("cutoff_hz") is not None:
+            raise ValueError("give cutoff_hz or cutoff_fraction, not both")
+        return v
+
+
+class SensorIn(StrictModel):
+    """Mounted sensor resonance ahead of the filter (it can lift an alias)."""
+
+    natural_hz: Hz = Field(description="Mounted resonance, Hz")
+    q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
+
+
+class RunUpIn(StrictModel):
+    """Ask for the run-up through the recommended chain."""
+
+    orders_of_interest: list[Label | Order] | None = Field(
+        None,
+        max_length=MAX_ORDERS_OF_INTEREST,
+        description="Lines an alias must not hide: tone labels ('label' or 'source: label') "
+        "or numeric orders of the nominal shaft speed (need nominal_rpm). Default: every "
+        "tone while it is direct",
+    )
+    n_speeds: int = Field(
+        200, ge=2, le=MAX_RUNUP_SPEEDS, description="Points of the speed grid, 2 to 5000"
+    )
+    tolerance_hz: Hz | None = Field(
+        None, description="How close two lines must come to count as crossing, Hz; default "
+        "one bin of the recommended setup"
+    )
+
+
+class PlanIn(StrictModel):
+    """Choose the cheapest sample rate and anti-alias filter for the given sources."""
+
+    band_hz: tuple[HzOrZero, HzOrZero] = Field(description="Band of interest [low, high], Hz")
+    tones: list[ToneIn] | None = Field(
+        None, min_length=1, max_length=MAX_TONES_IN, description="Explicit tones"
+    )
+    sources: list[SourceIn] | None = Field(
+        None,
+        min_length=1,
+        max_length=MAX_SOURCES,
+        validate_default=True,
+        description="Machine sources expanded into tones, given at nominal_rpm",
+    )
+    nominal_rpm: float | None = Field(
+        None,
+        gt=0,
+        le=6e6,
+        allow_inf_nan=False,
+        description="The speed, rpm, at which the sources are given; needed for "
+        "speed_range_rpm and numeric orders of interest",
+    )
+    speed_range_rpm: tuple[Rpm, Rpm] | None = Field(
+        None, description="Speeds to plan for [min, max], rpm (needs nominal_rpm)"
+    )
+    speed_tolerance_pct: float | None = Field(
+        None,
+        ge=0,
+        le=99,
+        allow_inf_nan=False,
+        description="Instead of speed_range_rpm: ± this many percent of nominal speed",
+    )
+    rejection_db: float | None = Field(
+        None,
+        ge=0,
+        le=300,
+        allow_inf_nan=False,
+        description="Required alias rejection, dB below the strongest in-band tone",
+    )
+    floor: float | None = Field(
+        None,
+        gt=0,
+        le=1e12,
+        allow_inf_nan=False,
+        validate_default=True,
+        description="Instead of rejection_db: the highest allowed alias level, amplitude unit",
+    )
+    bin_width_hz: Hz | None = Field(None, description="Required bin width, Hz (at most this)")
+    resolve: tuple[Label, Label] | None = Field(
+        None,
+        description="Two tones ('label' or 'source: label') that must be resolved at every "
+        "speed in the range",
+    )
+    window: Window = Field("hann", description="Analysis window (sets the main-lobe width)")
+    rates_hz: list[Hz] | None = Field(
+        None, min_length=1, max_length=MAX_RATES, description="Candidate sample rates, Hz"
+    )
+    rate_series: Literal["converter", "analyser"] | None = Field(
+        None,
+        description="Instead of rates_hz: a common series (default 'converter': 1 kS/s to "
+        "262.144 kS/s; 'analyser': 2.56 × 1-2-5 spans)",
+    )
+    filters: list[FilterIn] | None = Field(
+        None,
+        min_length=1,
+        max_length=MAX_FILTERS,
+        description="Candidate anti-alias filters; default none, Butterworth 2/4/6/8, "
+        "Chebyshev I 8, elliptic 8, cutoff at the band edge",
+    )
+    lines_options: list[Lines] | None = Field(
+        None,
+        min_length=1,
+        max_length=MAX_LINES_OPTIONS,
+        description="Analysis lines on offer; default 100·2^n, 100 to 102,400",
+    )
+    averages: int = Field(1, ge=1, le=100_000, description="Records averaged")
+    overlap_pct: float = Field(
+        0.0, ge=0, lt=100, allow_inf_nan=False, description="Overlap of records, %"
+    )
+    max_band_loss_db: float = Field(
+        3.1,
+        ge=0,
+        le=100,
+        allow_inf_nan=False,
+        description="Largest filter loss allowed inside the band, dB",
+    )
+    sensor: SensorIn | None = Field(None, description="Mounted sensor resonance, if any")
+    runup: RunUpIn | None = Field(
+        None, description="Include the run-up through the recommended chain"
+    )
+
+    @field_validator("band_hz")
+    @classmethod
+    def _band_order(cls, v: tuple[float, float]) -> tuple[float, float]:
+        if v[1] <= v[0]:
+            raise ValueError(f"band_hz={list(v)} must be [low, high] with low < high")
+        return v
+
+    @field_validator("sources")
+    @classmethod
+    def _something_to_plan(cls, v: list[Any] | None, info: ValidationInfo) -> list[Any] | None:
+        if v is None and "tones" in info.data and info.data["tones"] is None:
+            raise ValueError("give at least one tone in tones or one source in sources")
+        return v
+
+    @field_validator("speed_range_rpm")
+    @classmethod
+    def _speed_range(
+        cls, v: tuple[float, float] | None, info: ValidationInfo
+    ) -> tuple[float, float] | None:
+        if v is None:
+            return v
+        if v[1] < v[0]:
+            raise ValueError(f"speed_range_rpm={list(v)} must be [min, max] with min <= max")
+        if "nominal_rpm" not in info.data:
+            return v  # nominal_rpm itself failed; that error is reported
+        nominal = info.data["nominal_rpm"]
+        if nominal is None:
+            raise ValueError(
+                "speed_range_rpm needs nominal_rpm, the speed at which the sources are given"
+            )
+        if v[1] > 100 * nominal:
+            raise ValueError(
+                f"speed_range_rpm max {v[1]:g} must be <= 100 × nominal_rpm ({100 * nominal:g})"
+            )
+        return v
+
+    @field_validator("speed_tolerance_pct")
+    @classmethod
+    def _one_speed_spec(cls, v: float | None, info: ValidationInfo) -> float | None:
+        if v is not None and info.data.get("speed_range_rpm") is not None:
+            raise ValueError("give speed_range_rpm or speed_tolerance_pct, not both")
+        return v
+
+    @field_validator("floor")
+    @classmethod
+    def _one_requirement(cls, v: float | None, info: ValidationInfo) -> float | None:
+        if "rejection_db" not in info.data:
+            return v  # rejection_db itself failed; that error is reported
+        rej = info.data["rejection_db"]
+        if v is not None and rej is not None:
+            raise ValueError(
+                "give rejection_db (dB below the strongest in-band tone) or floor "
+                "(absolute level), not both"
+            )
+        if v is None and rej is None:
+            raise ValueError(
+                "give rejection_db (dB below the strongest in-band tone) or floor "
+                "(absolute alias level in the amplitude unit)"
+            )
+        return v
+
+    @field_validator("resolve")
+    @classmethod
+    def _two_tones(cls, v: tuple[str, str] | None) -> tuple[str, str] | None:
+        if v is not None and v[0] == v[1]:
+            raise ValueError(f"resolve names the same tone twice ({v[0]!r})")
+        return v
+
+    @field_validator("rate_series")
+    @classmethod
+    def _one_rate_spec(cls, v: str | None, info: ValidationInfo) -> str | None:
+        if v is not None and info.data.get("rates_hz") is not None:
+            raise ValueError("give rates_hz or rate_series, not both")
+        return v
+
+
+# --------------------------------------------------------------------------- responses
+
+
+class FilterOut(BaseModel):
+    name: str = Field(description="Readable, e.g. '4th-order Butterworth at 5 kHz'")
+    family: str
+    order: int
+    ripple_db: float | None = None
+    stop_atten_db: float | None = None
+    cutoff_hz: float | None = Field(None, description="Fixed cutoff as offered, Hz")
+    cutoff_fraction: float | None = Field(None, description="Cutoff as offered, fraction of fs")
+
+
+class RecommendationOut(BaseModel):
+    sample_rate_hz: float
+    filter: FilterOut
+    cutoff_hz: float | None = Field(description="The filter's cutoff at this rate, Hz")
+    chain: list[dict[str, Any]] = Field(description="The chain, stage by stage")
+    stages: list[str] = Field(description="The chain, one readable name per stage")
+    lines: int
+    span_hz: float
+    bin_width_hz: float
+    required_bin_hz: float | None = Field(description="Widest bin the resolution allows, Hz")
+    record_s: float
+    samples: int
+    averages: int
+    overlap_pct: float
+    total_s: float
+    window: str
+    mainlobe_bins: float
+    limit_db: float = Field(description="Highest allowed alias level, dB re one unit")
+    reference_db: float | None = Field(description="Strongest in-band tone, dB re one unit")
+    worst_margin_db: float | None = Field(
+        description="Smallest margin below the limit, dB; null when no alias reaches the band"
+    )
+    band_loss_db: float = Field(description="Largest filter loss inside the band, dB")
+
+
+class ToneAliasOut(BaseModel):
+    label: str
+    source: str
+    aliases_into_band: bool
+    true_hz: float | None
+    apparent_hz: float | None
+    zone: int | None
+    speed_factor: float | None = Field(description="Speed of the worst alias, factor of nominal")
+    rpm: float | None
+    level_db: float | None = Field(description="Worst alias level, dB re one unit")
+    margin_db: float | None = Field(description="Limit minus level, dB")
+    amplitude_assumed: bool
+
+
+class RejectedOut(BaseModel):
+    sample_rate_hz: float
+    filter: FilterOut
+    cutoff_hz: float | None
+    failure: Literal["span", "resolution", "band_loss", "alias"]
+    reason: str
+    tone: str | None = None
+    tone_source: str | None = None
+    apparent_hz: float | None = None
+    excess_db: float | None = None
+    speed_factor: float | None = None
+    rpm: float | None = None
+
+
+class FoldLineOut(BaseModel):
+    speed_factor: float
+    rpm: float | None
+    true_hz: float
+    multiple: int
+
+
+class RunUpLineOut(BaseModel):
+    label: str
+    source: str
+    interest: bool
+    apparent_hz: list[float]
+    zone: list[int]
+    fold_lines: list[FoldLineOut]
+
+
+class CrossingOut(BaseModel):
+    speed_factor: float
+    rpm: float | None
+    apparent_hz: float
+    alias_label: str
+    alias_source: str
+    crossed_label: str
+    crossed_source: str
+    alias_level: float | None
+    crossed_level: float | None
+    touching: bool
+
+
+class RunUpOut(BaseModel):
+    speed_factor: list[float]
+    rpm: list[float] | None
+    points_computed: int
+    final_rate_hz: float
+    tolerance_hz: float
+    band_hz: tuple[float, float]
+    lines: list[RunUpLineOut]
+    fold_lines_total: int
+    crossings: list[CrossingOut]
+    crossings_total: int
+
+
+class PlanOut(BaseModel):
+    band_hz: tuple[float, float]
+    speed_range: dict[str, Any] = Field(description="Speeds planned for: factor and rpm")
+    recommendation: RecommendationOut
+    tones: list[ToneAliasOut]
+    rejected: list[RejectedOut] = Field(description="Every cheaper option, in cost order")
+    residual_risk: list[str]
+    runup: RunUpOut | None = None
+    caution: str
+    computation_version: str
+
+
+# --------------------------------------------------------------------------- examples
+
+DEMO_TOP_RPM = 12_000.0
+
+
+def demo_plan_request() -> dict[str, Any]:
+    """The drive-unit bench: 1,000 to 12,000 rpm, band 0-5 kHz, 60 dB alias rejection."""
+    return {
+        "band_hz": [0.0, 5000.0],
+        "sources": demo_sources(DEMO_TOP_RPM),
+        "nominal_rpm": DEMO_TOP_RPM,
+        "speed_range_rpm": [1000.0, DEMO_TOP_RPM],
+        "rejection_db": 60.0,
+    }
+
+
+PLAN_EXAMPLES: dict[str, Any] = {
+    "drive_unit": {
+        "summary": "Drive-unit bench up to 12,000 rpm, 0-5 kHz, 60 dB",
+        "description": "Every source of the bench, a run-up from 1,000 to 12,000 rpm; the "
+        "planner tries the usual converter rates and its default filters.",
+        "value": demo_plan_request(),
+    },
+    "resolve_sideband": {
+        "summary": "Also resolve the first mesh from its shaft sideband",
+        "value": {
+            **demo_plan_request(),
+            "resolve": ["first mesh 17/53: GMF 1×", "first mesh 17/53: GMF 1× + 1×shaft"],
+        },
+    },
+    "offered_rates": {
+        "summary": "Only the bench converter's rates, an absolute floor, with the run-up",
+        "value": {
+            **{k: v for k, v in demo_plan_request().items() if k != "rejection_db"},
+            "floor": 0.001,
+            "rates_hz": [12_800.0, 25_600.0, 51_200.0],
+            "runup": {"orders_of_interest": ["first mesh 17/53: GMF 1×", 1], "n_speeds": 200},
+        },
+    },
+    "carrier_only": {
+        "summary": "Keep a 10 kHz inverter carrier out of 0-2 kHz",
+        "value": {
+            "band_hz": [0.0, 2000.0],
+            "tones": [
+                {"label": "inverter carrier", "freq_hz": 10_000.0, "amplitude": 0.5},
+                {"label": "first mesh", "freq_hz": 1700.0, "amplitude": 0.8},
+            ],
+            "rejection_db": 80.0,
+        },
+    },
+}

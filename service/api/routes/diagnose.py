@@ -1,0 +1,220 @@
+"""POST /api/v1/diagnose and /api/v1/compare-rates: JSON bodies or multipart uploads."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fastapi import APIRouter, Query, Request
+from starlette.concurrency import run_in_threadpool
+from starlette.datastructures import UploadFile
+
+from ... import COMPUTATION_VERSION, __version__
+from ..bodies import body_openapi, parse_json_body, read_body
+from ..diagnose_schemas import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
+from ..diagnosis import Measured, Upload, compare_payload, diagnose_payload
+from ..examples import COMPARE_EXAMPLES, DIAGNOSE_EXAMPLES
+from ..problems import Problem
+from ..responses import FastJSON
+from ..store_access import StoreAccess
+
+router = APIRouter(prefix="/api/v1", tags=["diagnose"])
+
+_MULTIPART_DOC = {
+    "multipart/form-data": {
+        "schema": {
+            "type": "object",
+            "properties": {
+                "file": {
+                    "type": "string",
+                    "format": "binary",
+                    "description": "Spectrum text (CSV/TSV/whitespace) or a time "
+                    "record (WAV, .npy, one-column text)",
+                },
+                "request": {
+                    "type": "string",
+                    "description": "The JSON request without spectrum/time_record; "
+                    "`upload` says how to read the file",
+                },
+            },
+            "required": ["file"],
+        }
+    }
+}
+
+
+def _doc(model: Any, examples: dict[str, Any], files: dict[str, Any]) -> dict[str, Any]:
+    out = body_openapi(model, examples)
+    content = out["requestBody"]["content"]
+    content.update(files)
+    return out
+
+
+async def _multipart(
+    request: Request, names: tuple[str, ...], max_bytes: int
+) -> tuple[bytes, dict[str, Upload]]:
+    declared = request.headers.get("content-length")
+    if declared is not None and declared.isdigit() and int(declared) > max_bytes:
+        raise Problem(
+            413,
+            f"the upload is {int(declared)} bytes; the limit is {max_bytes}",
+            field="file",
+            value=int(declared),
+            limit=max_bytes,
+        )
+    try:
+        form = await request.form(max_files=len(names), max_fields=4, max_part_size=1024 * 1024)
+    except Exception as exc:  # malformed multipart, too many parts, part too large
+        raise Problem(400, f"the multipart form cannot be read: {exc}", field="body") from exc
+    try:
+        uploads: dict[str, Upload] = {}
+        for key in form:
+            if key not in (*names, "request"):
+                raise Problem(
+                    422,
+                    f"unexpected form field {key!r}; expected {', '.join((*names, 'request'))}",
+                    field=key,
+                )
+        for name in names:
+            item = form.get(name)
+            if item is None:
+                continue
+            if not isinstance(item, UploadFile):
+                raise Problem(422, f"form field {name!r} must be a file", field=name)
+            if item.size is not None and item.size > max_bytes:
+                raise Problem(
+                    413,
+                    f"{name} is {item.size} bytes; the limit is {max_bytes}",
+                    field=name,
+                    value=item.size,
+                    limit=max_bytes,
+                )
+            data = await item.read()
+            if len(data) > max_bytes:
+                raise Problem(
+                    413,
+                    f"{name} is over the limit of {max_bytes} bytes",
+                    field=name,
+                    limit=max_bytes,
+                )
+            if not data:
+                raise Problem(422, f"{name} is empty", field=name)
+            uploads[name] = Upload(data=data, filename=item.filename or name)
+        raw = form.get("request")
+        if isinstance(raw, UploadFile):
+            raw_bytes = await raw.read()
+        else:
+            raw_bytes = (raw or "{}").encode()
+        return raw_bytes, uploads
+    finally:
+        await form.close()
+
+
+def _is_multipart(request: Request) -> bool:
+    return request.headers.get("content-type", "").startswith("multipart/form-data")
+
+
+async def _save(
+    request: Request,
+    kind: str,
+    req: Any,
+    payload: dict[str, Any],
+    spectrum: Measured | None,
+    title: str | None,
+) -> dict[str, Any]:
+    access: StoreAccess = request.app.state.store_access
+    stored_request = req.model_dump(
+        mode="json", exclude_none=True, exclude={"spectrum", "time_record"}
+    )
+    arrays = (spectrum.freq_hz, spectrum.amplitude) if spectrum is not None else None
+    rid, token = await access.call(
+        access.store.create,
+        kind,
+        stored_request,
+        payload,
+        COMPUTATION_VERSION,
+        __version__,
+        spectrum=arrays,
+        title=title,
+    )
+    return {
+        "id": rid,
+        "delete_token": token,
+        "url": f"/d/{rid}",
+        "api_url": f"/api/v1/diagnoses/{rid}",
+    }
+
+
+@router.post(
+    "/diagnose",
+    response_model=DiagnoseOut,
+    summary="Which peaks of a spectrum are aliases, of what, and how sure",
+    description="Send a spectrum (frequency and amplitude arrays) or a time record as JSON, "
+    "or upload a file as multipart/form-data (`file` plus a `request` JSON field). Each "
+    "peak gets a verdict (alias, direct, family, mirror, unexplained), a confidence, the "
+    "source and true frequency when known, one plain sentence, and the alternatives "
+    "considered. With `?save=true` the result is also saved under a link.",
+    openapi_extra=_doc(DiagnoseIn, DIAGNOSE_EXAMPLES, _MULTIPART_DOC),
+)
+async def diagnose(
+    request: Request,
+    save: bool = Query(False, description="Also save the result and return its link"),
+    title: str | None = Query(None, max_length=200),
+) -> FastJSON:
+    settings = request.app.state.settings
+    upload = None
+    if _is_multipart(request):
+        raw, files = await _multipart(request, ("file",), settings.max_upload_bytes)
+        upload = files.get("file")
+        if upload is None:
+            raise Problem(422, "the multipart form needs a file field 'file'", field="file")
+    else:
+        raw = await read_body(request, settings.max_body_bytes)
+    req = parse_json_body(DiagnoseIn, raw)
+    payload, measured = await run_in_threadpool(diagnose_payload, req, settings, upload)
+    if save:
+        payload["saved"] = await _save(request, "diagnose", req, payload, measured, title)
+    return FastJSON(payload)
+
+
+@router.post(
+    "/compare-rates",
+    response_model=CompareOut,
+    summary="Two captures at different sample rates: which peaks stay, which move",
+    description="The same signal captured at two sample rates. Peaks that stay put are "
+    "real; peaks that move are aliases, with the true frequencies consistent with both "
+    "captures. JSON (`a` and `b` each with a spectrum or time record and its rate), or "
+    "multipart with files `file_a`, `file_b` and a `request` JSON field.",
+    openapi_extra=_doc(
+        CompareIn,
+        COMPARE_EXAMPLES,
+        {
+            "multipart/form-data": {
+                "schema": {
+                    "type": "object",
+                    "properties": {
+                        "file_a": {"type": "string", "format": "binary"},
+                        "file_b": {"type": "string", "format": "binary"},
+                        "request": {"type": "string"},
+                    },
+                }
+            }
+        },
+    ),
+)
+async def compare(
+    request: Request,
+    save: bool = Query(False, description="Also save the result and return its link"),
+    title: str | None = Query(None, max_length=200),
+) -> FastJSON:
+    settings = request.app.state.settings
+    uploads: dict[str, Upload] = {}
+    if _is_multipart(request):
+        raw, files = await _multipart(request, ("file_a", "file_b"), settings.max_upload_bytes)
+        uploads = {k[-1]: v for k, v in files.items()}
+    else:
+        raw = await read_body(request, settings.max_body_bytes)
+    req = parse_json_body(CompareIn, raw)
+    payload, _ = await run_in_threadpool(compare_payload, req, settings, uploads)
+    if save:
+        payload["saved"] = await _save(request, "compare", req, payload, None, title)
+    return FastJSON(payload)
