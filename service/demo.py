@@ -126,9 +126,9 @@ def demo_time_record(
     """
     import numpy as np
 
+    from .api.schemas import AnalogFilterIn
     from .core.chain import Chain
     from .core.sources import expand_sources, source_from_dict
-    from .api.schemas import AnalogFilterIn
 
     tones = expand_sources([source_from_dict(s) for s in demo_sources(rpm)])
     amp = tones.amplitude.copy()

@@ -343,8 +343,8 @@ class TestCompareRates:
         r = client.post("/api/v1/compare-rates", json=body)
         assert r.status_code == 200, r.text
         a = r.json()["a"]["peaks"]
-        real = [p for p in a if abs(p["freq_hz"] - 1200) < 5][0]
-        alias = [p for p in a if abs(p["freq_hz"] - 3200) < 5][0]  # |13200 − 10000|
+        real = next(p for p in a if abs(p["freq_hz"] - 1200) < 5)
+        alias = next(p for p in a if abs(p["freq_hz"] - 3200) < 5)  # |13200 − 10000|
         assert real["verdict"] == "stays"
         assert alias["verdict"] == "moves"
         # Reference: 13.2 kHz folds to 3.2 kHz at 10 kS/s and 1.7 kHz at 11.5 kS/s.
