@@ -15,7 +15,7 @@ attenuation.
 References
 ----------
 .. [1] R. E. Crochiere and L. R. Rabiner, *Multirate Digital Signal Processing*,
-   Prentice-Hall, 1983, sec. 2.3 (decimation by an integer factor and its aliasing).
+   Prentice-Hall, 1983, ch. 2 (decimation by an integer factor and its aliasing).
 .. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
    Pearson, 2010, sec. 4.2 (sampling) and sec. 4.6 (changing the sample rate).
 """

@@ -240,8 +240,8 @@ class TestDesignLowpassFir:
     def test_basic(self) -> None:
         rate, fp, fstop, att = 12800.0, 2500.0, 3000.0, 80.0
         taps = design_lowpass_fir(rate, fp, fstop, att)
-        # Source: Kaiser (1974), N - 1 = (A - 7.95) / (2.285 * delta_omega)
-        # (Oppenheim & Schafer, Discrete-Time Signal Processing, eq. 7.63).
+        # Source: Kaiser (1974), N - 1 = (A - 7.95) / (2.285 * delta_omega), delta_omega
+        # the transition width in rad/sample (as given by Oppenheim & Schafer, ch. 7).
         delta = 2 * np.pi * (fstop - fp) / rate
         assert abs(taps.size - ((att - 7.95) / (2.285 * delta) + 1)) <= 1.5
         # Reference: scipy.signal.freqz of the taps.
