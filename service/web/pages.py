@@ -39,7 +39,14 @@ from .forms import (
     parse_fold_form,
 )
 
-__all__ = ["CAUTION", "SECURITY_HEADERS", "install_pages", "router", "templates"]
+__all__ = [
+    "CAUTION",
+    "SECURITY_HEADERS",
+    "create_app_with_pages",
+    "install_pages",
+    "router",
+    "templates",
+]
 
 #: DESIGN.md §7, shown wherever a result or verdict is shown, and in the footer.
 CAUTION = (
@@ -296,7 +303,21 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
 
 
 def install_pages(app: FastAPI) -> None:
-    """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages."""
+    """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages.
+
+    Calling it again on the same app does nothing."""
+    if getattr(app.state, "pages_installed", False):
+        return
+    app.state.pages_installed = True
     app.mount("/static", StaticFiles(directory=assets.web_dir("static")), name="static")
     app.include_router(assets.router)
     app.include_router(router)
+
+
+def create_app_with_pages() -> FastAPI:
+    """An app factory with the pages (for ``uvicorn --factory`` and the browser tests)."""
+    from ..api.app import create_app
+
+    app = create_app()
+    install_pages(app)
+    return app
