@@ -164,6 +164,126 @@ def _cmd_fold(ns: argparse.Namespace) -> int:
     return 0
 
 
+def _report_errors(run: Any) -> int:
+    """Run ``run()``; print input errors the way the API words them and return 2."""
+    from pydantic import ValidationError
+
+    from .api.problems import Problem
+
+    try:
+        run()
+    except ValidationError as exc:
+        for e in exc.errors():
+            loc = ".".join(str(p) for p in e["loc"])
+            print(f"foldwise: {loc}: {e['msg']}", file=sys.stderr)
+        return 2
+    except Problem as exc:
+        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc.detail}", file=sys.stderr)
+        return 2
+    except (OSError, json.JSONDecodeError, ValueError) as exc:
+        print(f"foldwise: {exc}", file=sys.stderr)
+        return 2
+    return 0
+
+
+def _diagnose_request(ns: argparse.Namespace) -> dict[str, Any]:
+    req: dict[str, Any] = _load_json(ns.request) if ns.request else {}
+    req.update(_chain_fields(ns))
+    if ns.source:
+        req["sources"] = [*req.get("sources", []), *(json.loads(s) for s in ns.source)]
+    if ns.tone:
+        req["tones"] = [*req.get("tones", []), *ns.tone]
+    upload = dict(req.get("upload", {}))
+    for key, value in (
+        ("kind", ns.kind),
+        ("channel", ns.channel),
+        ("sample_rate_hz", ns.record_rate),
+        ("unit", ns.unit),
+        ("window", ns.window),
+    ):
+        if value is not None:
+            upload[key] = value
+    req["upload"] = upload
+    opts = dict(req.get("spectrum_options", {}))
+    if ns.lines is not None:
+        opts["lines"] = ns.lines
+    if ns.window is not None and ns.window != "unknown":
+        opts["window"] = ns.window
+    req["spectrum_options"] = opts
+    for key, value in (("threshold_db", ns.threshold), ("speed_tolerance_pct", ns.speed_tolerance)):
+        if value is not None:
+            req[key] = value
+    return req
+
+
+def _print_diagnosis(out: dict[str, Any]) -> None:
+    s = out["summary"]
+    print(f"{s['input']}")
+    print(
+        f"bin {s['bin_width_hz']:.4g} Hz · Nyquist {out['nyquist_hz']:g} Hz · protected to "
+        f"{out['protected_edge_hz']:g} Hz · values read as {s['unit']} ({s['unit_reason']})"
+    )
+    print("chain: " + " → ".join(out["stages"]))
+    for note in out["notes"]:
+        print(f"note: {note}")
+    counts = ", ".join(f"{v} {k}" for k, v in sorted(out["counts"].items()))
+    print(f"{s['peaks_found']} peaks: {counts}\n")
+    head = f"{'peak Hz':>10} {'level dB':>9} {'verdict':<12} {'conf':>5} {'true Hz':>10}  why"
+    print(head)
+    print("-" * 100)
+    for p in out["peaks"]:
+        true = "–" if p["true_hz"] is None else f"{p['true_hz']:.1f}"
+        print(
+            f"{p['freq_hz']:>10.1f} {p['amplitude_db']:>9.1f} {p['verdict']:<12} "
+            f"{p['confidence']:>5.2f} {true:>10}  {p['explanation']}"
+        )
+    print(f"\nCaution: {out['caution']}")
+
+
+def _cmd_diagnose(ns: argparse.Namespace) -> int:
+    from .api.diagnose_schemas import DiagnoseIn
+    from .api.diagnosis import Upload, diagnose_payload
+    from .config import get_settings
+
+    def run() -> None:
+        path = Path(ns.file)
+        upload = Upload(data=path.read_bytes(), filename=path.name)
+        req = DiagnoseIn.model_validate(_diagnose_request(ns))
+        out, _ = diagnose_payload(req, get_settings(), upload)
+        if ns.json:
+            print(json.dumps(out, indent=2, ensure_ascii=False))
+        else:
+            _print_diagnosis(out)
+
+    return _report_errors(run)
+
+
+def _cmd_compare(ns: argparse.Namespace) -> int:
+    from .api.diagnose_schemas import CompareIn
+    from .api.diagnosis import Upload, compare_payload
+    from .config import get_settings
+
+    def run() -> None:
+        uploads = {}
+        req: dict[str, Any] = {"a": {}, "b": {}}
+        for side, file, rate in (("a", ns.file_a, ns.rate_a), ("b", ns.file_b, ns.rate_b)):
+            path = Path(file)
+            uploads[side] = Upload(data=path.read_bytes(), filename=path.name)
+            req[side] = {"sample_rate_hz": rate}
+        out, _ = compare_payload(CompareIn.model_validate(req), get_settings(), uploads)
+        if ns.json:
+            print(json.dumps(out, indent=2, ensure_ascii=False))
+            return
+        for side in ("a", "b"):
+            cap = out[side]
+            print(f"capture {side.upper()} at {cap['sample_rate_hz']:g} S/s ({cap['input']})")
+            for p in cap["peaks"]:
+                print(f"  {p['freq_hz']:>10.1f} Hz  {p['verdict']:<10} {p['explanation']}")
+        print(f"\nCaution: {out['caution']}")
+
+    return _report_errors(run)
+
+
 def _cmd_serve(ns: argparse.Namespace) -> int:
     import uvicorn
 
@@ -216,6 +336,59 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--speed-tolerance", type=float, metavar="PCT", help="speed uncertainty, %%")
     p.add_argument("--json", action="store_true", help="print the API's JSON instead of a table")
     p.set_defaults(func=_cmd_fold)
+
+    d = sub.add_parser("diagnose", help="which peaks of a spectrum or record are aliases")
+    d.add_argument(
+        "file",
+        help="spectrum text (CSV/TSV/whitespace) or time record (WAV, .npy, one-column text)",
+    )
+    d.add_argument(
+        "--request",
+        metavar="FILE",
+        help="a JSON request as POST /api/v1/diagnose takes it (without the data)",
+    )
+    _chain_args(d)
+    d.add_argument(
+        "--source",
+        action="append",
+        metavar="JSON",
+        help="a machine source as JSON (repeatable); without sources a blind family search runs",
+    )
+    d.add_argument(
+        "--tone",
+        action="append",
+        type=_parse_tone,
+        metavar="LABEL=HZ[@AMP]",
+        help="a known tone (repeatable)",
+    )
+    d.add_argument(
+        "--kind",
+        choices=["auto", "spectrum", "time_record"],
+        help="how to read the file (default: by its type)",
+    )
+    d.add_argument(
+        "--record-rate", type=float, metavar="HZ", help="sample rate of a .npy or text time record"
+    )
+    d.add_argument("--channel", type=int, help="channel of a multichannel file, from 0")
+    d.add_argument("--unit", choices=["auto", "linear", "db"], help="spectrum values")
+    d.add_argument(
+        "--window",
+        choices=["hann", "flattop", "rectangular", "hamming", "blackmanharris", "unknown"],
+        help="window",
+    )
+    d.add_argument("--lines", type=int, help="analysis lines for a time record")
+    d.add_argument("--threshold", type=float, metavar="DB", help="peak threshold over floor")
+    d.add_argument("--speed-tolerance", type=float, metavar="PCT", help="speed uncertainty")
+    d.add_argument("--json", action="store_true", help="print the API's JSON")
+    d.set_defaults(func=_cmd_diagnose)
+
+    c = sub.add_parser("compare", help="two captures at different rates: what stays, what moves")
+    c.add_argument("file_a")
+    c.add_argument("file_b")
+    c.add_argument("--rate-a", type=float, metavar="HZ", help="sample rate of the first")
+    c.add_argument("--rate-b", type=float, metavar="HZ", help="sample rate of the second")
+    c.add_argument("--json", action="store_true", help="print the API's JSON")
+    c.set_defaults(func=_cmd_compare)
 
     s = sub.add_parser("serve", help="start the web service")
     s.add_argument("--host", help="address to listen on (default 127.0.0.1)")

@@ -57,8 +57,10 @@ SIGMA_MULTIPLE = 3.0
 #: of 2 (or 3) is a sub-multiple of a better family: rejected.
 SUBMULTIPLE_FRACTION = 0.8
 #: A member that would need a source this many dB above the strongest peak (seen level +
-#: chain attenuation) is not accepted.
-MAX_SOURCE_EXCESS_DB = 40.0
+#: chain attenuation) is not accepted. Harmonics of a machine family fall with order, so
+#: an aliased member far stronger at the sensor than every line in band is implausible
+#: (a judgement of this project, not a published figure).
+MAX_SOURCE_EXCESS_DB = 20.0
 #: A candidate must cover this fraction of the best family's peaks to replace it.
 SUPERSET_FRACTION = 0.9
 
@@ -352,6 +354,10 @@ class _Context:
     attenuation: Callable[[FloatArray], ArrayLike] | None
 
 
+#: Share of the harmonics up to a blind family's highest member that must be present.
+MIN_LADDER_FILL = 0.4
+
+
 def _prefixes(kmax: int) -> IntArray:
     """Harmonic counts at which the chance probability is evaluated: 4, 8, 16, ... kmax."""
     out = [k for k in (4, 8, 16, 32, 64, 128) if k < kmax] + [kmax]
@@ -431,7 +437,14 @@ def _search_one(
         est, sig = _refine(est, m2, ctx)
     m2 = _match(est, e, SIGMA_MULTIPLE * sig, max_harmonic, ctx)
     total, lam, log_p, sub = _score(m2, ctx, n_tests)
-    good = (total >= min_members) & (log_p <= max_log_p) & ~sub & (est >= min_f0)
+    # A family claimed without sources must fill most of its harmonic ladder up to its
+    # highest member: sparse members (say 1×, 10×, 25×, 35×) are far likelier to be a
+    # near-commensurate fundamental and rate than a real family.
+    k = np.arange(1, m2.hit.shape[1] + 1)[None, :]
+    top = np.max(np.where(m2.hit, k, 0), axis=1)
+    ladder = np.sum(m2.tried & (k <= top[:, None]), axis=1)
+    dense = total >= MIN_LADDER_FILL * np.maximum(ladder, 1)
+    good = (total >= min_members) & (log_p <= max_log_p) & ~sub & (est >= min_f0) & dense
     if not np.any(good):
         return None
     idx = np.flatnonzero(good)
