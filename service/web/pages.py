@@ -262,7 +262,7 @@ async def _predict_response(
 
 def _blank_form() -> FormState:
     st = FormState()
-    st.values = {"sample_rate_hz": "", "aa_family": "butterworth", "lines": "3200"}
+    st.values = {"sample_rate_hz": "", "aa_family": "", "lines": "3200"}
     return st
 
 
