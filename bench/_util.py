@@ -32,11 +32,19 @@ def free_port() -> int:
         return int(s.getsockname()[1])
 
 
+class ServerURL(str):
+    """The base URL of a local server, carrying the server's process id."""
+
+    pid: int
+
+
 @contextlib.contextmanager
 def local_server(
     env: dict[str, str] | None = None, workers: int = 1, data_dir: Path | None = None
-) -> Iterator[str]:
-    """Start ``foldwise serve`` on 127.0.0.1 and yield its base URL; stop it afterwards."""
+) -> Iterator[ServerURL]:
+    """Start ``foldwise serve`` on 127.0.0.1 and yield its base URL; stop it afterwards.
+
+    With one worker the process serving requests is the one started here (``.pid``)."""
     port = free_port()
     full_env = {**os.environ, **(env or {})}
     if data_dir is not None:
@@ -59,7 +67,8 @@ def local_server(
         stdout=subprocess.DEVNULL,
         stderr=subprocess.PIPE,
     )
-    base = f"http://127.0.0.1:{port}"
+    base = ServerURL(f"http://127.0.0.1:{port}")
+    base.pid = proc.pid
     try:
         deadline = time.monotonic() + 60
         while True:

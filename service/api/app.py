@@ -64,4 +64,13 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(diagnose.router)
     app.include_router(diagnoses.router)
     install_examples(app, settings)
+
+    async def saved_lookup(record_id: str) -> object:
+        access: StoreAccess = app.state.store_access
+        return await access.call(access.store.get, record_id)
+
+    app.state.saved_lookup = saved_lookup
+    from ..web.pages import install_pages
+
+    install_pages(app)
     return app

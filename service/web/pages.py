@@ -22,6 +22,7 @@ from markupsafe import Markup
 from starlette.concurrency import run_in_threadpool
 
 from .. import COMPUTATION_VERSION, __version__
+from ..api.caution import CAUTION
 from ..api.compute import fold_payload
 from ..api.problems import Problem
 from ..api.schemas import FoldIn, chain_from_request
@@ -49,12 +50,6 @@ __all__ = [
 ]
 
 #: DESIGN.md §7, shown wherever a result or verdict is shown, and in the footer.
-CAUTION = (
-    "An alias verdict is a hypothesis about the measurement, not about the machine. "
-    "Before a peak is dismissed in a decision about machine protection or safety, confirm "
-    "it with a second sample rate or a wider-band measurement, and follow the applicable "
-    "standards, site procedures and qualified personnel."
-)
 
 #: Scripts only from this origin: no inline script, no eval. Plotly sets inline styles on
 #: its SVG from script, which needs 'unsafe-inline' for styles (not for scripts).
@@ -318,6 +313,4 @@ def create_app_with_pages() -> FastAPI:
     """An app factory with the pages (for ``uvicorn --factory`` and the browser tests)."""
     from ..api.app import create_app
 
-    app = create_app()
-    install_pages(app)
-    return app
+    return create_app()  # the factory installs the pages itself
