@@ -17,6 +17,8 @@ from pydantic import BaseModel, ValidationError
 
 from ..config import Settings
 from .compute import fold_payload
+from .diagnose_schemas import CompareIn, DiagnoseIn
+from .diagnosis import compare_payload, diagnose_payload
 from .schemas import FoldIn
 
 __all__ = ["SAVEABLE", "SaveParts", "validate_for_kind"]
@@ -37,9 +39,31 @@ def _fold(req: BaseModel, settings: Settings) -> SaveParts:
     )
 
 
+def _diagnose(req: BaseModel, settings: Settings) -> SaveParts:
+    assert isinstance(req, DiagnoseIn)
+    payload, m = diagnose_payload(req, settings)
+    return SaveParts(
+        request=req.model_dump(mode="json", exclude_none=True, exclude={"spectrum", "time_record"}),
+        result=payload,
+        spectrum=(m.freq_hz, m.amplitude),
+    )
+
+
+def _compare(req: BaseModel, settings: Settings) -> SaveParts:
+    assert isinstance(req, CompareIn)
+    payload, _ = compare_payload(req, settings)
+    side = {"spectrum", "time_record"}
+    return SaveParts(
+        request=req.model_dump(mode="json", exclude_none=True, exclude={"a": side, "b": side}),
+        result=payload,
+    )
+
+
 #: kind → (request model, compute-and-split function). Other kinds register here.
 SAVEABLE: dict[str, tuple[type[BaseModel], Callable[[BaseModel, Settings], SaveParts]]] = {
     "fold": (FoldIn, _fold),
+    "diagnose": (DiagnoseIn, _diagnose),
+    "compare": (CompareIn, _compare),
 }
 
 

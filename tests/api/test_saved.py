@@ -6,6 +6,7 @@ import re
 from collections.abc import Iterator
 from pathlib import Path
 
+import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
@@ -102,3 +103,22 @@ def test_unreachable_database_is_503(tmp_path: Path) -> None:
         r = c.post("/api/v1/diagnoses", json={"kind": "fold", "request": demo_fold_request()})
         assert r.status_code == 503
         assert "database" in r.json()["detail"]
+
+
+def test_save_diagnosis_by_kind(client: TestClient) -> None:
+    # A diagnose request saved through the generic endpoint keeps its spectrum apart.
+    f = np.arange(0, 5001, 10.0)
+    # Reference: a 7.3 kHz tone sampled at 10 kS/s reads 2.7 kHz (DESIGN.md §5).
+    amp = 1e-4 + np.where(np.abs(f - 2700) < 1, 0.5, 0.0)
+    req = {
+        "sample_rate_hz": 10_000,
+        "spectrum": {"freq_hz": f.tolist(), "amplitude": amp.tolist()},
+        "tones": [{"label": "x", "freq_hz": 7300}],
+    }
+    r = client.post("/api/v1/diagnoses", json={"kind": "diagnose", "request": req})
+    assert r.status_code == 201, r.text
+    got = client.get(r.json()["api_url"]).json()
+    assert "spectrum" not in got["request"]
+    assert len(got["spectrum"]["amplitude"]) == f.size
+    peak = next(p for p in got["result"]["peaks"] if abs(p["freq_hz"] - 2700) < 10)
+    assert peak["verdict"] == "alias" and peak["true_hz"] == 7300

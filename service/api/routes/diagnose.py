@@ -122,9 +122,9 @@ async def _save(
     title: str | None,
 ) -> dict[str, Any]:
     access: StoreAccess = request.app.state.store_access
-    stored_request = req.model_dump(
-        mode="json", exclude_none=True, exclude={"spectrum", "time_record"}
-    )
+    side = {"spectrum", "time_record"}
+    exclude: Any = side if kind == "diagnose" else {"a": side, "b": side}
+    stored_request = req.model_dump(mode="json", exclude_none=True, exclude=exclude)
     arrays = (spectrum.freq_hz, spectrum.amplitude) if spectrum is not None else None
     rid, token = await access.call(
         access.store.create,
