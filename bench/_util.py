@@ -7,6 +7,7 @@ import os
 import socket
 import subprocess
 import sys
+import tempfile
 import time
 import urllib.request
 from collections.abc import Callable, Iterator
@@ -49,6 +50,8 @@ def local_server(
     full_env = {**os.environ, **(env or {})}
     if data_dir is not None:
         full_env["FOLDWISE_DATA_DIR"] = str(data_dir)
+    # The server's log goes to a file: a pipe nobody reads would fill and stall it.
+    log = tempfile.NamedTemporaryFile(prefix="foldwise-bench-", suffix=".log", delete=False)
     proc = subprocess.Popen(
         [
             sys.executable,
@@ -64,8 +67,8 @@ def local_server(
         ],
         cwd=ROOT,
         env=full_env,
-        stdout=subprocess.DEVNULL,
-        stderr=subprocess.PIPE,
+        stdout=log,
+        stderr=subprocess.STDOUT,
     )
     base = ServerURL(f"http://127.0.0.1:{port}")
     base.pid = proc.pid
@@ -78,7 +81,7 @@ def local_server(
                         break
             except OSError:
                 if proc.poll() is not None:
-                    err = proc.stderr.read().decode() if proc.stderr else ""
+                    err = Path(log.name).read_text(errors="replace")
                     raise RuntimeError(f"server exited: {err[-2000:]}") from None
                 if time.monotonic() > deadline:
                     raise RuntimeError("server did not start in 60 s") from None

@@ -13,8 +13,9 @@ from typing import Any
 
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import JSONResponse
+from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.requests import ClientDisconnect
 
 __all__ = ["PROBLEM_JSON", "Problem", "input_errors", "install_problem_handlers"]
 
@@ -174,6 +175,13 @@ def install_problem_handlers(app: FastAPI) -> None:
         if exc.status_code == 405:
             detail = f"{request.method} is not allowed on {request.url.path}"
         return _respond(request, Problem(exc.status_code, detail, headers=exc.headers))
+
+    @app.exception_handler(ClientDisconnect)
+    async def _gone(request: Request, exc: ClientDisconnect) -> Response:
+        # The client hung up mid-body (a load generator stopping, a closed tab): nothing
+        # to answer and nothing wrong with the service, so no traceback in the log.
+        log.info("client disconnected during %s %s", request.method, request.url.path)
+        return Response(status_code=400)
 
     @app.exception_handler(Exception)
     async def _unexpected(request: Request, exc: Exception) -> JSONResponse:
