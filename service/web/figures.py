@@ -23,6 +23,8 @@ from .display import DEFAULT_BUCKETS, minmax_decimate
 __all__ = [
     "COLOURS",
     "chain_gain_curve",
+    "compare_spectra",
+    "diagnosis_folding_diagram",
     "folding_diagram",
     "measured_spectrum",
     "predicted_spectrum",
@@ -465,12 +467,63 @@ def predicted_spectrum(prediction: dict[str, Any]) -> dict[str, Any]:
     return {"data": data, "layout": layout}
 
 
+#: How each verdict of a diagnosis is drawn: legend name, colour, marker symbol.
+#: ``family_alias`` is a harmonic-family member folded from above the Nyquist frequency.
+VERDICT_STYLES: dict[str, tuple[str, str, str]] = {
+    "alias": ("alias", COLOURS["alias"], "diamond"),
+    "family_alias": ("alias (harmonic family)", COLOURS["alias"], "diamond-open"),
+    "mirror": ("mirror near fs/2", COLOURS["gain"], "square"),
+    "direct": ("real (direct)", COLOURS["direct"], "circle"),
+    "family": ("real (harmonic family)", COLOURS["direct"], "circle-open"),
+    "unexplained": ("unexplained", COLOURS["unknown"], "x"),
+}
+
+
+def display_verdict(peak: dict[str, Any]) -> str:
+    """The drawing key of a diagnosed peak: a family member above fs/2 draws as an alias."""
+    verdict = str(peak.get("verdict") or "unexplained")
+    if verdict == "family":
+        return "family_alias" if (peak.get("zone") or 1) > 1 else "family"
+    return verdict if verdict in VERDICT_STYLES else "unexplained"
+
+
+def _vline(x: float, name: str, colour: str, text: str, dash: str = "dash") -> tuple[dict, dict]:
+    shape = {
+        "type": "line",
+        "name": name,
+        "xref": "x",
+        "yref": "paper",
+        "x0": x,
+        "x1": x,
+        "y0": 0,
+        "y1": 1,
+        "line": {"color": colour, "width": 1.5, "dash": dash},
+    }
+    note = {
+        "x": x,
+        "y": 1.0,
+        "xref": "x",
+        "yref": "paper",
+        "xanchor": "right",
+        "yanchor": "top",
+        "text": text,
+        "showarrow": False,
+        "font": {"size": 11, "color": colour},
+        "bgcolor": "rgba(255,255,255,0.8)",
+    }
+    return shape, note
+
+
 def measured_spectrum(
     freq_hz: Sequence[float] | np.ndarray,
     amplitude_db: Sequence[float] | np.ndarray,
     floor_db: Sequence[float] | np.ndarray | None = None,
     peaks: Sequence[dict[str, Any]] | None = None,
     buckets: int = DEFAULT_BUCKETS,
+    nyquist_hz: float | None = None,
+    protected_edge_hz: float | None = None,
+    band_hz: Sequence[float] | None = None,
+    title: str = "Measured spectrum",
 ) -> dict[str, Any]:
     """A measured spectrum, thinned per pixel bucket, with its floor and marked peaks.
 
@@ -481,15 +534,24 @@ def measured_spectrum(
     floor_db : array_like, optional
         Estimated noise floor per line, dB (thinned with the same buckets).
     peaks : list of dict, optional
-        Each with ``freq_hz``, ``level_db``, ``verdict`` (``direct``, ``alias``,
-        ``mirror`` or ``unexplained``) and ``explanation`` (hover text, plain).
+        Each with ``freq_hz``, ``level_db``, ``verdict`` (a key of ``VERDICT_STYLES``:
+        ``alias``, ``family_alias``, ``mirror``, ``direct``, ``family`` or
+        ``unexplained``) and ``explanation`` (hover text, plain).
     buckets : int
         Display buckets for :func:`minmax_decimate`.
+    nyquist_hz, protected_edge_hz : float, optional
+        Drawn as vertical lines: fs/2, and the edge above which the anti-alias filter no
+        longer protects the band (between the two, aliases of the transition band land).
+    band_hz : (float, float), optional
+        Band of interest, Hz, shaded.
+    title : str
+        Figure title.
 
     Returns
     -------
     dict
-        A Plotly figure with traces ``spectrum``, ``noise floor`` and one per verdict.
+        A Plotly figure with traces ``spectrum``, ``noise floor`` and one per verdict
+        present, named by ``VERDICT_STYLES``.
     """
     f, a = minmax_decimate(freq_hz, amplitude_db, buckets)
     data: list[dict[str, Any]] = [
@@ -519,13 +581,7 @@ def measured_spectrum(
                 "hoverinfo": "skip",
             }
         )
-    styles = {
-        "direct": ("real (direct)", COLOURS["direct"], "circle"),
-        "alias": ("alias", COLOURS["alias"], "diamond"),
-        "mirror": ("mirror near fs/2", COLOURS["gain"], "square"),
-        "unexplained": ("unexplained", COLOURS["unknown"], "x"),
-    }
-    for verdict, (name, colour, symbol) in styles.items():
+    for verdict, (name, colour, symbol) in VERDICT_STYLES.items():
         group = [p for p in peaks or () if p.get("verdict", "unexplained") == verdict]
         if not group:
             continue
@@ -536,16 +592,221 @@ def measured_spectrum(
                 "name": name,
                 "x": [p["freq_hz"] for p in group],
                 "y": [p["level_db"] for p in group],
-                "marker": {"color": colour, "symbol": symbol, "size": 10},
+                "marker": {
+                    "color": colour,
+                    "symbol": symbol,
+                    "size": 11 if "alias" in verdict else 9,
+                    "line": {"color": colour, "width": 2},
+                },
                 "hovertext": [
                     f"{p['freq_hz']:.2f} Hz, {p['level_db']:.1f} dB<br>"
                     f"{_esc(p.get('explanation', name))}"
                     for p in group
                 ],
                 "hoverinfo": "text",
+                "customdata": [p.get("index", i) for i, p in enumerate(group)],
             }
         )
-    layout = _base_layout("Measured spectrum")
+    shapes: list[dict[str, Any]] = []
+    annotations: list[dict[str, Any]] = []
+    if band_hz:
+        shapes.append(
+            {
+                "type": "rect",
+                "name": "band of interest",
+                "xref": "x",
+                "yref": "paper",
+                "x0": band_hz[0],
+                "x1": band_hz[1],
+                "y0": 0,
+                "y1": 1,
+                "fillcolor": COLOURS["band"],
+                "line": {"width": 0},
+                "layer": "below",
+            }
+        )
+    if protected_edge_hz is not None and (nyquist_hz is None or protected_edge_hz < nyquist_hz):
+        sh, an = _vline(
+            float(protected_edge_hz), "protected band edge", COLOURS["band_edge"], "protected edge"
+        )
+        shapes.append(sh)
+        annotations.append(an)
+    if nyquist_hz is not None:
+        sh, an = _vline(float(nyquist_hz), "Nyquist", COLOURS["fold"], "fs/2", dash="solid")
+        shapes.append(sh)
+        annotations.append(an)
+    layout = _base_layout(title)
     layout["xaxis"] = _axis("frequency, Hz")
     layout["yaxis"] = _axis("level, dB")
+    layout["shapes"] = shapes
+    layout["annotations"] = annotations
+    return {"data": data, "layout": layout}
+
+
+def _peak_tone(p: dict[str, Any]) -> dict[str, Any]:
+    """A diagnosed peak as a tone of a fold payload, for :func:`folding_diagram`."""
+    zone = int(p.get("zone") or 1)
+    att = next(
+        (
+            e.get("attenuation_db")
+            for e in p.get("alternatives") or ()
+            if e.get("attenuation_db") is not None and e.get("true_hz") == p.get("true_hz")
+        ),
+        None,
+    )
+    return {
+        "label": p.get("tone") or p.get("verdict", ""),
+        "source": p.get("source") or "",
+        "freq_hz": float(p["true_hz"]),
+        "apparent_hz": float(p["freq_hz"]),
+        "zone": zone,
+        "inverted": bool(p.get("inverted")),
+        "attenuation_db": float(att) if att is not None else 0.0,
+        "apparent_amplitude": p.get("amplitude"),
+        "aliased": zone > 1,
+        "in_band": bool(p.get("in_band")),
+    }
+
+
+def diagnosis_folding_diagram(
+    diagnosis: dict[str, Any],
+    gain_curve: dict[str, list[float]] | None = None,
+    max_labels: int = DEFAULT_MAX_LABELS,
+) -> dict[str, Any] | None:
+    """The folding diagram of a diagnosis: each attributed peak from its true frequency
+    (across) to where it was measured (up).
+
+    Parameters
+    ----------
+    diagnosis : dict
+        The payload of POST /api/v1/diagnose.
+    gain_curve : dict, optional
+        As for :func:`folding_diagram`.
+    max_labels : int
+        Most peaks written on the diagram.
+
+    Returns
+    -------
+    dict or None
+        A Plotly figure as :func:`folding_diagram` draws it (traces ``fold line``,
+        ``direct tones``, ``aliases``), or None when no peak has a true frequency.
+    """
+    peaks = [p for p in diagnosis.get("peaks", ()) if p.get("true_hz") is not None]
+    if not peaks:
+        return None
+    pred = {
+        "final_rate_hz": diagnosis["final_rate_hz"],
+        "band_hz": diagnosis.get("band_hz"),
+        "tones": [_peak_tone(p) for p in peaks],
+    }
+    fig = folding_diagram(pred, gain_curve=gain_curve, max_labels=max_labels)
+    for trace in fig["data"]:
+        if trace["name"] == "direct tones":
+            trace["name"] = "real peaks"
+        elif trace["name"] == "aliases":
+            trace["name"] = "alias peaks"
+    fig["layout"]["title"]["text"] = "Folding diagram: where each explained peak came from"
+    return fig
+
+
+#: Two-rate verdicts: legend name, colour, symbol.
+COMPARE_STYLES: dict[str, tuple[str, str, str]] = {
+    "moves": ("moves: alias", COLOURS["alias"], "diamond"),
+    "stays": ("stays: real", COLOURS["direct"], "circle"),
+    "only": ("in one capture only", COLOURS["unknown"], "x"),
+}
+
+
+def compare_key(verdict: str) -> str:
+    return verdict if verdict in ("moves", "stays") else "only"
+
+
+def compare_spectra(
+    comparison: dict[str, Any],
+    spectra: dict[str, tuple[np.ndarray, np.ndarray] | None],
+    buckets: int = DEFAULT_BUCKETS,
+) -> dict[str, Any]:
+    """Both captures of a two-rate test, one above the other on apparent frequency.
+
+    Parameters
+    ----------
+    comparison : dict
+        The payload of POST /api/v1/compare-rates (``a`` and ``b`` with ``peaks``).
+    spectra : dict
+        ``"a"`` and ``"b"``: (frequency, Hz; level, dB) of each capture, or None to
+        draw the peaks only (a saved comparison keeps no spectra).
+    buckets : int
+        Display buckets for :func:`minmax_decimate`.
+
+    Returns
+    -------
+    dict
+        A Plotly figure with two stacked plots. Traces ``spectrum A``, ``spectrum B``
+        and, per capture, one per verdict group (``moves: alias``, ``stays: real``,
+        ``in one capture only``) with ``legendgroup`` shared across the captures.
+    """
+    data: list[dict[str, Any]] = []
+    layout = _base_layout("Both captures: peaks that move with the sample rate are aliases")
+    shown: set[str] = set()
+    top = 0.0
+    for row, side in enumerate(("a", "b")):
+        cap = comparison[side]
+        rate = float(cap["sample_rate_hz"])
+        top = max(top, rate / 2.0)
+        axis = "" if row == 0 else "2"
+        name = f"spectrum {side.upper()} ({rate:g} S/s)"
+        pair = spectra.get(side)
+        if pair is not None:
+            f, a = minmax_decimate(pair[0], pair[1], buckets)
+            data.append(
+                {
+                    "type": "scatter",
+                    "mode": "lines",
+                    "name": name,
+                    "x": np.round(f, 4).tolist(),
+                    "y": np.round(a, 2).tolist(),
+                    "xaxis": f"x{axis}",
+                    "yaxis": f"y{axis}",
+                    "line": {
+                        "color": COLOURS["spectrum"] if row == 0 else COLOURS["fold"],
+                        "width": 1,
+                    },
+                    "hovertemplate": "%{x:.2f} Hz: %{y:.1f} dB<extra>" + side.upper() + "</extra>",
+                }
+            )
+        peaks = cap["peaks"]
+        for key, (label, colour, symbol) in COMPARE_STYLES.items():
+            idx = [i for i, p in enumerate(peaks) if compare_key(p["verdict"]) == key]
+            if not idx:
+                continue
+            data.append(
+                {
+                    "type": "scatter",
+                    "mode": "markers",
+                    "name": label,
+                    "legendgroup": key,
+                    "showlegend": key not in shown,
+                    "x": [peaks[i]["freq_hz"] for i in idx],
+                    "y": [_level_db(peaks[i]["amplitude"]) for i in idx],
+                    "xaxis": f"x{axis}",
+                    "yaxis": f"y{axis}",
+                    "marker": {"color": colour, "symbol": symbol, "size": 10},
+                    "hovertext": [
+                        f"{side.upper()}: {peaks[i]['freq_hz']:.2f} Hz<br>"
+                        f"{_esc(peaks[i]['explanation'])}"
+                        for i in idx
+                    ],
+                    "hoverinfo": "text",
+                    "customdata": idx,
+                }
+            )
+            shown.add(key)
+    layout["xaxis"] = _axis("", anchor="y", matches="x2", showticklabels=True)
+    layout["xaxis2"] = _axis("apparent frequency, Hz", anchor="y2", range=[0, top])
+    layout["yaxis"] = _axis(
+        f"A ({float(comparison['a']['sample_rate_hz']):g} S/s), dB", domain=[0.55, 1.0]
+    )
+    layout["yaxis2"] = _axis(
+        f"B ({float(comparison['b']['sample_rate_hz']):g} S/s), dB", domain=[0.0, 0.45]
+    )
     return {"data": data, "layout": layout}

@@ -29,6 +29,14 @@ from ..api.schemas import FoldIn, chain_from_request
 from ..config import Settings
 from ..demo import DEMO_RPM, demo_fold_request
 from . import assets, figures
+from .diagnose_forms import COMPARE_LABELS, DIAGNOSE_LABELS, READ_KINDS, UNITS, WINDOWS
+from .diagnose_pages import (
+    compare_result_context,
+    diagnose_result_context,
+    error_page,
+    request_json,
+)
+from .diagnose_pages import router as diagnose_router
 from .forms import (
     FIELD_LABELS,
     FILTER_FAMILIES,
@@ -43,8 +51,10 @@ from .forms import (
 __all__ = [
     "CAUTION",
     "SECURITY_HEADERS",
+    "WAYS_IN",
     "create_app_with_pages",
     "install_pages",
+    "render",
     "router",
     "templates",
 ]
@@ -114,6 +124,12 @@ def _make_env() -> Environment:
         SOURCE_FORMS=SOURCE_FORMS,
         SPEED_UNITS=SPEED_UNITS,
         FIELD_LABELS=FIELD_LABELS,
+        READ_KINDS=READ_KINDS,
+        UNITS=UNITS,
+        WINDOWS=WINDOWS,
+        DIAGNOSE_LABELS=DIAGNOSE_LABELS,
+        COMPARE_LABELS=COMPARE_LABELS,
+        VERDICT_STYLES=figures.VERDICT_STYLES,
     )
     return env
 
@@ -134,20 +150,21 @@ WAYS_IN = [
     {
         "key": "diagnose",
         "title": "Diagnose",
-        "path": None,
+        "path": "/diagnose",
         "text": "After a test: which peaks of a measured spectrum are probably aliases, of "
         "what, and how sure is that?",
     },
     {
         "key": "compare",
         "title": "Compare two rates",
-        "path": None,
+        "path": "/compare",
         "text": "The same signal captured at two sample rates: peaks that stay put are real, "
         "peaks that move are aliases.",
     },
     {
         "key": "plan",
         "title": "Plan",
+        # Added when the plan API lands: "/plan".
         "path": None,
         "text": "Which sample rate, anti-alias filter and analysis lines keep the band of "
         "interest clean, and how long the record must be.",
@@ -162,9 +179,10 @@ def _nav(active: str) -> list[dict[str, Any]]:
     return [{**i, "active": i["key"] == active} for i in items]
 
 
-def _render(
+def render(
     request: Request, name: str, context: dict[str, Any], status_code: int = 200
 ) -> HTMLResponse:
+    """A page with the navigation and the security headers."""
     ctx = {"nav": _nav(context.get("active", "")), **context}
     response: HTMLResponse = templates.TemplateResponse(
         request, name, ctx, status_code=status_code, headers=SECURITY_HEADERS
@@ -177,7 +195,7 @@ def _render(
 
 @router.get("/", response_class=HTMLResponse)
 async def home(request: Request) -> HTMLResponse:
-    return _render(request, "home.html", {"active": "home", "ways": WAYS_IN, "demo_rpm": DEMO_RPM})
+    return render(request, "home.html", {"active": "home", "ways": WAYS_IN, "demo_rpm": DEMO_RPM})
 
 
 # --------------------------------------------------------------------------- predict
@@ -224,6 +242,7 @@ def fold_result_context(req: FoldIn, out: dict[str, Any]) -> dict[str, Any]:
         "spectrum_fig": figures.predicted_spectrum(out),
         "collision_bins": req.collision_bins,
         "request_json": json.dumps(req.model_dump(mode="json", exclude_none=True), indent=2),
+        "share_request": request_json(req),
     }
 
 
@@ -252,7 +271,7 @@ async def _predict_response(
                 state.add_error(None, "Inputs", p.detail)
     ctx["form"] = state
     status = 422 if state.summary else 200
-    return _render(request, "predict.html", ctx, status_code=status)
+    return render(request, "predict.html", ctx, status_code=status)
 
 
 def _blank_form() -> FormState:
@@ -278,20 +297,39 @@ async def predict_submit(request: Request) -> HTMLResponse:
 
 @router.get("/d/{record_id}", response_class=HTMLResponse)
 async def saved_result(request: Request, record_id: str) -> HTMLResponse:
+    """A saved result, drawn from the stored record alone (never recomputed)."""
     lookup: SavedLookup | None = getattr(request.app.state, "saved_lookup", None)
-    record = await lookup(record_id) if lookup is not None else None
+    try:
+        record = await lookup(record_id) if lookup is not None else None
+    except Problem as p:
+        return error_page(request, p)
     if record is None:
-        return _render(
+        return render(
             request,
             "not_found.html",
             {"active": "", "what": "saved result", "record_id": record_id},
             status_code=404,
         )
-    ctx: dict[str, Any] = {"active": "", "record": record, "result": None}
+    ctx: dict[str, Any] = {
+        "active": "",
+        "record": record,
+        "result": None,
+        "diag": None,
+        "cmp": None,
+        "saved_here": True,
+        "same_computation": record.computation_version == COMPUTATION_VERSION,
+    }
     if record.kind == "fold":
         req = FoldIn.model_validate(record.request)
-        ctx["result"] = fold_result_context(req, record.result)
-    return _render(request, "saved.html", ctx)
+        # Already saved: the page shows its own link, not a share form.
+        ctx["result"] = {**fold_result_context(req, record.result), "share_request": ""}
+    elif record.kind == "diagnose":
+        ctx["diag"] = await run_in_threadpool(
+            diagnose_result_context, record.result, record.spectrum, record.request
+        )
+    elif record.kind == "compare":
+        ctx["cmp"] = compare_result_context(record.result, {"a": None, "b": None})
+    return render(request, "saved.html", ctx)
 
 
 # --------------------------------------------------------------------------- install
@@ -307,6 +345,7 @@ def install_pages(app: FastAPI) -> None:
     app.mount("/static", StaticFiles(directory=assets.web_dir("static")), name="static")
     app.include_router(assets.router)
     app.include_router(router)
+    app.include_router(diagnose_router)
 
 
 def create_app_with_pages() -> FastAPI:

@@ -58,7 +58,7 @@ class TestHome:
         r = page_client.get("/")
         assert r.status_code == 200 and r.headers["content-type"].startswith(HTML)
         assert CAUTION in r.text
-        assert 'href="/predict?demo=1"' in r.text
+        assert 'href="/predict?demo=1"' in r.text and 'href="/diagnose?demo=1"' in r.text
         assert "script-src 'self'" in r.headers["content-security-policy"]
         assert "unsafe-inline" not in r.headers["content-security-policy"].split("style-src")[0]
         _assert_strict_page(r.text)
@@ -232,6 +232,7 @@ class _Saved:
     kind: str
     created_at: datetime
     computation_version: str
+    app_version: str
     request: dict[str, Any]
     result: dict[str, Any]
     title: str | None
@@ -242,7 +243,7 @@ class TestSavedPage:
         req = demo_fold_request()
         result = page_client.post("/api/v1/fold", json=req).json()
         saved = _Saved(
-            "a" * 32, "fold", datetime(2025, 1, 2, tzinfo=UTC), "1", req, result, "Bench <A>"
+            "a" * 32, "fold", datetime(2025, 1, 2, tzinfo=UTC), "1", "0.1", req, result, "Bench <A>"
         )
 
         async def lookup(record_id: str) -> _Saved | None:

@@ -1,0 +1,321 @@
+"""The diagnose and compare forms: multipart form fields ↔ DiagnoseIn / CompareIn.
+
+The chain, sources and tone list are the predict form's own fields (``forms``), so a
+bench described once reads the same on every page. A pasted spectrum becomes an upload
+named ``pasted.csv`` read as spectrum text, so pasted and uploaded spectra follow one path
+(and one set of error messages) through ``service.api.diagnosis``.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from pydantic import ValidationError
+
+from ..api.diagnose_schemas import CompareIn, DiagnoseIn
+from ..api.diagnosis import Upload
+from ..api.problems import Problem
+from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, _problem_field
+
+__all__ = [
+    "DIAGNOSE_LABELS",
+    "READ_KINDS",
+    "UNITS",
+    "WINDOWS",
+    "CompareForm",
+    "DiagnoseForm",
+    "attach_compare_problem",
+    "attach_diagnose_problem",
+    "blank_compare_form",
+    "blank_diagnose_form",
+    "parse_compare_form",
+    "parse_diagnose_form",
+]
+
+READ_KINDS = [
+    ("auto", "decide from the file"),
+    ("spectrum", "spectrum (frequency, amplitude)"),
+    ("time_record", "time record (samples)"),
+]
+UNITS = [("auto", "decide from the values"), ("linear", "linear"), ("db", "dB")]
+WINDOWS = [
+    ("hann", "Hann"),
+    ("flattop", "flat top"),
+    ("rectangular", "rectangular (none)"),
+    ("hamming", "Hamming"),
+    ("blackmanharris", "Blackman-Harris"),
+    ("unknown", "unknown"),
+]
+
+#: Field words of the diagnose form that the predict form does not have.
+DIAGNOSE_LABELS = {
+    **FIELD_LABELS,
+    "spectrum_text": "Pasted spectrum",
+    "file": "File",
+    "upload_kind": "File holds",
+    "upload_channel": "Channel",
+    "upload_sample_rate_hz": "Record sample rate",
+    "upload_unit": "Amplitude unit",
+    "upload_window": "Window",
+    "threshold_db": "Peak threshold",
+    "lines": "Analysis lines (time records)",
+    "share_title": "Title of the link",
+}
+_UPLOAD_FIELDS = ("channel", "sample_rate_hz", "unit", "window", "kind")
+
+
+@dataclass
+class DiagnoseForm:
+    """A parsed diagnose form: the request (None when invalid), what to show, the input."""
+
+    req: DiagnoseIn | None
+    state: FormState
+    origin: _Origin
+    upload: Upload | None = None
+    pasted: bool = False
+    share: bool = False
+    title: str | None = None
+
+
+def blank_diagnose_form() -> FormState:
+    st = FormState()
+    st.values = {
+        "sample_rate_hz": "",
+        "aa_family": "",
+        "threshold_db": "10",
+        "upload_kind": "auto",
+        "upload_unit": "auto",
+        "upload_window": "hann",
+        "upload_channel": "0",
+    }
+    return st
+
+
+def _file_target(pasted: bool) -> str:
+    return "spectrum_text" if pasted else "file"
+
+
+def parse_diagnose_form(form: Mapping[str, str], upload: Upload | None) -> DiagnoseForm:
+    """Validate the diagnose form. ``form`` holds the text fields, ``upload`` the file."""
+    req_dict, st, origin = _build_request(form)
+    text = form.get("spectrum_text", "")
+    pasted = bool(text.strip())
+    out = DiagnoseForm(None, st, origin, pasted=pasted)
+    out.share = form.get("share", "") in ("1", "on", "true")
+    out.title = form.get("share_title", "").strip()[:200] or None
+    if pasted and upload is not None:
+        st.add_error(
+            "spectrum_text",
+            DIAGNOSE_LABELS["spectrum_text"],
+            "paste a spectrum or choose a file, not both (clear the text box to use the file)",
+        )
+    elif not pasted and upload is None:
+        st.add_error(
+            "spectrum_text",
+            DIAGNOSE_LABELS["spectrum_text"],
+            "paste a spectrum (frequency, amplitude per line) or choose a file",
+        )
+    if pasted:
+        upload = Upload(data=text.encode("utf-8"), filename="pasted.csv")
+    out.upload = upload
+    read: dict[str, Any] = {}
+    for key in _UPLOAD_FIELDS:
+        raw = form.get(f"upload_{key}", "").strip()
+        if raw:
+            read[key] = raw
+    if pasted:
+        read["kind"] = "spectrum"
+    read.setdefault("channel", "0")
+    req_dict["upload"] = read
+    lines = req_dict.pop("lines", None)
+    if lines is not None:
+        req_dict["spectrum_options"] = {"lines": lines}
+    raw = form.get("threshold_db", "").strip()
+    if raw:
+        req_dict["threshold_db"] = raw
+    if st.summary:
+        return out
+    try:
+        out.req = DiagnoseIn.model_validate(req_dict)
+    except ValidationError as exc:
+        for e in exc.errors():
+            loc = [p for p in e.get("loc", ()) if not (isinstance(p, str) and "[" in p)]
+            fid, words = _locate_diagnose(loc, origin, pasted)
+            st.add_error(fid, words, _message(e))
+    return out
+
+
+def _message(e: Mapping[str, Any]) -> str:
+    msg = str(e.get("msg", "invalid")).removeprefix("Value error, ")
+    value = e.get("input")
+    if e.get("type") != "missing" and isinstance(value, str | int | float):
+        msg += f" (got {value!r})"
+    return msg
+
+
+def _locate_diagnose(loc: Sequence[Any], origin: _Origin, pasted: bool) -> tuple[str | None, str]:
+    head = loc[0] if loc else None
+    if head == "upload":
+        sub = loc[1] if len(loc) > 1 else None
+        if sub in _UPLOAD_FIELDS:
+            fid = f"upload_{sub}"
+            return fid, f"{DIAGNOSE_LABELS[fid]} (upload.{sub})"
+        return _file_target(pasted), DIAGNOSE_LABELS[_file_target(pasted)]
+    if head == "spectrum_options":
+        return "lines", f"{DIAGNOSE_LABELS['lines']} (spectrum_options.lines)"
+    if head == "threshold_db":
+        return "threshold_db", f"{DIAGNOSE_LABELS['threshold_db']} (threshold_db)"
+    if head in ("spectrum", "time_record", "file"):
+        return _file_target(pasted), DIAGNOSE_LABELS[_file_target(pasted)]
+    return _locate(loc, origin)
+
+
+def attach_diagnose_problem(f: DiagnoseForm, p: Problem) -> None:
+    """Put an error the computation raised next to the field it names."""
+    name = p.field or ""
+    head = re.split(r"[.\[]", name, maxsplit=1)[0]
+    if head in ("file", "spectrum", "time_record"):
+        fid = _file_target(f.pasted)
+        words = DIAGNOSE_LABELS[fid]
+        if f.pasted and "line" not in p.detail and "." in name:
+            words += f" ({name.split('.', 1)[1]})"
+        f.state.add_error(fid, words, p.detail)
+        return
+    if head in ("upload", "spectrum_options", "threshold_db"):
+        loc: list[Any] = name.split(".")
+        fid, words = _locate_diagnose(loc, f.origin, f.pasted)
+        f.state.add_error(fid, words, p.detail)
+        return
+    fid2, words2 = _problem_field(p, f.origin)
+    f.state.add_error(fid2, words2, p.detail)
+
+
+# --------------------------------------------------------------------------- compare
+
+SIDES = ("a", "b")
+_CAPTURE_FIELDS = {
+    "spectrum_text": "pasted spectrum",
+    "file": "file",
+    "sample_rate_hz": "sample rate",
+    "aa_family": "anti-alias filter",
+    "aa_order": "filter order",
+    "aa_cutoff_hz": "filter cutoff",
+    "kind": "file holds",
+    "unit": "amplitude unit",
+}
+COMPARE_LABELS = {
+    **{f"{s}_{k}": f"Capture {s.upper()}, {v}" for s in SIDES for k, v in _CAPTURE_FIELDS.items()},
+    "threshold_db": "Peak threshold",
+    "max_true_hz": "Highest true frequency",
+    "share_title": "Title of the link",
+}
+
+
+@dataclass
+class CompareForm:
+    req: CompareIn | None
+    state: FormState
+    uploads: dict[str, Upload] = field(default_factory=dict)
+    pasted: dict[str, bool] = field(default_factory=dict)
+    share: bool = False
+    title: str | None = None
+
+
+def blank_compare_form() -> FormState:
+    st = FormState()
+    st.values = {"threshold_db": "10"}
+    for s in SIDES:
+        st.values.update({f"{s}_kind": "auto", f"{s}_unit": "auto", f"{s}_aa_family": ""})
+    return st
+
+
+def parse_compare_form(form: Mapping[str, str], files: Mapping[str, Upload]) -> CompareForm:
+    """Validate the compare form; ``files`` maps ``a``/``b`` to their uploaded file."""
+    st = FormState()
+    st.values = dict(form)
+    out = CompareForm(None, st)
+    out.share = form.get("share", "") in ("1", "on", "true")
+    out.title = form.get("share_title", "").strip()[:200] or None
+    req: dict[str, Any] = {}
+    for s in SIDES:
+        text = form.get(f"{s}_spectrum_text", "")
+        pasted = bool(text.strip())
+        out.pasted[s] = pasted
+        fid = f"{s}_spectrum_text"
+        if pasted and s in files:
+            st.add_error(fid, COMPARE_LABELS[fid], "paste a spectrum or choose a file, not both")
+        elif not pasted and s not in files:
+            st.add_error(fid, COMPARE_LABELS[fid], "paste a spectrum or choose a file")
+        up = Upload(text.encode("utf-8"), f"pasted-{s}.csv") if pasted else files.get(s)
+        if up is not None:
+            out.uploads[s] = up
+        cap: dict[str, Any] = {}
+        rate = form.get(f"{s}_sample_rate_hz", "").strip()
+        if rate:
+            cap["sample_rate_hz"] = rate
+        family = form.get(f"{s}_aa_family", "").strip()
+        if family:
+            aa = {"family": family}
+            for key in ("order", "cutoff_hz"):
+                raw = form.get(f"{s}_aa_{key}", "").strip()
+                if raw:
+                    aa[key] = raw
+            cap["anti_alias"] = aa
+        read: dict[str, Any] = {
+            "kind": "spectrum" if pasted else (form.get(f"{s}_kind", "").strip() or "auto"),
+            "unit": form.get(f"{s}_unit", "").strip() or "auto",
+        }
+        name = (up.filename if up else "").lower()
+        if rate and not name.endswith((".wav", ".wave")):
+            read["sample_rate_hz"] = rate
+        cap["upload"] = read
+        req[s] = cap
+    for key in ("threshold_db", "max_true_hz"):
+        raw = form.get(key, "").strip()
+        if raw:
+            req[key] = raw
+    if st.summary:
+        return out
+    try:
+        out.req = CompareIn.model_validate(req)
+    except ValidationError as exc:
+        for e in exc.errors():
+            loc = [p for p in e.get("loc", ()) if not (isinstance(p, str) and "[" in p)]
+            fid, words = _locate_compare(loc, out.pasted)
+            st.add_error(fid, words, _message(e))
+    return out
+
+
+def _locate_compare(loc: Sequence[Any], pasted: Mapping[str, bool]) -> tuple[str | None, str]:
+    if not loc:
+        return None, "Inputs"
+    head = loc[0]
+    if head in SIDES:
+        sub = loc[1] if len(loc) > 1 else None
+        if sub == "anti_alias":
+            leaf = next((p for p in loc[2:] if p in ("order", "cutoff_hz")), None)
+            fid = f"{head}_aa_{leaf}" if leaf else f"{head}_aa_family"
+        elif sub == "sample_rate_hz":
+            fid = f"{head}_sample_rate_hz"
+        elif sub == "upload" and len(loc) > 2 and loc[2] in ("kind", "unit"):
+            fid = f"{head}_{loc[2]}"
+        elif sub == "upload" and len(loc) > 2 and loc[2] == "sample_rate_hz":
+            fid = f"{head}_sample_rate_hz"
+        else:
+            fid = f"{head}_spectrum_text" if pasted.get(head) else f"{head}_file"
+        return fid, COMPARE_LABELS[fid]
+    if head in ("threshold_db", "max_true_hz"):
+        return head, f"{COMPARE_LABELS[head]} ({head})"
+    return None, str(head)
+
+
+def attach_compare_problem(f: CompareForm, p: Problem) -> None:
+    loc: list[Any] = re.split(r"[.\[\]]+", p.field or "")
+    loc = [x for x in loc if x]
+    if loc and loc[0] in SIDES and len(loc) > 1 and loc[1] in ("file", "spectrum"):
+        loc = [loc[0], "file"]
+    fid, words = _locate_compare(loc, f.pasted)
+    f.state.add_error(fid, words, p.detail)

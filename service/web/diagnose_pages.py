@@ -1,0 +1,504 @@
+"""The diagnose and compare pages, and saving any result under a link.
+
+Both pages compute through ``service.api.diagnosis`` (the JSON API's own functions), in a
+worker thread. A result is shown, and saved, from the API payload plus the measured
+spectrum; a saved page is rendered from the stored record alone, so a link shows the
+same verdicts after a restart or an upgrade.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+from fastapi import APIRouter, Request
+from fastapi.responses import HTMLResponse
+from pydantic import ValidationError
+from starlette.concurrency import run_in_threadpool
+from starlette.datastructures import FormData, UploadFile
+
+from .. import COMPUTATION_VERSION, __version__
+from ..api.compute import fold_payload
+from ..api.diagnose_schemas import DiagnoseIn
+from ..api.diagnosis import Measured, Upload, compare_payload, diagnose_payload
+from ..api.problems import Problem
+from ..api.schemas import FoldIn, chain_from_request
+from ..api.store_access import StoreAccess
+from ..config import Settings
+from ..core.chain import Chain
+from ..core.spectrum import noise_floor
+from ..demo import demo_diagnose_request
+from . import figures
+from .diagnose_forms import (
+    COMPARE_LABELS,
+    DIAGNOSE_LABELS,
+    attach_compare_problem,
+    attach_diagnose_problem,
+    blank_compare_form,
+    blank_diagnose_form,
+    parse_compare_form,
+    parse_diagnose_form,
+)
+from .forms import FormState, form_from_request
+
+__all__ = [
+    "compare_result_context",
+    "diagnose_result_context",
+    "error_page",
+    "request_json",
+    "router",
+    "save_result",
+]
+
+router = APIRouter(include_in_schema=False)
+
+#: Form fields the diagnose and compare forms may send (sources add a few per row).
+MAX_FORM_FIELDS = 2000
+#: Peaks listed in the table; the rest stay on the plot (a page must stay light).
+MAX_TABLE_PEAKS = 400
+#: Verdicts that mean "folded back": drawn and counted as aliases.
+ALIAS_KEYS = ("alias", "family_alias", "mirror")
+
+
+def _render(
+    request: Request, name: str, ctx: dict[str, Any], status_code: int = 200
+) -> HTMLResponse:
+    from .pages import render
+
+    return render(request, name, ctx, status_code=status_code)
+
+
+def error_page(request: Request, p: Problem) -> HTMLResponse:
+    """A problem as an HTML page with its status (e.g. 503 when the store is away)."""
+    headers = dict(p.headers or {})
+    response = _render(
+        request,
+        "error.html",
+        {"active": "", "status": p.status, "title": p.title, "detail": p.detail},
+        status_code=p.status,
+    )
+    response.headers.update(headers)
+    return response
+
+
+# --------------------------------------------------------------------------- reading forms
+
+
+async def _read_form(
+    request: Request, files: tuple[str, ...]
+) -> tuple[FormData, dict[str, Upload]]:
+    """The multipart (or urlencoded) form, with the size limit checked before reading."""
+    settings: Settings = request.app.state.settings
+    limit = settings.max_upload_bytes
+    declared = request.headers.get("content-length", "")
+    if declared.isdigit() and int(declared) > limit + 1024 * 1024:
+        raise Problem(
+            413,
+            f"the form is {int(declared):,} bytes; the limit is {limit:,} bytes",
+            field=files[0],
+            value=int(declared),
+            limit=limit,
+        )
+    try:
+        form = await request.form(
+            max_files=len(files), max_fields=MAX_FORM_FIELDS, max_part_size=limit
+        )
+    except Exception as exc:  # malformed multipart, too many parts, part too large
+        raise Problem(400, f"the form cannot be read: {exc}", field=files[0]) from exc
+    uploads: dict[str, Upload] = {}
+    for name in files:
+        item = form.get(name)
+        if not isinstance(item, UploadFile) or not item.filename:
+            continue
+        if item.size is not None and item.size > limit:
+            raise Problem(
+                413, f"the file is {item.size:,} bytes; the limit is {limit:,} bytes", field=name
+            )
+        data = await item.read()
+        if data:
+            uploads[name] = Upload(data=data, filename=item.filename)
+    return form, uploads
+
+
+def _text_fields(form: FormData) -> dict[str, str]:
+    return {k: v for k, v in form.items() if isinstance(v, str)}
+
+
+# --------------------------------------------------------------------------- saving
+
+
+async def save_result(
+    request: Request,
+    kind: str,
+    stored_request: dict[str, Any],
+    result: dict[str, Any],
+    spectrum: tuple[np.ndarray, np.ndarray] | None,
+    title: str | None,
+) -> dict[str, str]:
+    """Save a result as the JSON API does; returns the link and the delete token.
+
+    Raises Problem 503 when the store does not answer, 413 when the result is too large.
+    """
+    access: StoreAccess = request.app.state.store_access
+    try:
+        rid, token = await access.call(
+            access.store.create,
+            kind,
+            stored_request,
+            result,
+            COMPUTATION_VERSION,
+            __version__,
+            spectrum=spectrum,
+            title=title,
+        )
+    except ValueError as exc:
+        raise Problem(413, str(exc), field="request") from exc
+    base = str(request.base_url).rstrip("/")
+    return {"id": rid, "token": token, "url": f"{base}/d/{rid}", "path": f"/d/{rid}"}
+
+
+def _stored_request(req: Any) -> dict[str, Any]:
+    dumped: dict[str, Any] = req.model_dump(
+        mode="json", exclude_none=True, exclude={"spectrum", "time_record"}
+    )
+    return dumped
+
+
+# --------------------------------------------------------------------------- diagnose view
+
+
+def _db(values: np.ndarray) -> np.ndarray:
+    out: np.ndarray = 20.0 * np.log10(np.maximum(np.asarray(values, dtype=np.float64), 1e-300))
+    return out
+
+
+def _gain_curve(request_dict: Mapping[str, Any], out: Mapping[str, Any]) -> Any:
+    """The chain's gain for the folding diagram, from the stored request (None if the
+    chain cannot be rebuilt, e.g. a rate that came from a WAV header with no filter)."""
+    try:
+        req = DiagnoseIn.model_validate(request_dict)
+        if req.chain is not None or req.sample_rate_hz is not None:
+            chain = chain_from_request(req)  # type: ignore[arg-type]
+        else:
+            aa = req.anti_alias.to_core() if req.anti_alias is not None else None
+            chain = Chain.shorthand(float(out["final_rate_hz"]), aa)
+        rate = float(out["final_rate_hz"])
+        tops = [p["true_hz"] for p in out["peaks"] if p.get("true_hz") is not None]
+        top = max([*tops, rate])
+        x_max = figures.zone_count(top * 1.03, rate) * rate / 2.0
+        return figures.chain_gain_curve(chain, x_max)
+    except (ValueError, ValidationError, TypeError, KeyError):
+        return None
+
+
+def _headline(out: Mapping[str, Any]) -> dict[str, Any]:
+    peaks = out["peaks"]
+    keys = [figures.display_verdict(p) for p in peaks]
+    aliases = [p for p, k in zip(peaks, keys, strict=True) if k in ALIAS_KEYS]
+    by_source: dict[str, int] = {}
+    for p in aliases:
+        name = p.get("source") or "an unnamed harmonic family"
+        by_source[name] = by_source.get(name, 0) + 1
+    return {
+        "peaks": len(peaks),
+        "aliases": len(aliases),
+        "aliases_in_band": sum(1 for p in aliases if p.get("in_band")),
+        "real": sum(1 for k in keys if k in ("direct", "family")),
+        "unexplained": sum(1 for k in keys if k == "unexplained"),
+        "by_source": sorted(by_source.items(), key=lambda kv: (-kv[1], kv[0])),
+    }
+
+
+def _peak_rows(out: Mapping[str, Any]) -> list[dict[str, Any]]:
+    rows = []
+    for i, p in enumerate(out["peaks"]):
+        key = figures.display_verdict(p)
+        rows.append(
+            {
+                **p,
+                "index": i,
+                "key": key,
+                "verdict_text": figures.VERDICT_STYLES[key][0],
+                "is_alias": key in ALIAS_KEYS,
+            }
+        )
+    # Aliases first, the most confident first: what the engineer came to see.
+    rows.sort(key=lambda r: (not r["is_alias"], -r["confidence"], r["freq_hz"]))
+    return rows
+
+
+def diagnose_result_context(
+    out: dict[str, Any],
+    spectrum: tuple[np.ndarray, np.ndarray] | None,
+    request_dict: Mapping[str, Any],
+) -> dict[str, Any]:
+    """Everything the result part of the diagnose page shows, from the API payload and
+    the spectrum (frequency, Hz; linear amplitude) it was computed from."""
+    peaks_fig = [
+        {
+            "freq_hz": p["freq_hz"],
+            "level_db": p["amplitude_db"],
+            "verdict": figures.display_verdict(p),
+            "explanation": p["explanation"],
+            "index": i,
+        }
+        for i, p in enumerate(out["peaks"])
+    ]
+    marks = {
+        "nyquist_hz": out["nyquist_hz"],
+        "protected_edge_hz": out.get("protected_edge_hz"),
+        "band_hz": out.get("band_hz"),
+    }
+    if spectrum is not None:
+        freq, amp = (np.asarray(x, dtype=np.float64) for x in spectrum)
+        floor = _db(noise_floor(amp))
+        spectrum_fig = figures.measured_spectrum(
+            freq, _db(amp), floor_db=floor, peaks=peaks_fig, **marks
+        )
+    else:
+        spectrum_fig = figures.measured_spectrum(
+            [p["freq_hz"] for p in peaks_fig],
+            [p["level_db"] for p in peaks_fig],
+            peaks=peaks_fig,
+            title="Measured peaks (the spectrum itself was not kept)",
+            **marks,
+        )
+        spectrum_fig["data"][0]["mode"] = "markers"
+        spectrum_fig["data"][0]["marker"] = {"size": 1, "color": figures.COLOURS["spectrum"]}
+    rows = _peak_rows(out)
+    return {
+        "out": out,
+        "headline": _headline(out),
+        "rows": rows[:MAX_TABLE_PEAKS],
+        "rows_total": len(rows),
+        "spectrum_fig": spectrum_fig,
+        "fold_fig": figures.diagnosis_folding_diagram(out, _gain_curve(request_dict, out)),
+        "has_spectrum": spectrum is not None,
+    }
+
+
+def _demo_request() -> DiagnoseIn:
+    return DiagnoseIn.model_validate(demo_diagnose_request())
+
+
+def _demo_form() -> FormState:
+    st = form_from_request(demo_diagnose_request())
+    st.values.pop("lines", None)
+    for key, value in blank_diagnose_form().values.items():
+        if not st.values.get(key):
+            st.values[key] = value
+    return st
+
+
+def _compute_demo(settings: Settings) -> tuple[DiagnoseIn, dict[str, Any], Measured]:
+    req = _demo_request()
+    out, m = diagnose_payload(req, settings, None)
+    return req, out, m
+
+
+async def _diagnose_page(
+    request: Request,
+    state: FormState,
+    result: dict[str, Any] | None,
+    status_code: int = 200,
+    demo: bool = False,
+    saved: dict[str, str] | None = None,
+) -> HTMLResponse:
+    ctx = {
+        "active": "diagnose",
+        "form": state,
+        "result": result,
+        "demo": demo,
+        "saved": saved,
+    }
+    return _render(request, "diagnose.html", ctx, status_code=status_code)
+
+
+@router.get("/diagnose", response_class=HTMLResponse)
+async def diagnose_form(request: Request, demo: str | None = None) -> HTMLResponse:
+    if demo in (None, "", "0"):
+        return await _diagnose_page(request, blank_diagnose_form(), None)
+    settings: Settings = request.app.state.settings
+    req, out, m = await run_in_threadpool(_compute_demo, settings)
+    ctx = await run_in_threadpool(
+        diagnose_result_context, out, (m.freq_hz, m.amplitude), _stored_request(req)
+    )
+    return await _diagnose_page(request, _demo_form(), ctx, demo=True)
+
+
+@router.post("/diagnose", response_class=HTMLResponse)
+async def diagnose_submit(request: Request) -> HTMLResponse:
+    settings: Settings = request.app.state.settings
+    try:
+        form, files = await _read_form(request, ("file",))
+    except Problem as p:
+        st = blank_diagnose_form()
+        st.add_error("file", DIAGNOSE_LABELS["file"], p.detail)
+        return await _diagnose_page(request, st, None, status_code=p.status)
+    f = parse_diagnose_form(_text_fields(form), files.get("file"))
+    await form.close()
+    if f.req is None:
+        return await _diagnose_page(request, f.state, None, status_code=422)
+    try:
+        out, m = await run_in_threadpool(diagnose_payload, f.req, settings, f.upload)
+    except Problem as p:
+        attach_diagnose_problem(f, p)
+        return await _diagnose_page(request, f.state, None, status_code=422)
+    stored = _stored_request(f.req)
+    ctx = await run_in_threadpool(diagnose_result_context, out, (m.freq_hz, m.amplitude), stored)
+    saved = None
+    if f.share:
+        try:
+            saved = await save_result(
+                request, "diagnose", stored, out, (m.freq_hz, m.amplitude), f.title
+            )
+        except Problem as p:
+            return error_page(request, p)
+    # The pasted text is not sent back: it may be megabytes, and the result shows it.
+    f.state.values.pop("spectrum_text", None)
+    return await _diagnose_page(request, f.state, ctx, saved=saved)
+
+
+# --------------------------------------------------------------------------- compare view
+
+
+def _compare_rows(cap: Mapping[str, Any]) -> list[dict[str, Any]]:
+    rows = []
+    for i, p in enumerate(cap["peaks"]):
+        key = figures.compare_key(p["verdict"])
+        level = p.get("amplitude")
+        rows.append(
+            {
+                **p,
+                "index": i,
+                "key": key,
+                "verdict_text": figures.COMPARE_STYLES[key][0],
+                "level_db": 20 * math.log10(level) if level and level > 0 else None,
+            }
+        )
+    rows.sort(key=lambda r: (r["key"] != "moves", r["freq_hz"]))
+    return rows[:MAX_TABLE_PEAKS]
+
+
+def compare_result_context(
+    out: dict[str, Any], spectra: dict[str, tuple[np.ndarray, np.ndarray] | None]
+) -> dict[str, Any]:
+    """The result part of the compare page; ``spectra`` maps a/b to (Hz, linear) or None."""
+    shown = {
+        k: (np.asarray(v[0], dtype=np.float64), _db(v[1])) if v is not None else None
+        for k, v in spectra.items()
+    }
+    caps = {s: out[s] for s in ("a", "b")}
+    moved = sum(1 for c in caps.values() for p in c["peaks"] if p["verdict"] == "moves")
+    stayed = sum(1 for c in caps.values() for p in c["peaks"] if p["verdict"] == "stays")
+    return {
+        "out": out,
+        "fig": figures.compare_spectra(out, shown),
+        "rows": {s: _compare_rows(c) for s, c in caps.items()},
+        "moved_a": sum(1 for p in out["a"]["peaks"] if p["verdict"] == "moves"),
+        "moved_b": sum(1 for p in out["b"]["peaks"] if p["verdict"] == "moves"),
+        "moved": moved,
+        "stayed": stayed,
+        "has_spectrum": any(v is not None for v in spectra.values()),
+    }
+
+
+async def _compare_page(
+    request: Request,
+    state: FormState,
+    result: dict[str, Any] | None,
+    status_code: int = 200,
+    saved: dict[str, str] | None = None,
+) -> HTMLResponse:
+    ctx = {"active": "compare", "form": state, "result": result, "saved": saved}
+    return _render(request, "compare.html", ctx, status_code=status_code)
+
+
+@router.get("/compare", response_class=HTMLResponse)
+async def compare_form(request: Request) -> HTMLResponse:
+    return await _compare_page(request, blank_compare_form(), None)
+
+
+@router.post("/compare", response_class=HTMLResponse)
+async def compare_submit(request: Request) -> HTMLResponse:
+    settings: Settings = request.app.state.settings
+    try:
+        form, files = await _read_form(request, ("a_file", "b_file"))
+    except Problem as p:
+        st = blank_compare_form()
+        st.add_error("a_file", COMPARE_LABELS["a_file"], p.detail)
+        return await _compare_page(request, st, None, status_code=p.status)
+    f = parse_compare_form(_text_fields(form), {k[0]: v for k, v in files.items()})
+    await form.close()
+    if f.req is None:
+        return await _compare_page(request, f.state, None, status_code=422)
+    try:
+        out, measured = await run_in_threadpool(compare_payload, f.req, settings, f.uploads)
+    except Problem as p:
+        attach_compare_problem(f, p)
+        return await _compare_page(request, f.state, None, status_code=422)
+    spectra = {s: (m.freq_hz, m.amplitude) for s, m in measured.items()}
+    ctx = await run_in_threadpool(compare_result_context, out, spectra)
+    saved = None
+    if f.share:
+        try:
+            # One spectrum per record: a saved comparison keeps its peaks, not its spectra.
+            saved = await save_result(
+                request, "compare", _stored_request(f.req), out, None, f.title
+            )
+        except Problem as p:
+            return error_page(request, p)
+    for s in ("a", "b"):
+        f.state.values.pop(f"{s}_spectrum_text", None)
+    return await _compare_page(request, f.state, ctx, saved=saved)
+
+
+# --------------------------------------------------------------------------- share
+
+
+def _share_fold(body: str, settings: Settings) -> tuple[dict[str, Any], dict[str, Any]]:
+    req = FoldIn.model_validate_json(body)
+    return req.model_dump(mode="json", exclude_none=True), fold_payload(req, settings)
+
+
+@router.post("/share", response_class=HTMLResponse)
+async def share(request: Request) -> HTMLResponse:
+    """Save a result the page can recompute from a small request: a prediction (its
+    request JSON travels in the form) or the demo diagnosis (made by the app itself)."""
+    settings: Settings = request.app.state.settings
+    form = await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
+    kind = str(form.get("kind", ""))
+    title = str(form.get("title", "")).strip()[:200] or None
+    try:
+        if kind == "fold":
+            try:
+                stored, result = await run_in_threadpool(
+                    _share_fold, str(form.get("request", "")), settings
+                )
+            except ValidationError as exc:
+                msg = exc.errors()[0]["msg"]
+                raise Problem(422, f"the saved request is not valid: {msg}") from None
+            saved = await save_result(request, "fold", stored, result, None, title)
+        elif kind == "diagnose_demo":
+            req, out, m = await run_in_threadpool(_compute_demo, settings)
+            saved = await save_result(
+                request,
+                "diagnose",
+                _stored_request(req),
+                out,
+                (m.freq_hz, m.amplitude),
+                title or "Demo bench diagnosis",
+            )
+        else:
+            raise Problem(422, f"kind={kind!r} cannot be shared from this form", field="kind")
+    except Problem as p:
+        return error_page(request, p)
+    return _render(request, "shared.html", {"active": "", "saved": saved, "kind": kind})
+
+
+def request_json(req: Any) -> str:
+    """A request as compact JSON for a hidden form field."""
+    return json.dumps(req.model_dump(mode="json", exclude_none=True), separators=(",", ":"))
