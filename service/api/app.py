@@ -13,8 +13,10 @@ from .. import COMPUTATION_VERSION, __version__
 from ..config import Settings, get_settings
 from .bodies import ResponseCache
 from .examples import install_examples
+from .observability import install_observability
 from .problems import install_problem_handlers
 from .routes import diagnose, diagnoses, fold, health
+from .security import install_security
 from .store_access import StoreAccess
 
 __all__ = ["create_app"]
@@ -59,6 +61,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.settings = settings
     app.state.fold_cache = ResponseCache(settings.fold_cache_entries)
     install_problem_handlers(app)
+    install_security(app, settings)
+    install_observability(app, settings)
     app.include_router(health.router)
     app.include_router(fold.router)
     app.include_router(diagnose.router)
