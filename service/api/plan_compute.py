@@ -35,8 +35,12 @@ __all__ = [
 #: Most tones one plan evaluates (each is followed over the whole speed grid for every
 #: candidate rate); the service's own ``max_tones`` applies when it is lower.
 PLAN_MAX_TONES = 20_000
-#: Largest run-up computed: lines × speed points.
-RUNUP_MAX_VALUES = 2_000_000
+#: Largest plan searched: tones × candidate rates × candidate filters (each pair is
+#: evaluated on a 200-point speed grid; about 5 s on one core at the limit).
+PLAN_MAX_WORK = 10_000_000
+#: Largest run-up computed: lines × lines of interest × speed points (the crossing
+#: search compares every aliased line with every line of interest at every speed).
+RUNUP_MAX_WORK = 20_000_000
 #: Largest run-up sent: lines × points per array (the grid is thinned evenly to fit).
 RUNUP_JSON_VALUES = 200_000
 RUNUP_JSON_POINTS = 500
@@ -52,7 +56,11 @@ class PlanProblem(Problem):
 
     def __init__(self, detail: str, suggestions: list[str], *, field: str) -> None:
         super().__init__(
-            422, detail, field=field, title="No setup meets the requirements", kind="plan-impossible"
+            422,
+            detail,
+            field=field,
+            title="No setup meets the requirements",
+            kind="plan-impossible",
         )
         self.suggestions = suggestions
 
@@ -387,18 +395,24 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
             field="runup",
         )
     n = req.runup.n_speeds
-    n_lines = len(tones) + sum(
-        not isinstance(x, str) for x in (req.runup.orders_of_interest or ())
-    )
-    if n * n_lines > RUNUP_MAX_VALUES:
-        limit = max(2, RUNUP_MAX_VALUES // n_lines)
+    interest = req.runup.orders_of_interest
+    n_lines = len(tones) + sum(not isinstance(x, str) for x in interest or ())
+    n_targets = len(interest) if interest else n_lines
+    work = n * n_lines * n_targets
+    if work > RUNUP_MAX_WORK:
+        limit = RUNUP_MAX_WORK // (n_lines * n_targets)
+        fewer = (
+            f"use n_speeds <= {limit}"
+            if limit >= 2
+            else "name a few orders_of_interest, or plan for fewer sources"
+        )
         raise Problem(
             422,
-            f"a run-up of {n_lines} lines at {n} speeds is more than the limit of "
-            f"{RUNUP_MAX_VALUES:,} values; use n_speeds <= {limit} or fewer sources",
-            field="runup.n_speeds",
+            f"a run-up of {n_lines} lines against {n_targets} lines of interest at {n} "
+            f"speeds is {work:,} comparisons, more than the limit of {RUNUP_MAX_WORK:,}; " + fewer,
+            field="runup.n_speeds" if limit >= 2 else "runup.orders_of_interest",
             value=n,
-            limit=limit,
+            limit=limit if limit >= 2 else None,
         )
     with _core_errors("runup"):
         ru = pl.run_up(
@@ -414,6 +428,33 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
     return _runup_dict(ru, RUNUP_MAX_CROSSINGS)
 
 
+def _check_work(req: PlanIn, n_tones: int) -> None:
+    n_rates = (
+        len(set(req.rates_hz))
+        if req.rates_hz is not None
+        else len(pl.ANALYSER_RATES_HZ if req.rate_series == "analyser" else pl.CONVERTER_RATES_HZ)
+    )
+    n_filters = len(req.filters) if req.filters is not None else len(pl.DEFAULT_FILTERS)
+    work = n_tones * n_rates * n_filters
+    if work <= PLAN_MAX_WORK:
+        return
+    if req.rates_hz is not None and n_rates > 1:
+        field = "rates_hz"
+    elif req.filters is not None and n_filters > 1:
+        field = "filters"
+    else:
+        field = "sources" if req.sources else "tones"
+    raise Problem(
+        422,
+        f"{n_tones:,} tones × {n_rates} rates × {n_filters} filters is {work:,} "
+        f"combinations to search, more than the limit of {PLAN_MAX_WORK:,}; offer fewer "
+        "rates or filters, or plan for fewer tones",
+        field=field,
+        value=work,
+        limit=PLAN_MAX_WORK,
+    )
+
+
 def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
     """Plan (and, when asked, the run-up) for a validated request, as plain JSON data.
 
@@ -422,6 +463,7 @@ def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
     """
     tones = tones_from_request(req, min(settings.max_tones, PLAN_MAX_TONES))  # type: ignore[arg-type]
     core_req = plan_request_from_model(req, tones=tones)
+    _check_work(req, len(tones))
     try:
         with _core_errors("body"):
             result = pl.plan(core_req)

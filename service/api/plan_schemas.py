@@ -123,8 +123,9 @@ class RunUpIn(StrictModel):
         200, ge=2, le=MAX_RUNUP_SPEEDS, description="Points of the speed grid, 2 to 5000"
     )
     tolerance_hz: Hz | None = Field(
-        None, description="How close two lines must come to count as crossing, Hz; default "
-        "one bin of the recommended setup"
+        None,
+        description="How close two lines must come to count as crossing, Hz; default "
+        "one bin of the recommended setup",
     )
 
 
