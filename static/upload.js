@@ -14,6 +14,12 @@
     });
   }
 
+  // The last upload's progress, kept on the window (which outlives the replaced document)
+  // so a page or a test can tell how far it got.
+  function record(value) {
+    window.foldwiseUpload = { percent: value };
+  }
+
   function show(html) {
     // The answer is a whole page from this origin: replace the document with it.
     document.open();
@@ -47,11 +53,13 @@
         xhr.upload.addEventListener("progress", function (e) {
           if (e.lengthComputable) {
             bar.value = percent(e.loaded, e.total);
+            record(bar.value);
             status.textContent = "Sending the file… " + bar.value + " %";
           }
         });
         xhr.upload.addEventListener("load", function () {
           bar.value = 100;
+          record(100);
           status.textContent = "Sent; computing the result…";
         });
         xhr.addEventListener("load", function () {
