@@ -337,6 +337,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print the API's JSON instead of a table")
     p.set_defaults(func=_cmd_fold)
 
+    from .cli_plan import register as register_plan
+
+    register_plan(sub)
+
     d = sub.add_parser("diagnose", help="which peaks of a spectrum or record are aliases")
     d.add_argument(
         "file",

@@ -15,7 +15,7 @@ from .bodies import ResponseCache
 from .examples import install_examples
 from .observability import install_observability
 from .problems import install_problem_handlers
-from .routes import diagnose, diagnoses, fold, health
+from .routes import diagnose, diagnoses, fold, health, plan
 from .security import install_security
 from .store_access import StoreAccess
 
@@ -28,6 +28,12 @@ Foldwise tells which peaks of a machine spectrum are real and which are aliases 
 back from above the Nyquist frequency, and of what.
 
 * **fold** — predict where each known tone lands through an acquisition chain, and how strongly.
+* **diagnose** — which peaks of a measured spectrum or time record are aliases, of what, how sure.
+* **compare-rates** — two captures at different sample rates: peaks that stay are real, peaks
+  that move are aliases, with the true frequencies consistent with both.
+* **plan** — the cheapest sample rate, anti-alias filter and analysis lines that keep aliases
+  out of the band of interest over the whole speed range, with the run-up folding.
+* **diagnoses** — save any result under an unguessable link; delete it with its token.
 
 Errors are `application/problem+json` (RFC 9457) and name the field, the value and the limit.
 
@@ -66,6 +72,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(health.router)
     app.include_router(fold.router)
     app.include_router(diagnose.router)
+    app.include_router(plan.router)
     app.include_router(diagnoses.router)
     install_examples(app, settings)
 

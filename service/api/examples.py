@@ -118,8 +118,9 @@ def install_examples(app: Any, settings: Any) -> None:
             return app.openapi_schema  # type: ignore[no-any-return]
         schema = original()
         from .diagnose_schemas import CompareIn, DiagnoseIn
+        from .plan_schemas import PlanIn
 
-        register_models(schema, [FoldIn, DiagnoseIn, CompareIn])
+        register_models(schema, [FoldIn, DiagnoseIn, CompareIn, PlanIn])
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]
             content = op["responses"]["200"].setdefault("content", {})

@@ -19,6 +19,8 @@ from ..config import Settings
 from .compute import fold_payload
 from .diagnose_schemas import CompareIn, DiagnoseIn
 from .diagnosis import compare_payload, diagnose_payload
+from .plan_compute import plan_payload
+from .plan_schemas import PlanIn
 from .schemas import FoldIn
 
 __all__ = ["SAVEABLE", "SaveParts", "validate_for_kind"]
@@ -59,11 +61,20 @@ def _compare(req: BaseModel, settings: Settings) -> SaveParts:
     )
 
 
+def _plan(req: BaseModel, settings: Settings) -> SaveParts:
+    assert isinstance(req, PlanIn)
+    return SaveParts(
+        request=req.model_dump(mode="json", exclude_none=True),
+        result=plan_payload(req, settings),
+    )
+
+
 #: kind → (request model, compute-and-split function). Other kinds register here.
 SAVEABLE: dict[str, tuple[type[BaseModel], Callable[[BaseModel, Settings], SaveParts]]] = {
     "fold": (FoldIn, _fold),
     "diagnose": (DiagnoseIn, _diagnose),
     "compare": (CompareIn, _compare),
+    "plan": (PlanIn, _plan),
 }
 
 

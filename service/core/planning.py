@@ -244,7 +244,7 @@ def _find_tone(tones: ToneSet, name: str, what: str) -> int:
     if hits.size == 0:
         raise ValueError(f"{what}={name!r} matches no tone label (nor 'source: label')")
     if hits.size > 1:
-        options = ", ".join(repr(x) for x in full[hits][:5])
+        options = ", ".join(repr(str(x)) for x in full[hits][:5])
         raise ValueError(f"{what}={name!r} matches {hits.size} tones; use one of {options}")
     return int(hits[0])
 
@@ -1578,7 +1578,9 @@ def _suggestions(ctx: _Context, out: _Outcome, r: int, k: int, excess: float) ->
         good = np.flatnonzero(st.code[0] == 0)
         if good.size:
             g = int(good[0])
-            tips.append(f"or a {steeper[g].describe(st.cutoffs[0][g])} at {_rate(float(rates[r]))}")
+            what = steeper[g].describe(st.cutoffs[0][g])
+            article = "an" if what[:1] in "8" or what[:2] in ("11", "18") else "a"
+            tips.append(f"or {article} {what} at {_rate(float(rates[r]))}")
     # A lower requirement.
     if req.rejection_db is not None:
         tips.append(f"or accept {math.floor(float(req.rejection_db) - excess)} dB rejection")

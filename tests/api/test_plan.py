@@ -20,10 +20,8 @@ from numpy.typing import NDArray
 from scipy import signal
 
 from service.api.app import create_app
-from service.api.bodies import register_models
 from service.api.compute import tones_from_request
 from service.api.plan_schemas import PLAN_EXAMPLES, PlanIn, demo_plan_request
-from service.api.routes import plan as plan_routes
 from service.config import Settings
 from service.core.folding import fold
 from service.core.tones import ToneSet
@@ -34,19 +32,8 @@ URL = "/api/v1/plan"
 
 @pytest.fixture
 def plan_client(settings: Settings) -> Iterator[TestClient]:
-    """The real app with the plan router, wired as the app factory is to wire it."""
-    app = create_app(settings)
-    if not any(getattr(r, "path", "") == URL for r in app.routes):
-        app.include_router(plan_routes.router)
-        original = app.openapi
-
-        def openapi() -> dict[str, Any]:
-            schema = original()
-            register_models(schema, [PlanIn])
-            return schema
-
-        app.openapi = openapi  # type: ignore[method-assign]
-    with TestClient(app, raise_server_exceptions=True) as c:
+    """The real app, as the factory wires it."""
+    with TestClient(create_app(settings), raise_server_exceptions=True) as c:
         yield c
 
 
