@@ -385,6 +385,8 @@ class TestManifestEnvironment:
         ):
             ready = client.get("/readyz")
             assert ready.status_code == 200 and ready.json()["status"] == "ready"
+            # FOLDWISE_API_KEYS from the Secret is in force: no key, no save.
+            assert client.post("/api/v1/diagnoses", json=body).status_code == 401
             r = client.post("/api/v1/diagnoses", json=body, headers={"X-API-Key": "team-key-two"})
             assert r.status_code == 201, r.text
             saved = r.json()
