@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import logging
+
 from fastapi import APIRouter, Request
 from starlette.concurrency import run_in_threadpool
 
@@ -9,6 +11,7 @@ from ... import COMPUTATION_VERSION, __version__
 from ..problems import Problem
 
 router = APIRouter(tags=["health"])
+log = logging.getLogger("foldwise.health")
 
 
 @router.get("/healthz", summary="Liveness: answers at once, touches nothing")
@@ -23,9 +26,12 @@ async def readyz(request: Request) -> dict[str, str]:
         try:
             await run_in_threadpool(store.ping)
         except Exception as exc:
+            # The driver's message names hosts and users: it goes to the log only.
+            log.warning("readiness check failed: %s", exc)
             raise Problem(
                 503,
-                f"the database does not answer: {exc}",
+                "the database that keeps saved results does not answer; the service "
+                "recovers by itself when it is back",
                 kind="store-unavailable",
                 headers={"Retry-After": "5"},
             ) from exc
