@@ -801,6 +801,8 @@ def compare_spectra(
                 }
             )
             shown.add(key)
+    layout["margin"]["t"] = 110  # room for the title above a two-row legend
+    layout["legend"]["y"] = 1.03
     layout["xaxis"] = _axis("", anchor="y", matches="x2", showticklabels=True)
     layout["xaxis2"] = _axis("apparent frequency, Hz", anchor="y2", range=[0, top])
     layout["yaxis"] = _axis(
