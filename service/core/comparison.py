@@ -149,6 +149,11 @@ class RateComparison:
     max_true_hz: float
 
 
+#: Unfoldings searched per peak (2 per multiple of the lower rate) and in total.
+MAX_UNFOLDINGS = 20_000
+MAX_CANDIDATE_CELLS = 4_000_000
+
+
 def _check_positive(value: float, name: str) -> float:
     v = float(value)
     if not np.isfinite(v) or v <= 0:
@@ -172,7 +177,9 @@ def _nearest(sorted_f: FloatArray, x: FloatArray) -> IntArray:
 
 
 def _gauss(x: FloatArray, sigma: float) -> FloatArray:
-    out: FloatArray = np.exp(-0.5 * (x / sigma) ** 2)
+    # A sigma so small that x / sigma overflows gives weight 0, which exp(-inf) is.
+    with np.errstate(over="ignore"):
+        out: FloatArray = np.exp(-0.5 * (x / sigma) ** 2)
     return out
 
 
@@ -406,6 +413,20 @@ def compare_rates(
         fb, ab, _ = _check_peaks(peaks_b_hz, amp_b, 1.0, rb / 2.0)
     except ValueError as exc:
         raise ValueError(f"capture B: {exc}") from None
+    # Every peak is unfolded at every multiple of the lower rate up to max_true: bound the
+    # work (peaks × unfoldings) so a careless request cannot occupy a worker for minutes.
+    folds = 2.0 * max_true / min(ra, rb) + 3.0
+    if folds > MAX_UNFOLDINGS:
+        raise ValueError(
+            f"max_true_hz={max_true:g} is {max_true / min(ra, rb):.0f} times the lower sample "
+            f"rate; at most {MAX_UNFOLDINGS // 2} times is searched (lower max_true_hz)"
+        )
+    if folds * max(fa.size, fb.size) > MAX_CANDIDATE_CELLS:
+        raise ValueError(
+            f"{max(fa.size, fb.size)} peaks × {folds:.0f} unfoldings is more than the "
+            f"{MAX_CANDIDATE_CELLS:,} candidates searched; lower max_true_hz or raise the "
+            "peak threshold"
+        )
     tol = MATCH_BINS * (ba + bb)
     sa = _Side(fa, 20 * np.log10(aa), ra, np.argsort(fa, kind="stable").astype(np.int64), "a")
     sb = _Side(fb, 20 * np.log10(ab), rb, np.argsort(fb, kind="stable").astype(np.int64), "b")

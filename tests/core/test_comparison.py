@@ -87,3 +87,14 @@ class TestCompareRates:
             compare_rates([1.0], [1.0], RA, BA, [1.0], [1.0, 2.0], RB, BB)
         with pytest.raises(ValueError, match="level_tolerance_db=0"):
             compare_rates([1.0], [1.0], RA, BA, [1.0], [1.0], RB, BB, level_tolerance_db=0)
+
+
+class TestCompareLimits:
+    def test_errors(self) -> None:
+        from service.core.comparison import compare_rates
+
+        f = np.array([100.0, 200.0])
+        a = np.array([1.0, 1.0])
+        # A search up to 1e9 Hz at 100 S/s would unfold each peak 2·10^7 times: refused.
+        with pytest.raises(ValueError, match="max_true_hz"):
+            compare_rates(f / 10, a, 100.0, 1.0, f / 10, a, 115.0, 1.0, max_true_hz=1e9)
