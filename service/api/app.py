@@ -84,4 +84,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     from ..web.pages import install_pages
 
     install_pages(app)
+    from ..web.plan_page import install_plan_page
+
+    install_plan_page(app)
     return app

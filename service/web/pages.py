@@ -164,8 +164,7 @@ WAYS_IN = [
     {
         "key": "plan",
         "title": "Plan",
-        # Added when the plan API lands: "/plan".
-        "path": None,
+        "path": "/plan",
         "text": "Which sample rate, anti-alias filter and analysis lines keep the band of "
         "interest clean, and how long the record must be.",
     },
@@ -316,6 +315,7 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         "result": None,
         "diag": None,
         "cmp": None,
+        "plan": None,
         "saved_here": True,
         "same_computation": record.computation_version == COMPUTATION_VERSION,
     }
@@ -329,6 +329,10 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         )
     elif record.kind == "compare":
         ctx["cmp"] = compare_result_context(record.result, {"a": None, "b": None})
+    elif record.kind == "plan":
+        from .plan_page import plan_result_context
+
+        ctx["plan"] = await run_in_threadpool(plan_result_context, record.request, record.result)
     return render(request, "saved.html", ctx)
 
 

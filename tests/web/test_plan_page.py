@@ -346,3 +346,17 @@ class TestRunupFigure:
         assert [t["meta"]["line"] for t in direct] == [0, 1, 7]  # the line of interest kept
         assert fig["layout"]["meta"] == {"lines_drawn": 3, "lines_total": 10}
         assert fig["layout"]["yaxis"]["range"][1] == pytest.approx(2000.0 * 1.04)
+
+
+def test_saved_plan_page(plan_client: TestClient) -> None:
+    """A plan saved through the API opens by link with the same recommendation."""
+    r = plan_client.post("/api/v1/diagnoses", json={"kind": "plan", "request": _demo()})
+    assert r.status_code == 201, r.text
+    saved = r.json()
+    rate = saved["result"]["recommendation"]["sample_rate_hz"]
+    page = plan_client.get(saved["url"])
+    assert page.status_code == 200
+    text = html_lib.unescape(page.text)
+    assert CAUTION[:40] in text
+    # Reference: the stored result's own recommendation, shown in kS/s on the page.
+    assert f"{rate / 1000:g} kS/s" in text
