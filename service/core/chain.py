@@ -530,7 +530,8 @@ class Chain:
         edge is above the Nyquist frequency after the unfiltered decimation that
         follows it.
         """
-        return list(_analyse(self.stages).notes)
+        # The stages are immutable and were analysed (errors raised) at construction.
+        return list(self._plan.notes)
 
     @property
     def sample_rate_hz(self) -> float:
