@@ -556,12 +556,3 @@ def install_plan_page(app: FastAPI) -> None:
         return
     app.state.plan_page_installed = True
     app.include_router(router)
-
-
-def create_app_with_plan_page() -> FastAPI:
-    """An app factory with the plan page (for ``uvicorn --factory`` and browser tests)."""
-    from ..api.app import create_app
-
-    app = create_app()
-    install_plan_page(app)
-    return app

@@ -10,6 +10,7 @@ import time
 import urllib.request
 from collections.abc import Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 
@@ -53,7 +54,7 @@ def server_url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
     proc = subprocess.Popen(cmd, cwd=ROOT, env=env)
     url = f"http://127.0.0.1:{port}"
     try:
-        deadline = time.monotonic() + 30
+        deadline = time.monotonic() + 90  # a cold start on a busy 2-core machine is slow
         while True:
             try:
                 with urllib.request.urlopen(url + "/", timeout=1):
@@ -81,3 +82,17 @@ def browser() -> Iterator[object]:
             yield b
         finally:
             b.close()
+
+
+@pytest.fixture
+def page(browser: Any) -> Iterator[Any]:
+    """A fresh page in its own context that records console errors and page errors."""
+    context = browser.new_context(viewport={"width": 1280, "height": 1000})
+    p = context.new_page()
+    p.console_errors = []
+    p.on("console", lambda m: m.type == "error" and p.console_errors.append(m.text))
+    p.on("pageerror", lambda e: p.console_errors.append(str(e)))
+    try:
+        yield p
+    finally:
+        context.close()

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import wave
-from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -14,19 +13,6 @@ import pytest
 from .test_pages_browser import _trace_names
 
 pytestmark = pytest.mark.browser
-
-
-@pytest.fixture
-def page(browser: Any) -> Iterator[Any]:
-    context = browser.new_context(viewport={"width": 1280, "height": 1000})
-    p = context.new_page()
-    p.console_errors = []  # type: ignore[attr-defined]
-    p.on("console", lambda m: m.type == "error" and p.console_errors.append(m.text))
-    p.on("pageerror", lambda e: p.console_errors.append(str(e)))
-    try:
-        yield p
-    finally:
-        context.close()
 
 
 def _spectrum_text(fs: float, tones: list[tuple[float, float]], n: int = 2048) -> str:

@@ -2,25 +2,11 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterator
 from typing import Any
 
 import pytest
 
 pytestmark = pytest.mark.browser
-
-
-@pytest.fixture
-def page(browser: Any) -> Iterator[Any]:
-    context = browser.new_context(viewport={"width": 1280, "height": 1000})
-    p = context.new_page()
-    p.console_errors = []  # type: ignore[attr-defined]
-    p.on("console", lambda m: m.type == "error" and p.console_errors.append(m.text))
-    p.on("pageerror", lambda e: p.console_errors.append(str(e)))
-    try:
-        yield p
-    finally:
-        context.close()
 
 
 def _trace_names(page: Any, selector: str) -> list[str]:

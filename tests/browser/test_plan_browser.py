@@ -2,71 +2,11 @@
 
 from __future__ import annotations
 
-import os
-import subprocess
-import sys
-import time
-import urllib.request
-from collections.abc import Iterator
 from typing import Any
 
 import pytest
 
-from .conftest import ROOT, _free_port
-
 pytestmark = pytest.mark.browser
-
-
-@pytest.fixture(scope="module")
-def plan_url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
-    """A server whose app has the plan page installed (whatever the default factory has)."""
-    port = _free_port()
-    env = {**os.environ, "FOLDWISE_DATA_DIR": str(tmp_path_factory.mktemp("plan-data"))}
-    cmd = [
-        sys.executable,
-        "-m",
-        "uvicorn",
-        "service.web.plan_page:create_app_with_plan_page",
-        "--factory",
-        "--host",
-        "127.0.0.1",
-        "--port",
-        str(port),
-        "--log-level",
-        "warning",
-    ]
-    proc = subprocess.Popen(cmd, cwd=ROOT, env=env)
-    url = f"http://127.0.0.1:{port}"
-    try:
-        deadline = time.monotonic() + 60
-        while True:
-            try:
-                with urllib.request.urlopen(url + "/plan", timeout=1):
-                    break
-            except OSError:
-                if proc.poll() is not None or time.monotonic() > deadline:
-                    raise RuntimeError("the server did not start") from None
-                time.sleep(0.2)
-        yield url
-    finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=10)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-
-
-@pytest.fixture
-def page(browser: Any) -> Iterator[Any]:
-    context = browser.new_context(viewport={"width": 1280, "height": 1000})
-    p = context.new_page()
-    p.console_errors = []  # type: ignore[attr-defined]
-    p.on("console", lambda m: m.type == "error" and p.console_errors.append(m.text))
-    p.on("pageerror", lambda e: p.console_errors.append(str(e)))
-    try:
-        yield p
-    finally:
-        context.close()
 
 
 def _traces(page: Any) -> list[dict[str, Any]]:
@@ -81,11 +21,11 @@ def _traces(page: Any) -> list[dict[str, Any]]:
 
 
 class TestPlanInBrowser:
-    def test_basic(self, page: Any, plan_url: str) -> None:
-        page.goto(plan_url + "/plan")
+    def test_basic(self, page: Any, server_url: str) -> None:
+        page.goto(server_url + "/plan")
         page.wait_for_load_state("networkidle")
         assert page.console_errors == []
-        page.goto(plan_url + "/plan?demo=1")
+        page.goto(server_url + "/plan?demo=1")
         page.wait_for_load_state("networkidle")
         expected = page.evaluate(
             "JSON.parse(document.getElementById('runup-figure-data').textContent).data.length"
@@ -104,8 +44,8 @@ class TestPlanInBrowser:
         assert page.locator("#runup-figure .scatterlayer .trace").count() == drawn > 50
         assert page.console_errors == []
 
-    def test_form_submit(self, page: Any, plan_url: str) -> None:
-        page.goto(plan_url + "/plan")
+    def test_form_submit(self, page: Any, server_url: str) -> None:
+        page.goto(server_url + "/plan")
         page.fill("#band_high_hz", "2000")
         page.fill("#tone_list", "<script>alert(1)</script>, 10000, 0.5\nmesh, 1700, 0.8")
         page.fill("#rejection_db", "80")
