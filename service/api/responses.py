@@ -6,12 +6,12 @@ from __future__ import annotations
 from typing import Any
 
 import orjson
-from starlette.responses import Response
+from starlette.responses import JSONResponse
 
 __all__ = ["FastJSON"]
 
 
-class FastJSON(Response):
+class FastJSON(JSONResponse):
     media_type = "application/json"
 
     def render(self, content: Any) -> bytes:

@@ -51,6 +51,7 @@ __all__ = [
     "BodyLimit",
     "RateLimit",
     "SecurityHeaders",
+    "document_problems",
     "install_security",
     "key_matches",
     "needs_api_key",
@@ -504,6 +505,99 @@ def _install_upload_spool(app: FastAPI, settings: Settings) -> None:
     app.router.lifespan_context = lifespan
 
 
+# --------------------------------------------------------------------------- schema
+
+PROBLEM_SCHEMA: dict[str, Any] = {
+    "title": "Problem",
+    "description": "RFC 9457 problem details; `errors` names each field, value and limit.",
+    "type": "object",
+    "required": ["type", "title", "status", "detail"],
+    "properties": {
+        "type": {"type": "string"},
+        "title": {"type": "string"},
+        "status": {"type": "integer"},
+        "detail": {"type": "string"},
+        "instance": {"type": "string"},
+        "errors": {
+            "type": "array",
+            "items": {
+                "type": "object",
+                "required": ["field", "message"],
+                "properties": {
+                    "field": {"type": "string"},
+                    "message": {"type": "string"},
+                    "value": {},
+                    "limit": {},
+                },
+            },
+        },
+    },
+}
+
+_PROBLEM_TEXT = {
+    400: "Malformed JSON, an empty body or an unreadable multipart form",
+    401: "Saving or deleting needs a valid `X-API-Key` when the service has API keys",
+    403: "The delete token does not match",
+    404: "No such saved result",
+    413: "The body is over `max_body_bytes` (uploads: `max_upload_bytes`)",
+    415: "The content type is not accepted",
+    422: "Invalid input: the problem names the field, the value and the limit",
+    429: "Too many requests from this client (`Retry-After` says when to try again)",
+    503: "The database that keeps saved results does not answer (`Retry-After`)",
+}
+
+
+def _problems_for(path: str, method: str, op: dict[str, Any]) -> list[int]:
+    params = {p.get("name") for p in op.get("parameters", [])}
+    codes = [422] if params or "requestBody" in op else []
+    if "requestBody" in op:
+        codes += [400, 413, 415]
+    if path.startswith("/api/"):
+        codes.append(429)
+    saves = "save" in params
+    if path.startswith("/api/v1/diagnoses") or saves:
+        codes += [503]
+    if needs_api_key(method.upper(), path.replace("{rid}", "x"), "save=true" if saves else ""):
+        codes.append(401)
+    if "{" in path:
+        codes.append(404)
+    if method == "delete" and path.startswith("/api/v1/diagnoses/"):
+        codes.append(403)
+    if path == "/readyz":
+        codes = [503]
+    return codes
+
+
+def document_problems(app: FastAPI) -> None:
+    """Declare in the OpenAPI document the problems each operation can answer, as
+    ``application/problem+json`` with one ``Problem`` schema (FastAPI's own 422 entry
+    says ``application/json`` with its validation shape, which is not what is sent)."""
+    original = app.openapi
+
+    def openapi() -> dict[str, Any]:
+        if app.openapi_schema:
+            return app.openapi_schema
+        schema = original()
+        comps = schema.setdefault("components", {}).setdefault("schemas", {})
+        comps.setdefault("Problem", PROBLEM_SCHEMA)
+        problem = {PROBLEM_JSON: {"schema": {"$ref": "#/components/schemas/Problem"}}}
+        for path, ops in schema.get("paths", {}).items():
+            for method, op in ops.items():
+                if not isinstance(op, dict) or "responses" not in op:
+                    continue
+                responses = op["responses"]
+                for code in _problems_for(path, method, op):
+                    entry = responses.setdefault(str(code), {})
+                    entry.setdefault("description", _PROBLEM_TEXT[code])
+                    entry["content"] = problem
+        for unused in ("HTTPValidationError", "ValidationError"):
+            comps.pop(unused, None)
+        app.openapi_schema = schema
+        return schema
+
+    app.openapi = openapi  # type: ignore[method-assign]
+
+
 # --------------------------------------------------------------------------- install
 
 
@@ -532,3 +626,4 @@ def install_security(app: FastAPI, settings: Settings) -> None:
     _wrap_outermost(app, SecurityHeaders)
     _install_local_docs(app)
     _install_upload_spool(app, settings)
+    document_problems(app)
