@@ -8,6 +8,7 @@ named ``pasted.csv`` read as spectrum text, so pasted and uploaded spectra follo
 
 from __future__ import annotations
 
+import json
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -23,6 +24,8 @@ from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, _p
 __all__ = [
     "DIAGNOSE_LABELS",
     "READ_KINDS",
+    "SHARE_FIELDS_LIMIT",
+    "SHARE_TEXT_LIMIT",
     "UNITS",
     "WINDOWS",
     "CompareForm",
@@ -33,6 +36,8 @@ __all__ = [
     "blank_diagnose_form",
     "parse_compare_form",
     "parse_diagnose_form",
+    "read_share_fields",
+    "share_fields",
 ]
 
 READ_KINDS = [
@@ -319,3 +324,76 @@ def attach_compare_problem(f: CompareForm, p: Problem) -> None:
         loc = [loc[0], "file"]
     fid, words = _locate_compare(loc, f.pasted)
     f.state.add_error(fid, words, p.detail)
+
+
+# --------------------------------------------------------------------------- share after the fact
+
+#: Pasted text (UTF-8 bytes, all boxes together) a result page carries back in its share
+#: form. Above it, or for an uploaded file, the tick box before computing is the way to a
+#: link: a huge spectrum must not double the weight of the result page.
+SHARE_TEXT_LIMIT = 256 * 1024
+#: The carried fields as JSON (characters): room for the escaped newlines and the other
+#: fields, and a bound on the page whatever was pasted.
+SHARE_FIELDS_LIMIT = 384 * 1024
+#: Fields that say how to share, not what to compute.
+_NOT_CARRIED = frozenset({"share", "share_title", "api_key"})
+
+
+def share_fields(form: Mapping[str, str], text_fields: Sequence[str]) -> str | None:
+    """The form's text fields as compact JSON for a hidden field of a share form, so the
+    server can parse and compute the same request again; None when too large.
+
+    ``text_fields`` names the boxes that hold pasted text (they count against
+    :data:`SHARE_TEXT_LIMIT`)."""
+    pasted = sum(len(form.get(name, "").encode("utf-8")) for name in text_fields)
+    if pasted > SHARE_TEXT_LIMIT:
+        return None
+    carried = {k: v for k, v in form.items() if k not in _NOT_CARRIED}
+    text = json.dumps(carried, separators=(",", ":"))
+    return text if len(text) <= SHARE_FIELDS_LIMIT else None
+
+
+def _is_text(v: object) -> bool:
+    """A string a browser could have sent: JSON allows lone surrogates, UTF-8 does not."""
+    if not isinstance(v, str):
+        return False
+    try:
+        v.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
+
+
+def read_share_fields(text: str, text_fields: Sequence[str]) -> dict[str, str]:
+    """The fields :func:`share_fields` wrote, checked again (they came from the browser).
+
+    Raises Problem 422 when the text is not a JSON object of strings, 413 when it is over
+    the limits."""
+    if len(text) > SHARE_FIELDS_LIMIT:
+        raise Problem(
+            413,
+            f"the carried inputs are {len(text):,} characters; the limit is "
+            f"{SHARE_FIELDS_LIMIT:,}: tick the share box before computing instead",
+            field="inputs",
+            limit=SHARE_FIELDS_LIMIT,
+        )
+    try:
+        fields = json.loads(text)
+    except (ValueError, RecursionError):
+        fields = None
+    if not isinstance(fields, dict) or not all(
+        _is_text(k) and _is_text(v) for k, v in fields.items()
+    ):
+        raise Problem(
+            422, "the carried inputs are not a JSON object of text fields", field="inputs"
+        )
+    pasted = sum(len(fields.get(name, "").encode("utf-8")) for name in text_fields)
+    if pasted > SHARE_TEXT_LIMIT:
+        raise Problem(
+            413,
+            f"the pasted text is {pasted:,} bytes; the limit for sharing after the fact is "
+            f"{SHARE_TEXT_LIMIT:,}: tick the share box before computing instead",
+            field="inputs",
+            limit=SHARE_TEXT_LIMIT,
+        )
+    return {k: v for k, v in fields.items() if k not in _NOT_CARRIED}

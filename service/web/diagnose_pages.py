@@ -41,6 +41,8 @@ from .diagnose_forms import (
     blank_diagnose_form,
     parse_compare_form,
     parse_diagnose_form,
+    read_share_fields,
+    share_fields,
 )
 from .forms import FormState, form_from_request
 
@@ -61,6 +63,9 @@ MAX_FORM_FIELDS = 2000
 MAX_TABLE_PEAKS = 400
 #: Verdicts that mean "folded back": drawn and counted as aliases.
 ALIAS_KEYS = ("alias", "family_alias", "mirror")
+#: The boxes of pasted text on each page (counted against the share-after limit).
+DIAGNOSE_TEXTS = ("spectrum_text",)
+COMPARE_TEXTS = ("a_spectrum_text", "b_spectrum_text")
 
 
 def _render(
@@ -277,6 +282,8 @@ def diagnose_result_context(
         "spectrum_fig": spectrum_fig,
         "fold_fig": figures.diagnosis_folding_diagram(out, _gain_curve(request_dict, out)),
         "has_spectrum": spectrum is not None,
+        # Set by the page that computed it: the inputs its share form carries back.
+        "share_inputs": None,
     }
 
 
@@ -338,7 +345,8 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
         st = blank_diagnose_form()
         st.add_error("file", DIAGNOSE_LABELS["file"], p.detail)
         return await _diagnose_page(request, st, None, status_code=p.status)
-    f = parse_diagnose_form(_text_fields(form), files.get("file"))
+    fields = _text_fields(form)
+    f = parse_diagnose_form(fields, files.get("file"))
     await form.close()
     if f.req is None:
         return await _diagnose_page(request, f.state, None, status_code=422)
@@ -357,6 +365,8 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
             )
         except Problem as p:
             return error_page(request, p)
+    elif f.pasted:
+        ctx["share_inputs"] = share_fields(fields, DIAGNOSE_TEXTS)
     # The pasted text is not sent back: it may be megabytes, and the result shows it.
     f.state.values.pop("spectrum_text", None)
     return await _diagnose_page(request, f.state, ctx, saved=saved)
@@ -403,6 +413,9 @@ def compare_result_context(
         "moved": moved,
         "stayed": stayed,
         "has_spectrum": any(v is not None for v in spectra.values()),
+        # Set by the page that computed it: its share form, or the hint to tick the box.
+        "share_inputs": None,
+        "share_hint": False,
     }
 
 
@@ -431,7 +444,8 @@ async def compare_submit(request: Request) -> HTMLResponse:
         st = blank_compare_form()
         st.add_error("a_file", COMPARE_LABELS["a_file"], p.detail)
         return await _compare_page(request, st, None, status_code=p.status)
-    f = parse_compare_form(_text_fields(form), {k[0]: v for k, v in files.items()})
+    fields = _text_fields(form)
+    f = parse_compare_form(fields, {k[0]: v for k, v in files.items()})
     await form.close()
     if f.req is None:
         return await _compare_page(request, f.state, None, status_code=422)
@@ -451,6 +465,10 @@ async def compare_submit(request: Request) -> HTMLResponse:
             )
         except Problem as p:
             return error_page(request, p)
+    else:
+        if all(f.pasted.values()):
+            ctx["share_inputs"] = share_fields(fields, COMPARE_TEXTS)
+        ctx["share_hint"] = ctx["share_inputs"] is None
     for s in ("a", "b"):
         f.state.values.pop(f"{s}_spectrum_text", None)
     return await _compare_page(request, f.state, ctx, saved=saved)
@@ -464,10 +482,38 @@ def _share_fold(body: str, settings: Settings) -> tuple[dict[str, Any], dict[str
     return req.model_dump(mode="json", exclude_none=True), fold_payload(req, settings)
 
 
+def _invalid_inputs(state: FormState) -> Problem:
+    _, words, message = state.summary[0]
+    return Problem(422, f"the carried inputs are not valid: {words}: {message}", field="inputs")
+
+
+async def _share_pasted(
+    request: Request, kind: str, inputs: str, title: str | None
+) -> dict[str, str]:
+    """Save a diagnosis or comparison of pasted text after the fact: the page's own form
+    fields come back, go through the page's parser and are computed again here, so what
+    is saved is what this server computes, never a result the browser sent."""
+    settings: Settings = request.app.state.settings
+    if kind == "diagnose":
+        f = parse_diagnose_form(read_share_fields(inputs, DIAGNOSE_TEXTS), None)
+        if f.req is None:
+            raise _invalid_inputs(f.state)
+        out, m = await run_in_threadpool(diagnose_payload, f.req, settings, f.upload)
+        spectrum = (m.freq_hz, m.amplitude)
+        return await save_result(request, kind, _stored_request(f.req), out, spectrum, title)
+    c = parse_compare_form(read_share_fields(inputs, COMPARE_TEXTS), {})
+    if c.req is None:
+        raise _invalid_inputs(c.state)
+    out, _ = await run_in_threadpool(compare_payload, c.req, settings, c.uploads)
+    # As the tick box: a saved comparison keeps its peaks, not its spectra.
+    return await save_result(request, kind, _stored_request(c.req), out, None, title)
+
+
 @router.post("/share", response_class=HTMLResponse)
 async def share(request: Request) -> HTMLResponse:
     """Save a result the page can recompute from a small request: a prediction (its
-    request JSON travels in the form) or the demo diagnosis (made by the app itself)."""
+    request JSON travels in the form), a diagnosis or comparison of pasted text (the
+    page's form fields travel in the form) or the demo diagnosis (made by the app)."""
     settings: Settings = request.app.state.settings
     form = await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
     kind = str(form.get("kind", ""))
@@ -482,6 +528,8 @@ async def share(request: Request) -> HTMLResponse:
                 msg = exc.errors()[0]["msg"]
                 raise Problem(422, f"the saved request is not valid: {msg}") from None
             saved = await save_result(request, "fold", stored, result, None, title)
+        elif kind in ("diagnose", "compare"):
+            saved = await _share_pasted(request, kind, str(form.get("inputs", "")), title)
         elif kind == "diagnose_demo":
             req, out, m = await run_in_threadpool(_compute_demo, settings)
             saved = await save_result(

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import html as html_lib
+import json
 import re
 from collections.abc import Iterator
 from pathlib import Path
@@ -16,6 +17,7 @@ from service.api.app import create_app
 from service.config import Settings
 from service.demo import demo_fold_request
 from service.storage import StoreUnavailable
+from service.web.diagnose_forms import SHARE_FIELDS_LIMIT, SHARE_TEXT_LIMIT
 from service.web.pages import CAUTION
 
 from .conftest import figures_of
@@ -62,6 +64,32 @@ def _trace(fig: dict[str, Any], name: str) -> dict[str, Any]:
     found = [t for t in fig["data"] if t.get("name") == name]
     assert len(found) == 1, [t.get("name") for t in fig["data"]]
     return found[0]
+
+
+def _share_inputs(html: str, kind: str) -> str | None:
+    """The carried inputs of the page's after-the-fact share form of ``kind`` (None: none)."""
+    forms = re.findall(r'<form method="post" action="/share".*?</form>', html, re.S)
+    mine = [f for f in forms if f'name="kind" value="{kind}"' in f]
+    if not mine:
+        return None
+    assert len(mine) == 1
+    m = re.search(r'name="inputs" value="([^"]*)"', mine[0])
+    assert m, mine[0]
+    return html_lib.unescape(m.group(1))
+
+
+def _compare_verdicts(html: str) -> list[tuple[str, str, str]]:
+    """Both compare tables as (capture, at Hz, verdict text) per row."""
+    out = []
+    for s in ("a", "b"):
+        table = html.split(f'aria-labelledby="cap-{s}-title"', 1)[1].split("</table>", 1)[0]
+        for tr in re.findall(r"<tr class=\"[^\"]*\">(.*?)</tr>", table, re.S):
+            cells = [
+                re.sub(r"<[^>]+>|\s+", " ", c).strip()
+                for c in re.findall(r"<td[^>]*>(.*?)</td>", tr, re.S)
+            ]
+            out.append((s, cells[0], cells[2]))
+    return out
 
 
 def _saved_path(html: str) -> str:
@@ -331,6 +359,115 @@ class TestShare:
             2700,
             4700,
         ]
+
+    def test_diagnose_after_the_fact(self, page_client: TestClient) -> None:
+        r = _basic_post(page_client, share_title="Bench 3")
+        assert r.status_code == 200, _summary(r.text)
+        inputs = _share_inputs(r.text, "diagnose")
+        assert inputs is not None and 'value="Bench 3"' in r.text
+        assert _controls_without_label(r.text) == []
+        _assert_strict_page(r.text)
+        shared = page_client.post(
+            "/share", data={"kind": "diagnose", "inputs": inputs, "title": "Bench 3"}
+        )
+        assert shared.status_code == 200, shared.text[:2000]
+        path = _saved_path(shared.text)
+        assert f"http://testserver{path}" in shared.text and 'id="delete-token"' in shared.text
+        saved = page_client.get(path)
+        assert saved.status_code == 200 and "Bench 3" in saved.text
+        original = _rows(r.text)
+        assert [x["verdict"] for x in original] == ["alias", "real (direct)"]
+        assert _rows(saved.text) == original
+        # Saved with the spectrum, as the tick box saves it: the whole trace is drawn.
+        fig = figures_of(saved.text)["measured-figure-data"]
+        assert len(_trace(fig, "spectrum")["x"]) == 2049
+        assert _share_inputs(saved.text, "diagnose") is None  # saved: no second share form
+        # Ticked before diagnosing: the link is there already, and no share form.
+        r = _basic_post(page_client, share="1")
+        assert _share_inputs(r.text, "diagnose") is None and 'class="share-url"' in r.text
+
+    def test_compare_after_the_fact(self, page_client: TestClient) -> None:
+        r = page_client.post("/compare", data=_compare_texts())
+        assert r.status_code == 200, _summary(r.text)
+        inputs = _share_inputs(r.text, "compare")
+        assert inputs is not None and 'class="small share-hint"' not in r.text
+        _assert_strict_page(r.text)
+        shared = page_client.post("/share", data={"kind": "compare", "inputs": inputs})
+        assert shared.status_code == 200, shared.text[:2000]
+        saved = page_client.get(_saved_path(shared.text))
+        assert saved.status_code == 200
+        original = _compare_verdicts(r.text)
+        # Reference: 7.3 kHz moves (2.7 kHz at 10 kS/s, 4.7 kHz at 12 kS/s); 1 kHz stays.
+        assert sorted(v for _, _, v in original).count("moves: alias") == 2
+        assert _compare_verdicts(saved.text) == original
+        fig = figures_of(saved.text)["compare-figure-data"]
+        assert sorted(round(t["x"][0]) for t in fig["data"] if t["name"] == "moves: alias") == [
+            2700,
+            4700,
+        ]
+
+    def test_after_the_fact_edges(self, page_client: TestClient) -> None:
+        # An uploaded file is not carried back: the tick box stays the way to a link.
+        text = _sampled_spectrum(10_000.0, [(7300.0, 1.0)])
+        r = page_client.post(
+            "/diagnose",
+            data={"sample_rate_hz": "10000", "tone_list": "carrier, 7300", "threshold_db": "20"},
+            files={"file": ("capture.csv", text.encode(), "text/csv")},
+        )
+        assert r.status_code == 200, _summary(r.text)
+        assert _share_inputs(r.text, "diagnose") is None and 'name="inputs"' not in r.text
+        assert "tick <strong>Save and share this diagnosis</strong>" in r.text
+        data = _compare_texts()
+        b_text = data.pop("b_spectrum_text")
+        r = page_client.post(
+            "/compare", data=data, files={"b_file": ("b.csv", b_text.encode(), "text/csv")}
+        )
+        assert r.status_code == 200, _summary(r.text)
+        assert _share_inputs(r.text, "compare") is None and 'class="small share-hint"' in r.text
+        # Pasted text over the limit: no share form, the page stays light.
+        big = _sampled_spectrum(10_000.0, [(7300.0, 1.0), (1000.0, 0.5)], n=32768)
+        assert len(big.encode()) > SHARE_TEXT_LIMIT
+        r = page_client.post("/diagnose", data={**BASIC, "spectrum_text": big})
+        assert r.status_code == 200, _summary(r.text)
+        assert _share_inputs(r.text, "diagnose") is None and 'name="inputs"' not in r.text
+        assert len(r.content) < len(big)
+        # Just under the limit: the form, and the page within its weight.
+        under = big[: big.rindex("\n", 0, SHARE_TEXT_LIMIT)]
+        assert SHARE_TEXT_LIMIT - 100 < len(under.encode()) <= SHARE_TEXT_LIMIT
+        r = page_client.post("/diagnose", data={**BASIC, "spectrum_text": under})
+        assert r.status_code == 200, _summary(r.text)
+        assert _share_inputs(r.text, "diagnose") is not None
+        assert len(r.content) <= MAX_PAGE_BYTES, len(r.content)
+
+    def test_after_the_fact_errors(self, page_client: TestClient) -> None:
+        r = page_client.post("/share", data={"kind": "diagnose", "inputs": "[1, 2]"})
+        assert r.status_code == 422 and "not a JSON object" in r.text
+        r = page_client.post("/share", data={"kind": "diagnose", "inputs": '{"a": "\\ud800"}'})
+        assert r.status_code == 422 and "not a JSON object" in r.text
+        r = page_client.post("/share", data={"kind": "compare", "inputs": "[" * 100_000})
+        assert r.status_code == 422
+        # Inputs the page would not have offered: too much pasted text.
+        big = json.dumps({"spectrum_text": "1, 2\n" * (SHARE_TEXT_LIMIT // 5 + 1)})
+        r = page_client.post("/share", data={"kind": "diagnose", "inputs": big})
+        assert len(big) < SHARE_FIELDS_LIMIT  # the pasted text is what is too large
+        assert r.status_code == 413 and "the pasted text is 262,145 bytes" in r.text
+        r = page_client.post(
+            "/share", data={"kind": "compare", "inputs": " " * (SHARE_FIELDS_LIMIT + 1)}
+        )
+        assert r.status_code == 413 and "carried inputs are" in r.text
+        # The fields go through the page's parser and the computation again.
+        r = page_client.post(
+            "/share",
+            data={
+                "kind": "diagnose",
+                "inputs": '{"sample_rate_hz": "-5", "spectrum_text": "1, 2"}',
+            },
+        )
+        assert r.status_code == 422 and "Sample rate" in r.text
+        text = _sampled_spectrum(10_000.0, [(1000.0, 1.0)])
+        fields = {"sample_rate_hz": "4000", "spectrum_text": text}
+        r = page_client.post("/share", data={"kind": "diagnose", "inputs": json.dumps(fields)})
+        assert r.status_code == 422 and "Nyquist frequency is 2000 Hz" in r.text
 
     def test_errors(self, page_client: TestClient) -> None:
         r = page_client.post("/share", data={"kind": "plan"})
