@@ -26,6 +26,7 @@ from ..api.diagnose_schemas import DiagnoseIn
 from ..api.diagnosis import Measured, Upload, compare_payload, diagnose_payload
 from ..api.problems import Problem
 from ..api.schemas import FoldIn, chain_from_request
+from ..api.security import require_api_key
 from ..api.store_access import StoreAccess
 from ..config import Settings
 from ..core.chain import Chain
@@ -145,8 +146,11 @@ async def save_result(
 ) -> dict[str, str]:
     """Save a result as the JSON API does; returns the link and the delete token.
 
-    Raises Problem 503 when the store does not answer, 413 when the result is too large.
+    Raises Problem 401 when the install needs an API key (the form's ``api_key``) and it
+    is missing or wrong, 503 when the store does not answer, 413 when the result is too
+    large.
     """
+    await require_api_key(request)
     access: StoreAccess = request.app.state.store_access
     try:
         rid, token = await access.call(

@@ -182,7 +182,8 @@ def render(
     request: Request, name: str, context: dict[str, Any], status_code: int = 200
 ) -> HTMLResponse:
     """A page with the navigation and the security headers."""
-    ctx = {"nav": _nav(context.get("active", "")), **context}
+    keys_on = bool(request.app.state.settings.api_key_set)
+    ctx = {"nav": _nav(context.get("active", "")), "api_keys_on": keys_on, **context}
     response: HTMLResponse = templates.TemplateResponse(
         request, name, ctx, status_code=status_code, headers=SECURITY_HEADERS
     )
