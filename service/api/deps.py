@@ -11,7 +11,8 @@ from ..config import Settings
 __all__ = ["SettingsDep"]
 
 
-def _settings(request: Request) -> Settings:
+async def _settings(request: Request) -> Settings:
+    # async: FastAPI would run a plain function in a worker thread on every request.
     settings: Settings = request.app.state.settings
     return settings
 
