@@ -7,7 +7,7 @@ STAMP  := $(VENV)/.installed-stamp
 HOST   ?= 127.0.0.1
 PORT   ?= 8000
 
-.PHONY: run test lint bench clean-venv
+.PHONY: run test lint bench bench-load clean-venv
 
 $(STAMP): pyproject.toml
 	python3 -m venv $(VENV)
@@ -29,6 +29,11 @@ test: lint
 bench: $(STAMP)
 	$(PY) bench/fold_engine.py
 	$(PY) bench/fold_http.py
+	$(PY) bench/diagnose.py
+	$(PY) bench/plan.py
+
+bench-load: $(STAMP)
+	$(PY) bench/load.py
 
 clean-venv:
 	rm -rf $(VENV)

@@ -102,7 +102,46 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     )
     for side in ("a", "b"):
         cmp[side]["peaks"] = cmp[side]["peaks"][:3]
+    from .. import COMPUTATION_VERSION, __version__
+    from .plan_compute import plan_payload
+    from .plan_schemas import PlanIn, demo_plan_request
+
+    plan = plan_payload(PlanIn.model_validate(demo_plan_request()), settings)
+    plan["rejected"] = plan["rejected"][-3:]
+    plan.pop("runup", None)
+    # Ids and tokens below are shaped like real ones but were made up for the example.
+    rid = "h2Vq8pX0cN4bT7kLw9sYd3Rf6Ue1Ga5J"
+    saved = {
+        "id": rid,
+        "delete_token": "Zt5Kx2Qm8Wn4Pj7Lc1Vb9Rd3Hf6Ys0Ge2Ua8Mk4Tq7",
+        "url": f"/d/{rid}",
+        "api_url": f"/api/v1/diagnoses/{rid}",
+        "kind": "fold",
+        "computation_version": COMPUTATION_VERSION,
+        "result": fold,
+    }
+    record = {
+        "id": rid,
+        "kind": "fold",
+        "title": "EDU bench, 9000 rpm",
+        "created_at": "2026-12-01T09:30:00+00:00",
+        "computation_version": COMPUTATION_VERSION,
+        "app_version": __version__,
+        "current_computation_version": COMPUTATION_VERSION,
+        "request": demo_fold_request(),
+        "result": fold,
+        "spectrum": None,
+    }
     return {
+        ("/api/v1/plan", "post"): plan,
+        ("/api/v1/diagnoses", "post"): saved,
+        ("/api/v1/diagnoses/{rid}", "get"): record,
+        ("/healthz", "get"): {"status": "ok"},
+        ("/readyz", "get"): {
+            "status": "ready",
+            "version": __version__,
+            "computation": COMPUTATION_VERSION,
+        },
         ("/api/v1/fold", "post"): fold,
         ("/api/v1/diagnose", "post"): diag,
         ("/api/v1/compare-rates", "post"): cmp,
@@ -123,7 +162,8 @@ def install_examples(app: Any, settings: Any) -> None:
         register_models(schema, [FoldIn, DiagnoseIn, CompareIn, PlanIn])
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]
-            content = op["responses"]["200"].setdefault("content", {})
+            code = next(c for c in ("200", "201") if c in op["responses"])
+            content = op["responses"][code].setdefault("content", {})
             content.setdefault("application/json", {})["example"] = example
         app.openapi_schema = schema
         return schema

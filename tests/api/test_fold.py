@@ -241,6 +241,13 @@ class TestHealth:
         assert "drive_unit" in examples
         resp = op["responses"]["200"]["content"]["application/json"]
         assert "example" in resp and resp["example"]["tones"]
+        # Every operation that answers with a JSON body documents a worked example.
+        for path, ops in spec["paths"].items():
+            for method, operation in ops.items():
+                for code, r in operation["responses"].items():
+                    body = r.get("content", {}).get("application/json")
+                    if code.startswith("2") and body is not None:
+                        assert "example" in body or "examples" in body, (method, path)
 
 
 class TestFoldBody:
