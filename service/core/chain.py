@@ -71,13 +71,7 @@ def _check_number(
     return v
 
 
-def _check_int(value: Any, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, int | np.integer):
-        raise ValueError(f"{name}={_show(value)!r} must be an integer between {low} and {high}")
-    v = int(value)
-    if not low <= v <= high:
-        raise ValueError(f"{name}={_show(value)!r} must be between {low} and {high}")
-    return v
+_check_int = _flt._check_int
 
 
 def _as_floats(values: Any, name: str) -> tuple[float, ...]:
