@@ -24,6 +24,7 @@ lint: $(STAMP)
 	$(VENV)/bin/mypy
 
 test: lint
+	bash scripts/system-packages
 	$(PY) -m pytest
 
 bench: $(STAMP)
