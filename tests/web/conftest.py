@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import json
 from collections.abc import Iterator
 from html.parser import HTMLParser
@@ -76,3 +77,28 @@ def form_data(state: FormState) -> dict[str, str]:
             for name, value in row.items():
                 data[f"{kind}-{i}-{name}"] = value
     return data
+
+
+def controls_without_label(html: str) -> list[str]:
+    page = parse_page(html)
+    missing = []
+    for tag, a in page.tags:
+        if tag in ("input", "select", "textarea") and a.get("type") not in ("hidden", "submit"):
+            cid = a.get("id")
+            if not cid or cid not in page.label_for:
+                missing.append(str(a.get("name") or cid))
+    return missing
+
+
+def assert_strict_page(html: str) -> None:
+    """No inline script, no inline handlers, no style attributes; lang set; headings in order."""
+    page = parse_page(html)
+    for tag, a in page.tags:
+        if tag == "script":
+            assert a.get("src") or a.get("type") == "application/json", a
+        assert not [k for k in a if k.startswith("on")], (tag, a)
+        assert "style" not in a, (tag, a)
+    assert ("html", {"lang": "en"}) in page.tags
+    levels = page.headings
+    assert levels[0] == 1 and levels.count(1) == 1
+    assert all(b <= a + 1 for a, b in itertools.pairwise(levels)), levels

@@ -20,8 +20,8 @@ from service.storage import StoreUnavailable
 from service.web.diagnose_forms import SHARE_FIELDS_LIMIT, SHARE_TEXT_LIMIT
 from service.web.pages import CAUTION
 
-from .conftest import figures_of
-from .test_pages import _assert_strict_page, _controls_without_label, _summary
+from .conftest import assert_strict_page, controls_without_label, figures_of
+from .test_pages import _summary
 
 MAX_PAGE_BYTES = 1_500_000
 
@@ -116,8 +116,8 @@ class TestDiagnosePage:
     def test_basic(self, page_client: TestClient) -> None:
         r = page_client.get("/diagnose")
         assert r.status_code == 200 and r.headers["content-type"].startswith("text/html")
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         assert 'enctype="multipart/form-data"' in r.text and 'type="file"' in r.text
         assert "/static/upload.js" in r.text and "<progress" in r.text
         assert page_client.get("/static/upload.js").status_code == 200
@@ -126,8 +126,8 @@ class TestDiagnosePage:
         r = page_client.get("/diagnose?demo=1")
         assert r.status_code == 200
         assert r.text.count(CAUTION) >= 2  # beside the verdicts and in the footer
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         carrier = _fold(10_000.0, 12_800.0)
         assert carrier == 2800.0  # Reference: fold(10 kHz, 12.8 kS/s) = 2.8 kHz
         rows = _rows(r.text)
@@ -165,7 +165,7 @@ class TestDiagnosePage:
         fig = figures_of(r.text)["measured-figure-data"]
         assert len(_trace(fig, "spectrum")["x"]) == 2049  # under 2 × buckets: kept whole
         assert "1 of 2 peaks is probably alias" in re.sub(r"<[^>]+>|\s+", " ", r.text)
-        _assert_strict_page(r.text)
+        assert_strict_page(r.text)
 
     def test_upload_file(self, page_client: TestClient) -> None:
         text = _sampled_spectrum(10_000.0, [(7300.0, 1.0)])
@@ -273,13 +273,13 @@ class TestComparePage:
     def test_basic(self, page_client: TestClient) -> None:
         r = page_client.get("/compare")
         assert r.status_code == 200
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
 
     def test_post(self, page_client: TestClient) -> None:
         r = page_client.post("/compare", data=_compare_texts())
         assert r.status_code == 200, _summary(r.text)
-        _assert_strict_page(r.text)
+        assert_strict_page(r.text)
         fig = figures_of(r.text)["compare-figure-data"]
         names = [t["name"] for t in fig["data"]]
         assert "spectrum A (10000 S/s)" in names and "spectrum B (12000 S/s)" in names
@@ -339,7 +339,7 @@ class TestShare:
         assert saved.text.count(CAUTION) >= 2
         names = [t["name"] for t in figures_of(saved.text)["measured-figure-data"]["data"]]
         assert names[:2] == ["spectrum", "noise floor"]
-        _assert_strict_page(saved.text)
+        assert_strict_page(saved.text)
         # A new app instance on the same data folder shows the very same page.
         with TestClient(create_app(settings)) as again:
             assert again.get(path).text == page_client.get(path).text
@@ -365,8 +365,8 @@ class TestShare:
         assert r.status_code == 200, _summary(r.text)
         inputs = _share_inputs(r.text, "diagnose")
         assert inputs is not None and 'value="Bench 3"' in r.text
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         shared = page_client.post(
             "/share", data={"kind": "diagnose", "inputs": inputs, "title": "Bench 3"}
         )
@@ -391,7 +391,7 @@ class TestShare:
         assert r.status_code == 200, _summary(r.text)
         inputs = _share_inputs(r.text, "compare")
         assert inputs is not None and 'class="small share-hint"' not in r.text
-        _assert_strict_page(r.text)
+        assert_strict_page(r.text)
         shared = page_client.post("/share", data={"kind": "compare", "inputs": inputs})
         assert shared.status_code == 200, shared.text[:2000]
         saved = page_client.get(_saved_path(shared.text))

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import html as html_lib
-import itertools
 import re
 from dataclasses import dataclass
 from datetime import UTC, datetime
@@ -17,34 +16,9 @@ from service.web.assets import plotly_js_path
 from service.web.forms import form_from_request
 from service.web.pages import CAUTION
 
-from .conftest import figures_of, form_data, parse_page
+from .conftest import assert_strict_page, controls_without_label, figures_of, form_data
 
 HTML = "text/html"
-
-
-def _controls_without_label(html: str) -> list[str]:
-    page = parse_page(html)
-    missing = []
-    for tag, a in page.tags:
-        if tag in ("input", "select", "textarea") and a.get("type") not in ("hidden", "submit"):
-            cid = a.get("id")
-            if not cid or cid not in page.label_for:
-                missing.append(str(a.get("name") or cid))
-    return missing
-
-
-def _assert_strict_page(html: str) -> None:
-    """No inline script, no inline handlers, no style attributes; lang set; headings in order."""
-    page = parse_page(html)
-    for tag, a in page.tags:
-        if tag == "script":
-            assert a.get("src") or a.get("type") == "application/json", a
-        assert not [k for k in a if k.startswith("on")], (tag, a)
-        assert "style" not in a, (tag, a)
-    assert ("html", {"lang": "en"}) in page.tags
-    levels = page.headings
-    assert levels[0] == 1 and levels.count(1) == 1
-    assert all(b <= a + 1 for a, b in itertools.pairwise(levels)), levels
 
 
 def _summary(html: str) -> str:
@@ -61,7 +35,7 @@ class TestHome:
         assert 'href="/predict?demo=1"' in r.text and 'href="/diagnose?demo=1"' in r.text
         assert "script-src 'self'" in r.headers["content-security-policy"]
         assert "unsafe-inline" not in r.headers["content-security-policy"].split("style-src")[0]
-        _assert_strict_page(r.text)
+        assert_strict_page(r.text)
 
 
 class TestPredictPage:
@@ -69,8 +43,8 @@ class TestPredictPage:
         r = page_client.get("/predict")
         assert r.status_code == 200 and r.headers["content-type"].startswith(HTML)
         assert CAUTION in r.text  # footer
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         # One row per source type works without JS.
         for kind in ("shaft", "gear_mesh", "bearing", "blade_pass", "line", "pwm"):
             assert f'name="{kind}-0-label"' in r.text
@@ -80,8 +54,8 @@ class TestPredictPage:
         r = page_client.get("/predict?demo=1")
         assert r.status_code == 200
         assert r.text.count(CAUTION) >= 2  # with the result and in the footer
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         figs = figures_of(r.text)
         assert set(figs) == {"fold-figure-data", "spectrum-figure-data"}
 
@@ -253,7 +227,7 @@ class TestSavedPage:
         r = page_client.get(f"/d/{saved.id}")
         assert r.status_code == 200 and "Bench &lt;A&gt;" in r.text and CAUTION in r.text
         assert "fold-figure-data" in figures_of(r.text)
-        _assert_strict_page(r.text)
+        assert_strict_page(r.text)
         assert page_client.get("/d/" + "b" * 32).status_code == 404
 
     def test_errors(self, page_client: TestClient) -> None:

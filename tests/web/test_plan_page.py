@@ -4,7 +4,6 @@ escaping and sharing; and the run-up figure against an independent fold computat
 from __future__ import annotations
 
 import html as html_lib
-import itertools
 import json
 import re
 from collections.abc import Iterator
@@ -22,7 +21,7 @@ from service.web.pages import templates
 from service.web.plan_figures import runup_figure
 from service.web.plan_page import install_plan_page, plan_form_from_request, plan_result_context
 
-from .conftest import figures_of, form_data, parse_page
+from .conftest import assert_strict_page, controls_without_label, figures_of, form_data, parse_page
 
 HTML = "text/html"
 SOURCE_KINDS = ("shaft", "gear_mesh", "bearing", "blade_pass", "line", "pwm")
@@ -51,30 +50,6 @@ def _post(client: TestClient, req: dict[str, Any], **fields: str) -> Any:
     data = form_data(plan_form_from_request(req))
     data.update(fields)
     return client.post("/plan", data=data)
-
-
-def _controls_without_label(html: str) -> list[str]:
-    page = parse_page(html)
-    missing = []
-    for tag, a in page.tags:
-        if tag in ("input", "select", "textarea") and a.get("type") not in ("hidden", "submit"):
-            cid = a.get("id")
-            if not cid or cid not in page.label_for:
-                missing.append(str(a.get("name") or cid))
-    return missing
-
-
-def _assert_strict_page(html: str) -> None:
-    """No inline script or handlers, no style attributes, headings in order."""
-    page = parse_page(html)
-    for tag, a in page.tags:
-        if tag == "script":
-            assert a.get("src") or a.get("type") == "application/json", a
-        assert not [k for k in a if k.startswith("on")], (tag, a)
-        assert "style" not in a, (tag, a)
-    levels = page.headings
-    assert levels[0] == 1 and levels.count(1) == 1
-    assert all(b <= a + 1 for a, b in itertools.pairwise(levels)), levels
 
 
 def _summary(html: str) -> str:
@@ -112,8 +87,8 @@ class TestPlanForm:
     def test_basic(self, plan_client: TestClient) -> None:
         r = plan_client.get("/plan")
         assert r.status_code == 200 and r.headers["content-type"].startswith(HTML)
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         assert "script-src 'self'" in r.headers["content-security-policy"]
         for kind in SOURCE_KINDS:
             assert f'name="{kind}-0-label"' in r.text
@@ -148,8 +123,8 @@ class TestPlanForm:
     def test_demo(self, plan_client: TestClient) -> None:
         r = plan_client.get("/plan?demo=1")
         assert r.status_code == 200
-        assert _controls_without_label(r.text) == []
-        _assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        assert_strict_page(r.text)
         api = plan_client.post("/api/v1/plan", json=demo_plan_request()).json()
         rec = api["recommendation"]
         assert rec["sample_rate_hz"] == 12800.0
@@ -165,7 +140,7 @@ class TestPlanSubmit:
         req = _demo()
         r = _post(plan_client, req)
         assert r.status_code == 200 and r.headers["content-type"].startswith(HTML)
-        _assert_strict_page(r.text)
+        assert_strict_page(r.text)
         api = plan_client.post("/api/v1/plan", json=req).json()
         rec = api["recommendation"]
         text = html_lib.unescape(r.text)
