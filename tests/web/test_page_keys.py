@@ -53,3 +53,9 @@ def test_plan_share_needs_the_key(keyed: TestClient) -> None:
     assert keyed.post("/plan/share", data={"request": req}).status_code == 401
     r = keyed.post("/plan/share", data={"request": req, "api_key": "k-one"})
     assert r.status_code == 200 and "/d/" in r.text
+
+
+def test_forms_that_save_ask_for_the_key(keyed: TestClient) -> None:
+    for path in ("/diagnose", "/compare"):
+        page = keyed.get(path).text
+        assert 'name="share"' in page and 'name="api_key"' in page, path
