@@ -10,6 +10,7 @@ comes from a real product.
 
 from __future__ import annotations
 
+import functools
 from typing import Any
 
 __all__ = ["DEMO_RPM", "demo_anti_alias", "demo_fold_request", "demo_sources"]
@@ -152,8 +153,12 @@ def demo_time_record(
     return x, rate
 
 
+@functools.lru_cache(maxsize=8)
 def demo_spectrum(lines: int = 1600, sliced: bool = False) -> tuple[Any, Any, float]:
-    """The demo record's averaged amplitude spectrum: (freq_hz, amplitude, rate)."""
+    """The demo record's averaged amplitude spectrum: (freq_hz, amplitude, rate).
+
+    The same for every call (fixed seed), so it is simulated once per process; the arrays
+    are read-only."""
     from .core.spectrum import amplitude_spectrum
 
     x, rate = demo_time_record(sliced=sliced)
