@@ -784,6 +784,11 @@ def _assemble(
                 text += f"; the closest is {_short(best)}, confidence {best.confidence:.2f}"
             if unprotected[i]:
                 text += f"; it lies in the unprotected band above {format_hz(edge)}"
+            # Say what would settle it: the engineer's next step, not only the verdict.
+            text += (
+                "; to settle it, name the machine's sources or capture again at a second "
+                "sample rate"
+            )
             sentence[i] = text
             continue
         verdict[i] = best.kind
