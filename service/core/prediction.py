@@ -30,6 +30,8 @@ DEFAULT_LINES = 3200
 DEFAULT_COLLISION_BINS = 3.0
 #: At most this many collisions are listed; the total is always counted.
 MAX_COLLISIONS = 2000
+#: Up to this many tones every pair is checked at once; above, a sorted window search.
+_ALL_PAIRS_MAX = 48
 
 
 @dataclass(frozen=True)
@@ -176,15 +178,69 @@ def _collisions(
     aliased: NDArray[np.bool_],
     tolerance_hz: float,
 ) -> Collisions:
-    """Aliased tones whose apparent interval comes within ``tolerance_hz`` of another's.
-
-    Sorting by the interval's low end and searching a window ``max width + tolerance``
-    wide keeps this O(n log n + pairs) without a loop over tones.
-    """
+    """Aliased tones whose apparent interval comes within ``tolerance_hz`` of another's."""
     empty_i = np.empty(0, dtype=np.int64)
     n = true_hz.size
     if n < 2 or not np.any(aliased):
         return Collisions(empty_i, empty_i, np.empty(0), tolerance_hz, 0)
+    if n <= _ALL_PAIRS_MAX:
+        i, j, sep = _pairs_all(true_hz, lo, hi, aliased, tolerance_hz)
+    else:
+        i, j, sep = _pairs_windowed(true_hz, lo, hi, aliased, tolerance_hz)
+    total = int(i.size)
+    # Closest first; ties in the order of the tones, so both searches list the same.
+    first = np.lexsort((j, i, sep))[:MAX_COLLISIONS]
+    return Collisions(i[first], j[first], sep[first], tolerance_hz, total)
+
+
+def _pair_filter(
+    true_hz: FloatArray,
+    aliased: NDArray[np.bool_],
+    i: IntArray,
+    j: IntArray,
+    gap: FloatArray,
+    tolerance_hz: float,
+) -> tuple[IntArray, IntArray, FloatArray]:
+    ok = (i != j) & aliased[i] & (gap <= tolerance_hz)
+    ok &= np.abs(true_hz[i] - true_hz[j]) > tolerance_hz
+    # Both directions appear when both are aliased; keep one.
+    ok &= ~(aliased[j] & (j < i))
+    return i[ok], j[ok], gap[ok]
+
+
+def _pairs_all(
+    true_hz: FloatArray,
+    lo: FloatArray,
+    hi: FloatArray,
+    aliased: NDArray[np.bool_],
+    tolerance_hz: float,
+) -> tuple[IntArray, IntArray, FloatArray]:
+    """Every pair at once as an n × n table: for a few dozen tones, fewer numpy calls
+    than the window search. Row ``i``, column ``j``; the same tests as the window."""
+    col, row = lo[np.newaxis, :], hi[:, np.newaxis]
+    gap = np.maximum(col - row, lo[:, np.newaxis] - hi[np.newaxis, :])
+    np.maximum(gap, 0.0, out=gap)
+    ok = gap <= tolerance_hz
+    ok &= aliased[:, np.newaxis]
+    # Same true frequency (which includes i == j): not a collision.
+    ok &= np.abs(true_hz[:, np.newaxis] - true_hz[np.newaxis, :]) > tolerance_hz
+    # Both directions appear when both are aliased; keep the one with j > i.
+    idx = np.arange(true_hz.size)
+    ok &= ~(aliased[np.newaxis, :] & (idx[np.newaxis, :] < idx[:, np.newaxis]))
+    i, j = np.nonzero(ok)
+    return i.astype(np.int64), j.astype(np.int64), gap[i, j]
+
+
+def _pairs_windowed(
+    true_hz: FloatArray,
+    lo: FloatArray,
+    hi: FloatArray,
+    aliased: NDArray[np.bool_],
+    tolerance_hz: float,
+) -> tuple[IntArray, IntArray, FloatArray]:
+    """Sorting by the interval's low end and searching a window ``max width + tolerance``
+    wide keeps this O(n log n + pairs) without a loop over tones."""
+    n = true_hz.size
     order = np.argsort(lo, kind="stable")
     s_lo, s_hi = lo[order], hi[order]
     reach = float(np.max(hi - lo)) + tolerance_hz
@@ -201,11 +257,4 @@ def _collisions(
     cols = start[rows] + offs
     i, j = order[rows], order[cols]
     gap = np.maximum(np.maximum(lo[j] - hi[i], lo[i] - hi[j]), 0.0)
-    ok = (i != j) & aliased[i] & (gap <= tolerance_hz)
-    ok &= np.abs(true_hz[i] - true_hz[j]) > tolerance_hz
-    # Both directions appear when both are aliased; keep one.
-    ok &= ~(aliased[j] & (j < i))
-    i, j, sep = i[ok], j[ok], gap[ok]
-    total = int(i.size)
-    first = np.argsort(sep, kind="stable")[:MAX_COLLISIONS]
-    return Collisions(i[first], j[first], sep[first], tolerance_hz, total)
+    return _pair_filter(true_hz, aliased, i, j, gap, tolerance_hz)

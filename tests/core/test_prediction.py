@@ -50,14 +50,17 @@ class TestPredict:
 
 
 class TestCollisions:
-    def test_against_brute_force(self) -> None:
+    # Few tones are checked pair by pair in one table, many by a sorted window search:
+    # sizes on both sides of the switch.
+    @pytest.mark.parametrize(("n", "lines"), [(12, 25), (40, 100), (400, 400)])
+    def test_against_brute_force(self, n: int, lines: int) -> None:
         # Reference: an independent double loop over all pairs with numpy's fold formula.
         rng = np.random.default_rng(3)
         fs = 2000.0
-        f = rng.uniform(0, 5000, 400)
+        f = rng.uniform(0, 5000, n)
         chain = Chain.shorthand(fs)
-        p = predict(_tones(f), chain, lines=400, collision_bins=3)
-        tol = 3 * fs / 2.56 / 400
+        p = predict(_tones(f), chain, lines=lines, collision_bins=3)
+        tol = 3 * fs / 2.56 / lines
         app = np.abs(f - fs * np.rint(f / fs))
         aliased = f > fs / 2
         expected = set()
@@ -71,8 +74,11 @@ class TestCollisions:
                 if pair:
                     expected.add(pair)
         got = set(zip(p.collisions.alias.tolist(), p.collisions.other.tolist(), strict=True))
+        assert expected, "the case must have collisions to compare"
         assert p.collisions.total == len(expected)
         assert got == expected
+        # Closest first.
+        assert np.all(np.diff(p.collisions.separation_hz) >= 0)
 
     def test_speed_tolerance_widens(self) -> None:
         fs = 1000.0
