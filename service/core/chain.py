@@ -23,6 +23,7 @@ References
 from __future__ import annotations
 
 import dataclasses
+import functools
 import math
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
@@ -469,6 +470,7 @@ class _Plan:
     sample_rate_hz: float
     final_rate_hz: float
     notes: tuple[str, ...]
+    stage_names: tuple[str, ...]
 
 
 @dataclass(frozen=True)
@@ -544,14 +546,7 @@ class Chain:
 
     @property
     def stage_names(self) -> tuple[str, ...]:
-        names = []
-        for st, rate in zip(self.stages, self._plan.input_rates, strict=True):
-            if isinstance(st, DigitalLowpass):
-                assert rate is not None
-                names.append(st.name(rate))
-            else:
-                names.append(st.name())
-        return tuple(names)
+        return self._plan.stage_names
 
     def describe(self) -> list[dict[str, Any]]:
         """Each stage as a plain dict: ``type`` plus the parameters that are set."""
@@ -697,6 +692,9 @@ def _digital(
     _flt._grid_lookup(lo, step, i, frac, out)
 
 
+# A test cell asks about the same few chains again and again; the stages are immutable
+# (and hashable), so their analysis (filter design included) is kept.
+@functools.lru_cache(maxsize=128)
 def _analyse(stages: tuple[Stage, ...]) -> _Plan:
     sample_at = [i for i, st in enumerate(stages) if isinstance(st, Sample)]
     if not sample_at:
@@ -771,6 +769,16 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
                 last_lowpass = None
             rate = new_rate
     assert rate is not None
+    for c in coefs:
+        for arr in c or ():
+            arr.setflags(write=False)  # shared by every chain with these stages
+    names: list[str] = []
+    for st, r in zip(stages, rates, strict=True):
+        if isinstance(st, DigitalLowpass):
+            assert r is not None  # digital stages follow the Sample (checked above)
+            names.append(st.name(r))
+        else:
+            names.append(st.name())
     return _Plan(
         input_rates=tuple(rates),
         coefficients=tuple(coefs),
@@ -778,6 +786,7 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
         sample_rate_hz=fs,
         final_rate_hz=rate,
         notes=tuple(notes),
+        stage_names=tuple(names),
     )
 
 

@@ -212,6 +212,34 @@ class TestShorthand:
             Chain.shorthand(0)
 
 
+class TestSharedAnalysis:
+    """Chains with equal stages share one analysis (filter design included)."""
+
+    def test_equal_stages_equal_answers(self) -> None:
+        stages = (
+            AnalogLowpass("elliptic", 6, 4000, ripple_db=0.1, stop_atten_db=80),
+            Sample(51200),
+            Decimate(4),
+        )
+        f = np.array([100.0, 5000.0, 7300.0, 60000.0])
+        first, second = Chain(stages), Chain(tuple(stages))
+        np.testing.assert_array_equal(
+            first.evaluate(f).attenuation_db, second.evaluate(f).attenuation_db
+        )
+        assert first.stage_names == second.stage_names
+        assert first.validate() == second.validate()
+
+    def test_shared_coefficients_cannot_be_changed(self) -> None:
+        chain = Chain((Sample(48000), Decimate(8)))
+        b, _ = chain._plan.coefficients[1]  # type: ignore[misc]
+        with pytest.raises(ValueError, match="read-only"):
+            b[0] = 1.0
+        # A validation note is not shared state either: the caller gets its own list.
+        notes = chain.validate()
+        notes.append("x")
+        assert "x" not in chain.validate()
+
+
 class TestDescribe:
     def test_basic(self) -> None:
         chain = Chain(
