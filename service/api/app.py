@@ -68,6 +68,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         version=f"{__version__} (computation {COMPUTATION_VERSION})",
         description=DESCRIPTION,
         lifespan=lifespan,
+        # Metrics and logs are the app's own (Prometheus, JSON lines); FastAPI's
+        # OpenTelemetry hooks would only ask, on every request, whether a provider exists.
+        telemetry={"tracing": False, "metrics": False, "logs": False},
     )
     app.state.settings = settings
     app.state.fold_cache = ResponseCache(settings.fold_cache_entries)

@@ -17,16 +17,16 @@ middleware, so an unhandled error is logged and counted as the 500 it became) an
 
 from __future__ import annotations
 
-import json
 import logging
+import os
 import re
 import sys
 import time
-import uuid
 from collections.abc import Awaitable, Callable, Iterator, MutableMapping, Sequence
 from datetime import UTC, datetime
 from typing import Any, TextIO
 
+import orjson
 from fastapi import FastAPI
 from fastapi.responses import Response
 from prometheus_client import (
@@ -39,7 +39,6 @@ from prometheus_client import (
 )
 from prometheus_client.core import CounterMetricFamily, Metric
 from prometheus_client.registry import Collector
-from starlette.datastructures import MutableHeaders
 from starlette.routing import BaseRoute, Mount
 
 from ..config import Settings
@@ -66,6 +65,7 @@ REQUEST_ID_HEADER = "X-Request-ID"
 METRICS_CONTENT_TYPE = "text/plain; version=0.0.4; charset=utf-8"
 UNMATCHED = "<unmatched>"
 
+_ID_NAME = REQUEST_ID_HEADER.lower().encode("latin-1")
 _REQUEST_ID = re.compile(r"[A-Za-z0-9._:-]{1,128}")
 _METHODS = frozenset({"GET", "HEAD", "POST", "PUT", "PATCH", "DELETE", "OPTIONS"})
 #: Seconds; from a cached fold (well under 5 ms) to a long time-record diagnosis.
@@ -212,7 +212,7 @@ def _client_id(scope: Scope) -> str:
             if _REQUEST_ID.fullmatch(given):
                 return str(given)
             break
-    return uuid.uuid4().hex
+    return os.urandom(16).hex()  # 128 random bits, as a uuid4 has (less its version bits)
 
 
 class RequestObserver:
@@ -243,7 +243,10 @@ class RequestObserver:
             nonlocal status
             if message["type"] == "http.response.start":
                 status = int(message["status"])
-                MutableHeaders(scope=message)[REQUEST_ID_HEADER] = request_id
+                message["headers"] = [
+                    *(h for h in message.get("headers", ()) if h[0].lower() != _ID_NAME),
+                    (_ID_NAME, request_id.encode("latin-1")),
+                ]
             await send(message)
 
         self.metrics.in_flight.inc()
@@ -266,7 +269,18 @@ class RequestObserver:
                     "client": client[0] if client else None,
                     "request_id": request_id,
                 }
-                self.logger.info(json.dumps(line, separators=(",", ":")))
+                # A record made directly: Logger.info would walk the stack to find the
+                # caller's file and line on every request, which this line never shows.
+                record = self.logger.makeRecord(
+                    self.logger.name,
+                    logging.INFO,
+                    __file__,
+                    0,
+                    orjson.dumps(line).decode(),
+                    None,
+                    None,
+                )
+                self.logger.handle(record)
 
 
 # --------------------------------------------------------------------------- install

@@ -37,7 +37,6 @@ from urllib.parse import parse_qsl
 from fastapi import FastAPI, Request
 from fastapi.responses import HTMLResponse, JSONResponse, Response
 from fastapi.staticfiles import StaticFiles
-from starlette.datastructures import MutableHeaders
 from starlette.middleware.cors import CORSMiddleware
 
 from ..config import Settings
@@ -121,7 +120,11 @@ class SecurityHeaders:
 
     def __init__(self, app: ASGIApp, headers: dict[str, str] | None = None) -> None:
         self.app = app
-        self.headers = headers or SECURITY_HEADERS
+        # Encoded once: this runs on every response.
+        self.raw = [
+            (name.lower().encode("latin-1"), value.encode("latin-1"))
+            for name, value in (headers or SECURITY_HEADERS).items()
+        ]
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] != "http":
@@ -130,10 +133,10 @@ class SecurityHeaders:
 
         async def send_with_headers(message: Message) -> None:
             if message["type"] == "http.response.start":
-                headers = MutableHeaders(scope=message)
-                for name, value in self.headers.items():
-                    if name not in headers:
-                        headers[name] = value
+                headers = list(message.get("headers", ()))
+                present = {name.lower() for name, _ in headers}
+                headers.extend(h for h in self.raw if h[0] not in present)
+                message["headers"] = headers
             await send(message)
 
         await self.app(scope, receive, send_with_headers)
