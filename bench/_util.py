@@ -41,7 +41,10 @@ class ServerURL(str):
 
 @contextlib.contextmanager
 def local_server(
-    env: dict[str, str] | None = None, workers: int = 1, data_dir: Path | None = None
+    env: dict[str, str] | None = None,
+    workers: int = 1,
+    data_dir: Path | None = None,
+    loop: str = "asyncio",
 ) -> Iterator[ServerURL]:
     """Start ``foldwise serve`` on 127.0.0.1 and yield its base URL; stop it afterwards.
 
@@ -64,6 +67,8 @@ def local_server(
             str(port),
             "--workers",
             str(workers),
+            "--loop",
+            loop,
         ],
         cwd=ROOT,
         env=full_env,

@@ -3,10 +3,13 @@
 A real server on 127.0.0.1 (one worker), loaded by wrk for 10 s with 32 connections per
 endpoint. Bars (issue "Foundation"): fold throughput ≥ 60 % of the trivial endpoint's,
 fold p99 ≤ 25 ms on a 2-core machine. Prints the ratio; asserts nothing.
+
+``--loop uvloop`` measures the same with uvloop instead of the default asyncio loop.
 """
 
 from __future__ import annotations
 
+import argparse
 import json
 import re
 import shutil
@@ -76,6 +79,9 @@ def run_wrk(url: str, lua: Path | None) -> dict[str, float]:
 
 
 def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--loop", choices=("asyncio", "uvloop"), default="asyncio")
+    loop = parser.parse_args().loop
     if shutil.which("wrk") is None:
         print("wrk is not installed (Debian package 'wrk'); cannot run this benchmark")
         return 2
@@ -89,14 +95,14 @@ def main() -> int:
         )
         varied = Path(tmp) / "varied.lua"
         varied.write_text(VARIED_LUA)
-        with local_server(data_dir=Path(tmp) / "data") as base:
+        with local_server(data_dir=Path(tmp) / "data", loop=loop) as base:
             run_wrk(base + "/healthz", None)  # warm up
             trivial = run_wrk(base + "/healthz", None)
             fold = run_wrk(base + "/api/v1/fold", lua)
             fresh = run_wrk(base + "/api/v1/fold", varied)
     print(
         f"load: wrk, {DURATION_S} s, {CONNECTIONS} connections, 1 thread, 127.0.0.1, "
-        "1 server worker"
+        f"1 server worker, {loop} event loop"
     )
     rows = [
         ("GET  /healthz (trivial)", trivial),
