@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import asyncio
 import socket
+from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
 import pytest
@@ -29,8 +30,15 @@ def _nodelay(transport: asyncio.BaseTransport) -> int:
     return int(sock.getsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY))
 
 
-async def _accepted_nodelay(make_protocol: Any) -> int:
-    """TCP_NODELAY on the server side of one connection accepted through asyncio."""
+def _accepted_nodelay(make_protocol: Any) -> int:
+    """TCP_NODELAY on the server side of one connection accepted through asyncio.
+
+    In a thread of its own: the browser tests keep an event loop running in this one."""
+    with ThreadPoolExecutor(1) as pool:
+        return pool.submit(asyncio.run, _accept_one(make_protocol)).result()
+
+
+async def _accept_one(make_protocol: Any) -> int:
     loop = asyncio.get_running_loop()
     seen: asyncio.Future[int] = loop.create_future()
     listener = _listener_like_uvicorns_workers()
@@ -73,10 +81,10 @@ class TestNoDelay:
     def test_asyncio_leaves_nagle_on_for_such_a_listener(self) -> None:
         # The problem being fixed (CPython's base_events._set_nodelay checks the
         # protocol number): without the fix, Nagle's algorithm stays on.
-        assert asyncio.run(_accepted_nodelay(_Plain)) == 0
+        assert _accepted_nodelay(_Plain) == 0
 
     def test_protocol_turns_it_off(self) -> None:
-        assert asyncio.run(_accepted_nodelay(_nodelay_http)) != 0
+        assert _accepted_nodelay(_nodelay_http) != 0
 
     def test_not_a_tcp_socket(self) -> None:
         a, b = socket.socketpair(socket.AF_UNIX)
