@@ -7,12 +7,13 @@ import socket
 from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
+import httpx
 import pytest
 import uvicorn
 from uvicorn.server import ServerState
 
 from service.cli import build_parser
-from service.serving import NoDelayHttp, serve, set_nodelay
+from service.serving import CoalescingTransport, NoDelayHttp, serve, set_nodelay
 
 
 def _listener_like_uvicorns_workers() -> socket.socket:
@@ -103,3 +104,153 @@ class TestServeArguments:
     def test_unknown_loop_is_refused_before_starting(self) -> None:
         with pytest.raises(ValueError, match="loop='trio' must be one of asyncio, uvloop"):
             serve("127.0.0.1", 0, 1, "warning", loop="trio")  # type: ignore[arg-type]
+
+
+class _Recorder(asyncio.Transport):
+    """A transport that records what reaches it."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.writes: list[bytes] = []
+        self.closed = self.aborted = False
+
+    def write(self, data: Any) -> None:
+        self.writes.append(bytes(data))
+
+    def close(self) -> None:
+        self.closed = True
+
+    def abort(self) -> None:
+        self.aborted = True
+
+    def is_closing(self) -> bool:
+        return self.closed or self.aborted
+
+    def get_write_buffer_size(self) -> int:
+        return sum(map(len, self.writes))
+
+
+def _in_loop(check: Any) -> None:
+    """Run ``check(transport, recorder)`` in a fresh event loop of its own thread."""
+
+    async def main() -> None:
+        rec = _Recorder()
+        await check(CoalescingTransport(rec, asyncio.get_running_loop()), rec)
+
+    with ThreadPoolExecutor(1) as pool:
+        pool.submit(asyncio.run, main()).result()
+
+
+class TestCoalescing:
+    def test_one_turn_of_the_loop_is_one_write(self) -> None:
+        async def check(t: CoalescingTransport, rec: _Recorder) -> None:
+            t.write(b"HTTP/1.1 200 OK\r\ncontent-length: 2\r\n\r\n")
+            t.write(memoryview(b"ok"))
+            t.write(b"")
+            assert rec.writes == []
+            assert t.get_write_buffer_size() == 40
+            await asyncio.sleep(0)
+            assert rec.writes == [b"HTTP/1.1 200 OK\r\ncontent-length: 2\r\n\r\nok"]
+            t.write(b"next")
+            await asyncio.sleep(0)
+            assert rec.writes[1:] == [b"next"]
+
+        _in_loop(check)
+
+    def test_large_writes_go_at_once_in_order(self) -> None:
+        async def check(t: CoalescingTransport, rec: _Recorder) -> None:
+            big = b"x" * CoalescingTransport.MAX_HELD
+            t.write(b"head")
+            t.write(big)
+            assert rec.writes == [b"head", big]
+            t.write(b"a" * (CoalescingTransport.MAX_HELD - 1))
+            t.write(b"b")  # the held bytes reach the limit
+            assert rec.writes[2:] == [b"a" * (CoalescingTransport.MAX_HELD - 1) + b"b"]
+            await asyncio.sleep(0)
+            assert len(rec.writes) == 3
+
+        _in_loop(check)
+
+    def test_close_sends_what_is_held_and_abort_drops_it(self) -> None:
+        async def check(t: CoalescingTransport, rec: _Recorder) -> None:
+            t.write(b"last words")
+            t.close()
+            assert rec.writes == [b"last words"] and rec.closed
+            await asyncio.sleep(0)
+            assert rec.writes == [b"last words"]
+
+        _in_loop(check)
+
+        async def check_abort(t: CoalescingTransport, rec: _Recorder) -> None:
+            t.write(b"never sent")
+            t.abort()
+            await asyncio.sleep(0)
+            assert rec.writes == [] and rec.aborted
+
+        _in_loop(check_abort)
+
+
+async def _answers(app: Any, requests: list[tuple[str, str, dict[str, str]]]) -> list[Any]:
+    """Real HTTP through uvicorn's protocol with the coalescing transport, read by httpx."""
+    loop = asyncio.get_running_loop()
+    config = uvicorn.Config(app, log_level="warning")
+    state = ServerState()
+    listener = _listener_like_uvicorns_workers()
+    server = await loop.create_server(
+        lambda: NoDelayHttp(config=config, server_state=state, app_state={}), sock=listener
+    )
+    port = listener.getsockname()[1]
+    try:
+        async with httpx.AsyncClient(base_url=f"http://127.0.0.1:{port}") as client:
+            out = []
+            for method, path, headers in requests:
+                r = await client.request(method, path, headers=headers)
+                out.append((r.status_code, r.headers, r.content))
+            return out
+    finally:
+        server.close()
+        await server.wait_closed()
+
+
+async def _small_app(scope: Any, receive: Any, send: Any) -> None:
+    if scope["type"] != "http":
+        return
+    path = scope["path"]
+    if path == "/empty":
+        await send({"type": "http.response.start", "status": 204, "headers": []})
+        await send({"type": "http.response.body", "body": b""})
+        return
+    if path == "/stream":
+        await send({"type": "http.response.start", "status": 200, "headers": []})
+        for i in range(5):
+            await send({"type": "http.response.body", "body": b"part%d;" % i, "more_body": True})
+            await asyncio.sleep(0.001)
+        await send({"type": "http.response.body", "body": b"", "more_body": False})
+        return
+    body = b"y" * (200_000 if path == "/big" else 10)
+    headers = [(b"content-length", str(len(body)).encode()), (b"content-type", b"text/plain")]
+    await send({"type": "http.response.start", "status": 200, "headers": headers})
+    await send({"type": "http.response.body", "body": body})
+
+
+class TestCoalescedHttp:
+    def test_responses_arrive_whole(self) -> None:
+        requests = [
+            ("GET", "/small", {}),
+            ("GET", "/big", {}),
+            ("GET", "/empty", {}),
+            ("GET", "/stream", {}),
+            ("HEAD", "/small", {}),
+            ("GET", "/small", {"connection": "close"}),
+        ]
+        with ThreadPoolExecutor(1) as pool:
+            got = pool.submit(asyncio.run, _answers(_small_app, requests)).result()
+        small, big, empty, stream, head, closing = got
+        assert small[0] == 200 and small[2] == b"y" * 10
+        assert big[0] == 200 and big[2] == b"y" * 200_000
+        assert empty[0] == 204 and empty[2] == b""
+        assert stream[0] == 200 and stream[1]["transfer-encoding"] == "chunked"
+        assert stream[2] == b"part0;part1;part2;part3;part4;"
+        assert head[0] == 200 and head[2] == b""
+        assert closing[0] == 200 and closing[2] == b"y" * 10
+        assert closing[1]["connection"] == "close"

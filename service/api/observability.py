@@ -24,7 +24,7 @@ import sys
 import time
 from collections.abc import Awaitable, Callable, Iterator, MutableMapping, Sequence
 from datetime import UTC, datetime
-from typing import Any, TextIO
+from typing import Any
 
 import orjson
 from fastapi import FastAPI
@@ -177,20 +177,18 @@ def _asks_to_save(query: str) -> bool:
 # --------------------------------------------------------------------------- logging
 
 
-class _StderrLines(logging.StreamHandler):  # type: ignore[type-arg]
-    """Writes to whatever ``sys.stderr`` is at the time (test runners swap it)."""
+class _StderrLines(logging.Handler):
+    """One line per record on whatever ``sys.stderr`` is at the time (test runners swap
+    it). The access log's message is already the whole JSON line: it is written as it
+    is, without a Formatter pass."""
 
-    def __init__(self) -> None:
-        super().__init__()
-        self.setFormatter(logging.Formatter("%(message)s"))
-
-    @property  # type: ignore[override]
-    def stream(self) -> TextIO:
-        return sys.stderr
-
-    @stream.setter
-    def stream(self, _value: TextIO) -> None:
-        pass
+    def emit(self, record: logging.LogRecord) -> None:
+        try:
+            stream = sys.stderr
+            stream.write(record.getMessage() + "\n")
+            stream.flush()
+        except Exception:
+            self.handleError(record)
 
 
 def _configure_access_logger(level: str) -> logging.Logger:
