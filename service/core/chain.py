@@ -47,6 +47,7 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
+IntArray = NDArray[np.int64]
 
 _MAX_DECIMATION = 4096
 _MIN_FINAL_RATE_HZ = 1.0
@@ -471,6 +472,8 @@ class _Plan:
     final_rate_hz: float
     notes: tuple[str, ...]
     stage_names: tuple[str, ...]
+    fold_thresholds: tuple[tuple[float, int], ...]  # (Nyquist frequency, stage) per fold
+    fold_table: IntArray | None  # zone -> first folding stage (see _fold_table)
 
 
 @dataclass(frozen=True)
@@ -593,7 +596,6 @@ class Chain:
         plan = self._plan
         rows = np.empty((len(self.stages), n))
         active: list[int] = []  # rows that are not identically 0 dB
-        thresholds: list[tuple[float, int]] = []  # (Nyquist frequency, stage) per fold
         folded = f  # frequency seen at the current rate (true frequency before sampling)
         positions: dict[tuple[float, int], tuple[NDArray[np.intp], NDArray[np.float32]]] = {}
         for i, st in enumerate(self.stages):
@@ -606,7 +608,6 @@ class Chain:
                 active.append(i)
             elif isinstance(st, Sample):
                 rows[i] = 0.0
-                thresholds.append((st.rate_hz / 2.0, i))
                 folded = _fold_unchecked(f, st.rate_hz)
             else:
                 assert rate is not None
@@ -618,12 +619,11 @@ class Chain:
                     active.append(i)
                 if isinstance(st, Decimate) and st.factor > 1:
                     new_rate = rate / st.factor
-                    thresholds.append((new_rate / 2.0, i))
                     # fold(fold(f, fs), fs/M) == fold(f, fs/M): fold the true frequency.
                     folded = _fold_unchecked(f, new_rate)
         final = plan.final_rate_hz
         zone = _zone_unchecked(f, final)
-        fold_stage = _fold_stages(f, zone, thresholds, final)
+        fold_stage = _fold_stages(f, zone, plan.fold_thresholds, plan.fold_table)
         if not active:
             total = np.zeros(n)
         elif len(active) == 1:
@@ -645,31 +645,40 @@ class Chain:
         )
 
 
-def _fold_stages(
-    f: FloatArray,
-    zone: NDArray[np.int64],
-    thresholds: list[tuple[float, int]],
-    final_rate: float,
-) -> NDArray[np.int64]:
-    """Index of the first stage at which each tone folds (-1 if never).
+def _fold_table(thresholds: tuple[tuple[float, int], ...], final_rate: float) -> IntArray | None:
+    """Lookup from Nyquist zone (at the final rate) to the first stage that folds.
 
     The Nyquist frequencies only fall along the chain and a tone keeps its true
     frequency until it first folds, so its first fold is at the first stage whose
     Nyquist frequency its true frequency exceeds. Each such Nyquist frequency is an
     integer multiple P of the final one, so "f exceeds it" is "zone > P" and one table
-    lookup on the zone answers for all stages at once.
+    lookup on the zone answers for all stages at once. None for very deep decimation
+    (the table would be too long): then each Nyquist frequency is compared.
     """
     multiples = [max(1, round(2.0 * nyq / final_rate)) for nyq, _ in thresholds]
     top = max(multiples, default=1) + 1
-    if top > 1 << 20:  # very deep decimation: compare against each Nyquist frequency
+    if top > 1 << 20:
+        return None
+    table = np.full(top + 1, -1, dtype=np.int64)
+    for p, (_, i) in reversed(list(zip(multiples, thresholds, strict=True))):
+        table[p + 1 :] = i
+    table.setflags(write=False)
+    return table
+
+
+def _fold_stages(
+    f: FloatArray,
+    zone: NDArray[np.int64],
+    thresholds: tuple[tuple[float, int], ...],
+    table: IntArray | None,
+) -> NDArray[np.int64]:
+    """Index of the first stage at which each tone folds (-1 if never)."""
+    if table is None:
         out = np.full(f.size, -1, dtype=np.int64)
         for nyq, i in reversed(thresholds):
             out = np.where(f > nyq, i, out)
         return out
-    table = np.full(top + 1, -1, dtype=np.int64)
-    for p, (_, i) in reversed(list(zip(multiples, thresholds, strict=True))):
-        table[p + 1 :] = i
-    return table.take(np.minimum(zone, top))
+    return table.take(np.minimum(zone, table.size - 1))
 
 
 def _digital(
@@ -738,11 +747,13 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
     coefs: list[tuple[FloatArray, FloatArray] | None] = []
     rate: float | None = None
     last_lowpass: DigitalLowpass | None = None  # at the current rate
+    thresholds: list[tuple[float, int]] = []  # (Nyquist frequency, stage) per fold
     for i, st in enumerate(stages):
         rates.append(rate)
         coefs.append(None)
         if isinstance(st, Sample):
             rate = st.rate_hz
+            thresholds.append((rate / 2.0, i))
         elif isinstance(st, DigitalLowpass):
             assert rate is not None
             if st.is_spec:
@@ -767,6 +778,7 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
                 notes.extend(_slice_notes(st.factor, rate, new_rate, last_lowpass))
             if st.factor > 1:
                 last_lowpass = None
+                thresholds.append((new_rate / 2.0, i))
             rate = new_rate
     assert rate is not None
     for c in coefs:
@@ -787,6 +799,8 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
         final_rate_hz=rate,
         notes=tuple(notes),
         stage_names=tuple(names),
+        fold_thresholds=tuple(thresholds),
+        fold_table=_fold_table(tuple(thresholds), rate),
     )
 
 
