@@ -219,13 +219,15 @@ def _read_back(base: str, ids: list[str]) -> int:
             return sum(not good for good in pool.map(ok, ids))
 
 
-def run(postgres: bool, duration_s: int) -> int:
+def run(postgres: bool, duration_s: int, loop: str = "asyncio") -> int:
     with contextlib.ExitStack() as stack:
         tmp = Path(stack.enter_context(tempfile.TemporaryDirectory()))
         env = {"FOLDWISE_LOG_LEVEL": "warning"}
         if postgres:
             env["FOLDWISE_DATABASE_URL"] = stack.enter_context(_pg_schema())
-        base = stack.enter_context(local_server(env, workers=WORKERS, data_dir=tmp / "data"))
+        base = stack.enter_context(
+            local_server(env, workers=WORKERS, data_dir=tmp / "data", loop=loop)
+        )
         ids_file = tmp / "ids.txt"
         _warm_up_and_seed(base, ids_file)
         seeded = len(ids_file.read_text().split())
@@ -259,7 +261,8 @@ def run(postgres: bool, duration_s: int) -> int:
     store = "PostgreSQL (fresh schema)" if postgres else "SQLite (WAL, synchronous=FULL)"
     print(
         f"load: {sum(CONNECTIONS.values())} connections for {duration_s} s ({wall:.0f} s wall), "
-        f"one wrk per endpoint, 127.0.0.1; server: foldwise serve --workers {WORKERS}, {store}"
+        f"one wrk per endpoint, 127.0.0.1; server: foldwise serve --workers {WORKERS} "
+        f"--loop {loop}, {store}"
     )
     head = (
         f"{'endpoint':<34} {'conns':>5} {'requests':>9} {'req/s':>8} "
@@ -299,6 +302,7 @@ def main() -> int:
         "--postgres", action="store_true", help="use the local PostgreSQL (fresh schema)"
     )
     parser.add_argument("--duration", type=int, default=DURATION_S, help="seconds of load")
+    parser.add_argument("--loop", choices=("asyncio", "uvloop"), default="asyncio")
     ns = parser.parse_args()
     if shutil.which("wrk") is None:
         print("wrk is not installed (Debian package 'wrk'); cannot run this benchmark")
@@ -306,7 +310,7 @@ def main() -> int:
     if not 1 <= ns.duration <= 600:
         print(f"--duration={ns.duration} must be between 1 and 600 s")
         return 2
-    return run(ns.postgres, ns.duration)
+    return run(ns.postgres, ns.duration, ns.loop)
 
 
 if __name__ == "__main__":

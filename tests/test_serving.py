@@ -13,7 +13,7 @@ import uvicorn
 from uvicorn.server import ServerState
 
 from service.cli import build_parser
-from service.serving import CoalescingTransport, NoDelayHttp, serve, set_nodelay
+from service.serving import NoDelayHttp, serve, set_nodelay
 
 
 def _listener_like_uvicorns_workers() -> socket.socket:
@@ -106,92 +106,8 @@ class TestServeArguments:
             serve("127.0.0.1", 0, 1, "warning", loop="trio")  # type: ignore[arg-type]
 
 
-class _Recorder(asyncio.Transport):
-    """A transport that records what reaches it."""
-
-    def __init__(self) -> None:
-        super().__init__()
-        self.writes: list[bytes] = []
-        self.closed = self.aborted = False
-
-    def write(self, data: Any) -> None:
-        self.writes.append(bytes(data))
-
-    def close(self) -> None:
-        self.closed = True
-
-    def abort(self) -> None:
-        self.aborted = True
-
-    def is_closing(self) -> bool:
-        return self.closed or self.aborted
-
-    def get_write_buffer_size(self) -> int:
-        return sum(map(len, self.writes))
-
-
-def _in_loop(check: Any) -> None:
-    """Run ``check(transport, recorder)`` in a fresh event loop of its own thread."""
-
-    async def main() -> None:
-        rec = _Recorder()
-        await check(CoalescingTransport(rec, asyncio.get_running_loop()), rec)
-
-    with ThreadPoolExecutor(1) as pool:
-        pool.submit(asyncio.run, main()).result()
-
-
-class TestCoalescing:
-    def test_one_turn_of_the_loop_is_one_write(self) -> None:
-        async def check(t: CoalescingTransport, rec: _Recorder) -> None:
-            t.write(b"HTTP/1.1 200 OK\r\ncontent-length: 2\r\n\r\n")
-            t.write(memoryview(b"ok"))
-            t.write(b"")
-            assert rec.writes == []
-            assert t.get_write_buffer_size() == 40
-            await asyncio.sleep(0)
-            assert rec.writes == [b"HTTP/1.1 200 OK\r\ncontent-length: 2\r\n\r\nok"]
-            t.write(b"next")
-            await asyncio.sleep(0)
-            assert rec.writes[1:] == [b"next"]
-
-        _in_loop(check)
-
-    def test_large_writes_go_at_once_in_order(self) -> None:
-        async def check(t: CoalescingTransport, rec: _Recorder) -> None:
-            big = b"x" * CoalescingTransport.MAX_HELD
-            t.write(b"head")
-            t.write(big)
-            assert rec.writes == [b"head", big]
-            t.write(b"a" * (CoalescingTransport.MAX_HELD - 1))
-            t.write(b"b")  # the held bytes reach the limit
-            assert rec.writes[2:] == [b"a" * (CoalescingTransport.MAX_HELD - 1) + b"b"]
-            await asyncio.sleep(0)
-            assert len(rec.writes) == 3
-
-        _in_loop(check)
-
-    def test_close_sends_what_is_held_and_abort_drops_it(self) -> None:
-        async def check(t: CoalescingTransport, rec: _Recorder) -> None:
-            t.write(b"last words")
-            t.close()
-            assert rec.writes == [b"last words"] and rec.closed
-            await asyncio.sleep(0)
-            assert rec.writes == [b"last words"]
-
-        _in_loop(check)
-
-        async def check_abort(t: CoalescingTransport, rec: _Recorder) -> None:
-            t.write(b"never sent")
-            t.abort()
-            await asyncio.sleep(0)
-            assert rec.writes == [] and rec.aborted
-
-        _in_loop(check_abort)
-
-
 async def _answers(app: Any, requests: list[tuple[str, str, dict[str, str]]]) -> list[Any]:
-    """Real HTTP through uvicorn's protocol with the coalescing transport, read by httpx."""
+    """Real HTTP through the protocol the server uses, read by httpx."""
     loop = asyncio.get_running_loop()
     config = uvicorn.Config(app, log_level="warning")
     state = ServerState()
@@ -233,7 +149,7 @@ async def _small_app(scope: Any, receive: Any, send: Any) -> None:
     await send({"type": "http.response.body", "body": body})
 
 
-class TestCoalescedHttp:
+class TestHttpThroughTheProtocol:
     def test_responses_arrive_whole(self) -> None:
         requests = [
             ("GET", "/small", {}),
