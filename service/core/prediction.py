@@ -193,21 +193,6 @@ def _collisions(
     return Collisions(i[first], j[first], sep[first], tolerance_hz, total)
 
 
-def _pair_filter(
-    true_hz: FloatArray,
-    aliased: NDArray[np.bool_],
-    i: IntArray,
-    j: IntArray,
-    gap: FloatArray,
-    tolerance_hz: float,
-) -> tuple[IntArray, IntArray, FloatArray]:
-    ok = (i != j) & aliased[i] & (gap <= tolerance_hz)
-    ok &= np.abs(true_hz[i] - true_hz[j]) > tolerance_hz
-    # Both directions appear when both are aliased; keep one.
-    ok &= ~(aliased[j] & (j < i))
-    return i[ok], j[ok], gap[ok]
-
-
 def _pairs_all(
     true_hz: FloatArray,
     lo: FloatArray,
@@ -217,8 +202,7 @@ def _pairs_all(
 ) -> tuple[IntArray, IntArray, FloatArray]:
     """Every pair at once as an n × n table: for a few dozen tones, fewer numpy calls
     than the window search. Row ``i``, column ``j``; the same tests as the window."""
-    col, row = lo[np.newaxis, :], hi[:, np.newaxis]
-    gap = np.maximum(col - row, lo[:, np.newaxis] - hi[np.newaxis, :])
+    gap = np.maximum(lo[np.newaxis, :] - hi[:, np.newaxis], lo[:, np.newaxis] - hi[np.newaxis, :])
     np.maximum(gap, 0.0, out=gap)
     ok = gap <= tolerance_hz
     ok &= aliased[:, np.newaxis]
@@ -257,4 +241,8 @@ def _pairs_windowed(
     cols = start[rows] + offs
     i, j = order[rows], order[cols]
     gap = np.maximum(np.maximum(lo[j] - hi[i], lo[i] - hi[j]), 0.0)
-    return _pair_filter(true_hz, aliased, i, j, gap, tolerance_hz)
+    ok = (i != j) & aliased[i] & (gap <= tolerance_hz)
+    ok &= np.abs(true_hz[i] - true_hz[j]) > tolerance_hz
+    # Both directions appear when both are aliased; keep one.
+    ok &= ~(aliased[j] & (j < i))
+    return i[ok], j[ok], gap[ok]
