@@ -90,72 +90,29 @@ def prediction_to_dict(p: Prediction) -> dict[str, Any]:
     level = _nan_to_none(p.apparent_amplitude)
     family = [f or None for f in t.family.tolist()]
     harmonic = _nan_to_none(t.harmonic)
-    # One dict display per tone: about twice as fast as dict(zip(keys, row)).
-    tones_out = [
-        {
-            "label": label,
-            "source": source,
-            "kind": kind,
-            "family": fam,
-            "harmonic": harm,
-            "freq_hz": freq,
-            "apparent_hz": app,
-            "apparent_low_hz": app_lo,
-            "apparent_high_hz": app_hi,
-            "zone": zone,
-            "inverted": inverted,
-            "aliased": aliased,
-            "in_band": in_band,
-            "attenuation_db": att,
-            "stage_attenuation_db": att_stages,
-            "folded_at": at,
-            "amplitude": a,
-            "apparent_amplitude": lvl,
-            "bin": b,
-        }
-        for (
-            label,
-            source,
-            kind,
-            fam,
-            harm,
-            freq,
-            app,
-            app_lo,
-            app_hi,
-            zone,
-            inverted,
-            aliased,
-            in_band,
-            att,
-            att_stages,
-            at,
-            a,
-            lvl,
-            b,
-        ) in zip(
-            t.label.tolist(),
-            t.source.tolist(),
-            t.kind.tolist(),
-            family,
-            harmonic,
-            t.freq_hz.tolist(),
-            r.apparent_hz.tolist(),
-            p.apparent_low_hz.tolist(),
-            p.apparent_high_hz.tolist(),
-            r.zone.tolist(),
-            np.asarray(r.inverted).tolist(),
-            p.aliased.tolist(),
-            p.in_band.tolist(),
-            np.round(r.attenuation_db, 4).tolist(),
-            stage_db,
-            folded_at,
-            amp,
-            level,
-            p.bin.tolist(),
-            strict=True,
-        )
-    ]
+    cols = {
+        "label": t.label.tolist(),
+        "source": t.source.tolist(),
+        "kind": t.kind.tolist(),
+        "family": family,
+        "harmonic": harmonic,
+        "freq_hz": t.freq_hz.tolist(),
+        "apparent_hz": r.apparent_hz.tolist(),
+        "apparent_low_hz": p.apparent_low_hz.tolist(),
+        "apparent_high_hz": p.apparent_high_hz.tolist(),
+        "zone": r.zone.tolist(),
+        "inverted": np.asarray(r.inverted).tolist(),
+        "aliased": p.aliased.tolist(),
+        "in_band": p.in_band.tolist(),
+        "attenuation_db": np.round(r.attenuation_db, 4).tolist(),
+        "stage_attenuation_db": stage_db,
+        "folded_at": folded_at,
+        "amplitude": amp,
+        "apparent_amplitude": level,
+        "bin": p.bin.tolist(),
+    }
+    keys = list(cols)
+    tones_out = [dict(zip(keys, row, strict=True)) for row in zip(*cols.values(), strict=True)]
     c = p.collisions
     collisions = [
         {
