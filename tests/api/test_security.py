@@ -13,6 +13,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
+from fastapi.responses import PlainTextResponse
 from fastapi.testclient import TestClient
 
 from service.api import security
@@ -78,6 +79,23 @@ class TestSecurityHeaders:
         ):
             assert r.status_code == 200, r.request.url
             _assert_security_headers(r.headers)
+
+    def test_a_route_header_wins_and_none_is_doubled(self, make_client: ClientFactory) -> None:
+        c = make_client()
+
+        async def framed() -> PlainTextResponse:
+            return PlainTextResponse(
+                "x", headers={"X-Frame-Options": "SAMEORIGIN", "X-Request-ID": "from-route"}
+            )
+
+        c.app.add_api_route("/framed", framed)  # type: ignore[attr-defined]
+        r = c.get("/framed", headers={"X-Request-ID": "cell-7"})
+        raw = [k.lower() for k, _ in r.headers.multi_items()]
+        assert r.headers["x-frame-options"] == "SAMEORIGIN"
+        assert raw.count("x-frame-options") == 1
+        # The request id is the service's to set: the client's, once.
+        assert r.headers.get_list("x-request-id") == ["cell-7"]
+        assert raw.count("content-security-policy") == 1
 
     def test_errors(self, make_client: ClientFactory) -> None:
         c = make_client()
