@@ -63,3 +63,20 @@ def save_then_die(url: str, out_path: str) -> None:
         fh.flush()
         os.fsync(fh.fileno())
     os.kill(os.getpid(), signal.SIGKILL)
+
+
+def open_fresh(base: str, rounds: int, barrier: Any, out_path: str) -> None:
+    """For each round, open a connection on a new SQLite file at the same moment as the
+    other workers; write the errors met (one line each) to ``out_path``."""
+    errors = []
+    for r in range(rounds):
+        barrier.wait(timeout=60)
+        store = Store.from_url(f"sqlite:///{base}/round{r}.sqlite3")
+        try:
+            with store._write_engine.connect():
+                pass
+        except Exception as exc:
+            errors.append(f"round {r}: {exc!s:.200}")
+        finally:
+            store.close()
+    Path(out_path).write_text("\n".join(errors))
