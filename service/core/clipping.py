@@ -1,0 +1,731 @@
+"""Clipping in a time record, and which spectrum peaks clipping can explain.
+
+A converter or an amplifier driven past its range holds the output at its limit for as
+long as the input stays beyond it: the record shows runs of consecutive samples at one
+value at the top and/or bottom of its range. That flattening is a memoryless odd (or,
+when only one side clips, non-odd) nonlinearity, so it adds harmonics of every strong
+tone and intermodulation products between strong tones. After sampling these products
+fold like any other tone; diagnosis must not report them as independent aliases or
+mirrors.
+
+Everything is vectorised over samples, peaks and candidate products.
+
+References
+----------
+.. [1] A. V. Oppenheim and A. S. Willsky, *Signals and Systems*, 2nd ed., Prentice
+   Hall, 1997, ch. 3 (Fourier series; a waveform with half-wave symmetry
+   ``x(t + T/2) = −x(t)`` has odd harmonics only).
+.. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
+   Pearson, 2010, sec. 4.2 (aliasing of a sinusoid; the fold formula used here is
+   :func:`service.core.folding.fold`).
+.. [3] Common practice (no single source): a memoryless nonlinearity driven by two
+   tones ``f1``, ``f2`` produces intermodulation products ``m·f1 ± n·f2`` of order
+   ``m + n``; an odd-symmetric one (symmetric clipping) produces only odd orders.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+
+from .errors import InputError
+from .folding import fold
+from .harmonics import format_hz
+
+__all__ = [
+    "BAND_FRACTION",
+    "CLIPPED_FRACTION",
+    "MIN_RUN",
+    "PILEUP_CLIPPED",
+    "PILEUP_SUSPECTED",
+    "SUSPECTED_FRACTION",
+    "SYMMETRY_TOLERANCE",
+    "ClippingProducts",
+    "ClippingReport",
+    "clipped_sine_harmonics",
+    "clipping_products",
+    "detect_clipping",
+    "strongest_tones",
+]
+
+FloatArray = NDArray[np.float64]
+IntArray = NDArray[np.int64]
+BoolArray = NDArray[np.bool_]
+ObjArray = NDArray[np.object_]
+
+#: A clip is a run of at least this many consecutive samples at a clip level: a single
+#: sample at the extreme is what every unclipped record has.
+MIN_RUN = 2
+#: Fraction of all samples (in runs) from which the record is called ``"clipped"``
+#: (0.1 %): at that share the clipping products of a strong tone reach roughly
+#: −40 dB re the tone (computed with :func:`clipped_sine_harmonics`), i.e. visible peaks.
+CLIPPED_FRACTION = 1e-3
+#: ... and from which it is ``"suspected"`` (0.01 %): a few short clips, products near
+#: −60 dB re the tone, only visible in a clean spectrum.
+SUSPECTED_FRACTION = 1e-4
+#: Width of the band just inside a clip level, as a fraction of the record's
+#: peak-to-peak range (1 %), with which the pile-up at the level is compared.
+BAND_FRACTION = 0.01
+#: Pile-up ratio (samples on the level ÷ samples in the band just inside it) from which a
+#: level counts as a clip for ``"clipped"``. An unclipped sine, even finely quantised and
+#: heavily oversampled so that a few samples share its top code, has a ratio of a few
+#: hundredths (its samples near the crest spread over the band); a sine clipped 1 % below
+#: its crest already has a ratio above 1 (the flattened tops all sit on one value).
+PILEUP_CLIPPED = 1.0
+#: ... and for ``"suspected"``.
+PILEUP_SUSPECTED = 0.25
+#: The clipping counts as symmetric when both polarities clip, the two levels are this
+#: close to symmetric about the record's mean (fraction of the peak-to-peak range) and
+#: the two clipped fractions are within a factor of 2 of each other.
+SYMMETRY_TOLERANCE = 0.05
+#: Default relative tolerance on a clip level: samples within this fraction of the
+#: record's peak-to-peak range of the level count as on it (round-off after scaling;
+#: below one code of a 24-bit converter is 6e-8 of full range, so this is about 16 codes
+#: at 24 bits and far less than a code at 16 bits).
+DEFAULT_RELATIVE_TOLERANCE = 1e-6
+
+
+# --------------------------------------------------------------------------- checks
+
+
+def _check_samples(samples: ArrayLike) -> FloatArray:
+    x = np.asarray(samples)
+    if x.dtype.kind not in "biuf":
+        raise InputError(
+            f"samples must be numbers, got dtype {x.dtype}", field="samples", code="not_numeric"
+        )
+    x = x.astype(np.float64, copy=False)
+    if x.ndim != 1:
+        raise InputError(
+            f"samples must be a 1-D record; got shape {x.shape}",
+            field="samples",
+            value=list(x.shape),
+            code="bad_shape",
+        )
+    if x.size < 3:
+        raise InputError(
+            f"samples has {x.size} values; at least 3 are needed",
+            field="samples",
+            value=x.size,
+            limit=3,
+            code="too_short",
+        )
+    if not np.all(np.isfinite(x)):
+        i = int(np.flatnonzero(~np.isfinite(x))[0])
+        raise InputError(
+            f"samples[{i}]={x[i]!r} is not finite; drop or repair it first",
+            field=f"samples[{i}]",
+            value=str(x[i]),
+            code="not_finite",
+        )
+    return x
+
+
+def _check_positive(value: float, name: str, unit: str = "") -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputError(f"{name}={value!r} must be a number", field=name, code="invalid") from None
+    if not np.isfinite(v) or v <= 0:
+        raise InputError(
+            f"{name}={value!r} must be a finite number > 0{unit}",
+            field=name,
+            value=v,
+            limit=0,
+            code="not_positive",
+        )
+    return v
+
+
+def _check_int(value: int, name: str, low: int, high: int) -> int:
+    if isinstance(value, bool) or int(value) != value or not low <= int(value) <= high:
+        raise InputError(
+            f"{name}={value!r} must be a whole number from {low} to {high}",
+            field=name,
+            value=value,
+            limit=[low, high],
+            code="out_of_range",
+        )
+    return int(value)
+
+
+def _check_freqs(values: ArrayLike, name: str) -> FloatArray:
+    f = np.atleast_1d(np.asarray(values, dtype=np.float64))
+    if f.ndim != 1:
+        raise InputError(f"{name} must be a 1-D list of frequencies", field=name, code="bad_shape")
+    bad = ~np.isfinite(f) | (f < 0)
+    if np.any(bad):
+        i = int(np.flatnonzero(bad)[0])
+        raise InputError(
+            f"{name}[{i}]={f[i]!r} must be a finite frequency >= 0 Hz",
+            field=f"{name}[{i}]",
+            value=float(f[i]) if np.isfinite(f[i]) else str(f[i]),
+            code="invalid_frequency",
+        )
+    return f
+
+
+# --------------------------------------------------------------------------- detection
+
+
+@dataclass(frozen=True)
+class ClippingReport:
+    """What :func:`detect_clipping` found.
+
+    Attributes
+    ----------
+    verdict : str
+        ``"none"``, ``"suspected"`` or ``"clipped"``.
+    fraction : float
+        Fraction of all samples that sit in clip runs (0 to 1).
+    clipped_samples : int
+        Number of samples in clip runs (both polarities).
+    runs : int
+        Number of clip runs (both polarities).
+    longest_run : int
+        Longest clip run, samples.
+    high_level, low_level : float
+        The clip levels examined (record maximum/minimum, or the stated full scale),
+        unit of the samples.
+    high_fraction, low_fraction : float
+        Fraction of all samples in runs at each level.
+    high_pileup, low_pileup : float
+        Samples on each level ÷ samples in the band of :data:`BAND_FRACTION` of the range
+        just inside it (``inf`` when the band is empty and the level is not).
+    high_clipped, low_clipped : bool
+        That polarity's runs pass the thresholds of the verdict.
+    symmetric : bool
+        Both polarities clip about equally (see :data:`SYMMETRY_TOLERANCE`): expect odd
+        harmonics only; otherwise even harmonics appear too.
+    levels_from : str
+        ``"record"`` (extremes of the record) or ``"full_scale"``.
+    sentence : str
+        One plain sentence for the summary.
+    """
+
+    verdict: str
+    fraction: float
+    clipped_samples: int
+    runs: int
+    longest_run: int
+    high_level: float
+    low_level: float
+    high_fraction: float
+    low_fraction: float
+    high_pileup: float
+    low_pileup: float
+    high_clipped: bool
+    low_clipped: bool
+    symmetric: bool
+    levels_from: str
+    sentence: str
+
+
+def _runs(mask: BoolArray, min_run: int) -> tuple[int, int, int]:
+    """(samples in runs ≥ min_run, number of such runs, longest run) of True in mask."""
+    padded = np.concatenate(([False], mask, [False])).astype(np.int8)
+    edges = np.diff(padded)
+    starts = np.flatnonzero(edges == 1)
+    ends = np.flatnonzero(edges == -1)
+    lengths = ends - starts
+    long_ = lengths[lengths >= min_run]
+    return int(long_.sum()), int(long_.size), int(lengths.max()) if lengths.size else 0
+
+
+def detect_clipping(
+    samples: ArrayLike,
+    full_scale: float | tuple[float, float] | None = None,
+    tolerance: float | None = None,
+    min_run: int = MIN_RUN,
+) -> ClippingReport:
+    """Detect clipping: runs of consecutive samples held at a clip level, both polarities.
+
+    Parameters
+    ----------
+    samples : array_like
+        1-D time record, any unit (counts, V, g ...), at least 3 finite values.
+    full_scale : float or (float, float), optional
+        The converter's or amplifier's limits in the unit of the samples: one positive
+        value ``F`` for ``±F``, or ``(low, high)``. Samples at or beyond a limit (within
+        ``tolerance``) count as on it. Default: the record's own minimum and maximum.
+    tolerance : float, optional
+        How close to a level a sample must be to count as on it, unit of the samples
+        (>= 0). Default :data:`DEFAULT_RELATIVE_TOLERANCE` × peak-to-peak range.
+    min_run : int
+        Shortest run counted as a clip, samples (1 to 1000); default :data:`MIN_RUN`.
+        A strong tone within a factor 3 of the Nyquist frequency has only a few samples
+        per cycle, so its clipped crests are often single samples: give 1 for such a
+        record (the pile-up test then carries the decision alone).
+
+    Returns
+    -------
+    ClippingReport
+
+    Notes
+    -----
+    A level counts as clipped when the samples in runs of ``>= min_run`` on it reach
+    :data:`SUSPECTED_FRACTION` (0.01 %) of the record and they pile up on it: the
+    samples on the level outnumber those in the band of :data:`BAND_FRACTION` (1 %) of
+    the range (at least two codes of a quantised record) just inside it by the ratio
+    :data:`PILEUP_SUSPECTED` (0.25). The record is
+    ``"clipped"`` when the clipped fraction (both levels) reaches
+    :data:`CLIPPED_FRACTION` (0.1 %) and a level's pile-up ratio reaches
+    :data:`PILEUP_CLIPPED` (1); ``"suspected"`` when a level passes the lower pair of
+    thresholds; otherwise ``"none"``. The pile-up test keeps an unclipped, finely
+    quantised, heavily oversampled sine (a few samples share its top code) from being
+    flagged: near the crest its samples spread over the band below the top.
+
+    Clipping after which the record was filtered (a digital decimation filter after a
+    saturated modulator) no longer shows flat runs and is not detected here.
+    """
+    x = _check_samples(samples)
+    run = _check_int(min_run, "min_run", 1, 1000)
+    lo_rec, hi_rec = float(x.min()), float(x.max())
+    span = hi_rec - lo_rec
+    if tolerance is None:
+        tol = DEFAULT_RELATIVE_TOLERANCE * span
+    else:
+        tol = float(tolerance)
+        if not np.isfinite(tol) or tol < 0:
+            raise InputError(
+                f"tolerance={tolerance!r} must be a finite number >= 0",
+                field="tolerance",
+                value=tol if np.isfinite(tol) else str(tol),
+                limit=0,
+                code="negative",
+            )
+    if full_scale is None:
+        low, high, levels_from = lo_rec, hi_rec, "record"
+    else:
+        if np.ndim(full_scale) == 0:
+            f = _check_positive(float(full_scale), "full_scale")  # type: ignore[arg-type]
+            low, high = -f, f
+        else:
+            try:
+                low, high = (float(v) for v in full_scale)  # type: ignore[union-attr]
+            except (TypeError, ValueError):
+                raise InputError(
+                    f"full_scale={full_scale!r} must be one number F (for ±F) or two (low, high)",
+                    field="full_scale",
+                    code="invalid",
+                ) from None
+            if not (np.isfinite(low) and np.isfinite(high)) or high <= low:
+                raise InputError(
+                    f"full_scale={[low, high]!r} must be two finite numbers with low < high",
+                    field="full_scale",
+                    value=[low, high],
+                    code="invalid",
+                )
+        levels_from = "full_scale"
+        span = max(span, high - low)
+
+    n = x.size
+    if span == 0.0:
+        text = "the record is constant: no signal, nothing to clip"
+        return _report("none", 0, 0, 0, n, high, low, (0.0, 0.0), (0.0, 0.0), (False, False),
+                       False, levels_from, text)  # fmt: skip
+    # The band must be wider than a code of a quantised record, or it would be empty.
+    steps = np.diff(np.unique(x))
+    code = float(steps.min()) if steps.size else 0.0
+    band = max(BAND_FRACTION * span, 2.0 * code)
+    on_high = x >= high - tol
+    on_low = x <= low + tol
+    in_high_band = (x < high - tol) & (x >= high - tol - band)
+    in_low_band = (x > low + tol) & (x <= low + tol + band)
+    hi_n, hi_runs, hi_long = _runs(on_high, run)
+    lo_n, lo_runs, lo_long = _runs(on_low, run)
+    pile = (_pileup(hi_n, int(in_high_band.sum())), _pileup(lo_n, int(in_low_band.sum())))
+    frac = (hi_n / n, lo_n / n)
+    suspect = tuple(
+        fr >= SUSPECTED_FRACTION and pl >= PILEUP_SUSPECTED
+        for fr, pl in zip(frac, pile, strict=True)
+    )
+    total = hi_n + lo_n
+    fraction = total / n
+    strong = any(s and pl >= PILEUP_CLIPPED for s, pl in zip(suspect, pile, strict=True))
+    if fraction >= CLIPPED_FRACTION and strong:
+        verdict = "clipped"
+    elif any(suspect):
+        verdict = "suspected"
+    else:
+        verdict = "none"
+    mean = float(np.mean(x))
+    symmetric = bool(
+        all(suspect)
+        and abs((high - mean) + (low - mean)) <= SYMMETRY_TOLERANCE * span
+        and max(frac) <= 2.0 * min(frac)
+    )
+    where = "full scale" if levels_from == "full_scale" else "the record's extremes"
+    if verdict == "none":
+        sentence = f"no clipping found: no runs of {run} or more samples pile up at {where}"
+    else:
+        sides = " and ".join(name for name, s in zip(("top", "bottom"), suspect, strict=True) if s)
+        sentence = (
+            f"{'clipping' if verdict == 'clipped' else 'possible clipping'}: "
+            f"{100 * fraction:.2g} % of the samples sit in {hi_runs + lo_runs} runs at "
+            f"{where} ({sides}); harmonics and intermodulation products of the strong "
+            "tones are expected in the spectrum"
+            + ("" if not symmetric else " (symmetric clipping: mainly odd harmonics)")
+        )
+    return _report(verdict, total, hi_runs + lo_runs, max(hi_long, lo_long) if total else 0, n,
+                   high, low, frac, pile, suspect, symmetric, levels_from, sentence)  # fmt: skip
+
+
+def _pileup(on_level: int, in_band: int) -> float:
+    if on_level == 0:
+        return 0.0
+    return float("inf") if in_band == 0 else on_level / in_band
+
+
+def _report(
+    verdict: str,
+    total: int,
+    runs: int,
+    longest: int,
+    n: int,
+    high: float,
+    low: float,
+    frac: tuple[float, float],
+    pile: tuple[float, float],
+    suspect: tuple[bool, ...],
+    symmetric: bool,
+    levels_from: str,
+    sentence: str,
+) -> ClippingReport:
+    return ClippingReport(
+        verdict=verdict,
+        fraction=total / n,
+        clipped_samples=total,
+        runs=runs,
+        longest_run=longest,
+        high_level=high,
+        low_level=low,
+        high_fraction=frac[0],
+        low_fraction=frac[1],
+        high_pileup=pile[0],
+        low_pileup=pile[1],
+        high_clipped=bool(suspect[0]),
+        low_clipped=bool(suspect[1]),
+        symmetric=symmetric,
+        levels_from=levels_from,
+        sentence=sentence,
+    )
+
+
+# --------------------------------------------------------------------------- levels
+
+
+def clipped_sine_harmonics(amplitude: float, clip_level: float, orders: ArrayLike) -> FloatArray:
+    """Harmonic amplitudes of a sine clipped symmetrically at ``±clip_level``.
+
+    Parameters
+    ----------
+    amplitude : float
+        Amplitude ``A`` of the sine before clipping (> 0).
+    clip_level : float
+        Clip level ``c`` (> 0); ``c >= A`` means no clipping.
+    orders : array_like of int
+        Harmonic orders ``k >= 1``.
+
+    Returns
+    -------
+    ndarray
+        Amplitude of each harmonic, unit of ``amplitude`` (0 for even orders).
+
+    Notes
+    -----
+    With ``θc = arccos(c/A)`` (the half-angle of each flattened crest), integrating the
+    Fourier series of ``clip(A·cos θ, −c, c)`` over the flattened parts gives, for odd
+    ``k >= 3``::
+
+        b_k = (4/π)·| c·sin(kθc)/k − (A/2)·(sin((k−1)θc)/(k−1) + sin((k+1)θc)/(k+1)) |
+
+    and ``b_1 = A − (4/π)·((A/2)(θc + sin(2θc)/2) − c·sin θc)``. The clipped waveform
+    has half-wave symmetry, so even harmonics vanish [1]_.
+    """
+    a = _check_positive(amplitude, "amplitude")
+    c = _check_positive(clip_level, "clip_level")
+    k = np.atleast_1d(np.asarray(orders, dtype=np.float64))
+    if np.any((k < 1) | (k != np.round(k))):
+        raise InputError("orders must be whole numbers >= 1", field="orders", code="invalid")
+    if c >= a:
+        return np.where(k == 1, a, 0.0)
+    tc = float(np.arccos(c / a))
+    odd = k % 2 == 1
+    km1 = np.where(k == 1, 1.0, k - 1)
+    higher = (4 / np.pi) * (
+        c * np.sin(k * tc) / k
+        - (a / 2) * (np.sin((k - 1) * tc) / km1 + np.sin((k + 1) * tc) / (k + 1))
+    )
+    first = a - (4 / np.pi) * ((a / 2) * (tc + np.sin(2 * tc) / 2) - c * np.sin(tc))
+    out: FloatArray = np.where(~odd, 0.0, np.where(k == 1, first, np.abs(higher)))
+    return out
+
+
+# --------------------------------------------------------------------------- products
+
+
+@dataclass(frozen=True, eq=False)
+class ClippingProducts:
+    """Which peaks clipping can explain, and how (arrays of the peaks' length).
+
+    Attributes
+    ----------
+    explained : ndarray of bool
+        The peak matches a clipping product of the strong tones.
+    kind : ndarray of str
+        ``"harmonic"``, ``"intermodulation"``, ``"tone"`` (the peak is one of the strong
+        tones themselves) or ``""``.
+    order : ndarray of int
+        Order of the product (harmonic number k; ``m + n`` for ``m·f1 ± n·f2``); 1 for a
+        tone; 0 if none.
+    tone_a, tone_b : ndarray of int
+        Indices into ``fundamentals_hz`` of the tones involved (``tone_b`` −1 for a
+        harmonic or a tone; both −1 if none).
+    m, n : ndarray of int
+        Multipliers: the product is ``m·f[tone_a] + n·f[tone_b]`` (``n`` negative for a
+        difference product; 0 for a harmonic).
+    true_hz : ndarray
+        Frequency of the product before folding, Hz; NaN if none.
+    apparent_hz : ndarray
+        Its folded frequency at the sample rate, Hz; NaN if none.
+    error_hz : ndarray
+        |peak − apparent|, Hz; NaN if none.
+    label : ndarray of str
+        ``"3× 1.00 kHz"``, ``"2·f1 − f2 (…)"`` style description; ``""`` if none.
+    """
+
+    explained: BoolArray
+    kind: ObjArray
+    order: IntArray
+    tone_a: IntArray
+    tone_b: IntArray
+    m: IntArray
+    n: IntArray
+    true_hz: FloatArray
+    apparent_hz: FloatArray
+    error_hz: FloatArray
+    label: ObjArray
+
+    def __len__(self) -> int:
+        return int(self.explained.size)
+
+
+def strongest_tones(
+    peaks_hz: ArrayLike, peaks_amplitude: ArrayLike, count: int = 3, within_db: float = 20.0
+) -> FloatArray:
+    """The strong tones that drive clipping products: the largest peaks.
+
+    Parameters
+    ----------
+    peaks_hz, peaks_amplitude : array_like
+        Peak frequencies (Hz) and linear amplitudes.
+    count : int
+        At most this many tones (1 to 20).
+    within_db : float
+        Only peaks within this many dB of the strongest (> 0): products of a tone 20 dB
+        below the strongest are themselves well down in the floor.
+
+    Returns
+    -------
+    ndarray
+        Their frequencies, Hz, strongest first.
+    """
+    f = _check_freqs(peaks_hz, "peaks_hz")
+    a = np.atleast_1d(np.asarray(peaks_amplitude, dtype=np.float64))
+    if a.shape != f.shape or np.any(~np.isfinite(a) | (a < 0)):
+        raise InputError(
+            "peaks_amplitude must hold one finite amplitude >= 0 per peak",
+            field="peaks_amplitude",
+            code="invalid",
+        )
+    k = _check_int(count, "count", 1, 20)
+    w = _check_positive(within_db, "within_db", " dB")
+    if f.size == 0 or not np.any(a > 0):
+        return np.empty(0)
+    order = np.argsort(-a, kind="stable")[:k]
+    keep = a[order] >= a[order[0]] * 10.0 ** (-w / 20.0)
+    out: FloatArray = f[order[keep]]
+    return out
+
+
+def _product_table(
+    f: FloatArray, symmetric: bool, max_order: int
+) -> tuple[FloatArray, IntArray, IntArray, IntArray, IntArray, IntArray]:
+    """Every candidate product: (true_hz, order, tone_a, tone_b, m, n)."""
+    k = np.arange(2, max_order + 1)
+    if symmetric:
+        k = k[k % 2 == 1]
+    grid_t, grid_k = np.meshgrid(np.arange(f.size), k, indexing="ij")
+    ti, kk = grid_t.ravel(), grid_k.ravel()
+    h_true = kk * f[ti]
+    parts: list[tuple[np.ndarray, ...]] = [
+        (h_true, kk, ti, np.full(ti.size, -1), kk, np.zeros(ti.size, dtype=np.int64))
+    ]
+    if f.size >= 2:
+        a_idx, b_idx = np.triu_indices(f.size, k=1)
+        grid_m, grid_n = np.meshgrid(
+            np.arange(1, max_order), np.arange(1, max_order), indexing="ij"
+        )
+        ok = grid_m + grid_n <= max_order
+        if symmetric:
+            ok &= (grid_m + grid_n) % 2 == 1
+        mm, nn = grid_m[ok], grid_n[ok]
+        pa = np.repeat(a_idx, mm.size)
+        pb = np.repeat(b_idx, mm.size)
+        pm = np.tile(mm, a_idx.size)
+        pn = np.tile(nn, a_idx.size)
+        s = pm * f[pa] + pn * f[pb]
+        d = pm * f[pa] - pn * f[pb]
+        parts.append((s, pm + pn, pa, pb, pm, pn))
+        # A difference product's true frequency is |m·fa − n·fb| (a negative frequency is
+        # the same line); keep n's sign to say which it is.
+        parts.append((np.abs(d), pm + pn, pa, pb, pm, -pn))
+    cols = [np.concatenate([p[i] for p in parts]) for i in range(6)]
+    return (
+        cols[0].astype(np.float64),
+        *(c.astype(np.int64) for c in cols[1:]),
+    )  # type: ignore[return-value]
+
+
+def clipping_products(
+    peaks_hz: ArrayLike,
+    fundamentals_hz: ArrayLike,
+    sample_rate_hz: float,
+    tolerance_hz: float,
+    symmetric: bool = True,
+    max_order: int = 9,
+) -> ClippingProducts:
+    """Which measured peaks are harmonics or intermodulation products of clipping.
+
+    Parameters
+    ----------
+    peaks_hz : array_like
+        Measured peak frequencies, Hz (>= 0).
+    fundamentals_hz : array_like
+        The strong tones that were clipped (1 to 20), Hz: their true frequencies or
+        their apparent (folded) ones — both give the same folded products, see Notes.
+        :func:`strongest_tones` picks them from the peaks.
+    sample_rate_hz : float
+        The record's (final) sample rate, Hz (> 0).
+    tolerance_hz : float
+        A peak within this distance of a folded product matches it, Hz (> 0); use the
+        diagnosis tolerance (:func:`service.core.attribution.frequency_tolerance_hz`)
+        plus the uncertainty of the tones' frequencies times the order if known.
+    symmetric : bool
+        Symmetric clipping (:attr:`ClippingReport.symmetric`): only odd harmonics and
+        odd-order products ``m + n`` [1]_ [3]_. False (one polarity clips, or unequal
+        levels): every order from 2.
+    max_order : int
+        Highest harmonic and highest ``m + n`` considered (2 to 31). Default 9: the
+        products of a mildly clipped tone fall with order, beyond the 9th they rarely
+        stand out of the floor.
+
+    Returns
+    -------
+    ClippingProducts
+
+    Notes
+    -----
+    Clipping acts on the samples, which is the same as clipping the continuous signal
+    and then sampling, so every product ``m·f1 ± n·f2`` lands at ``fold(m·f1 ± n·f2, fs)``
+    (:func:`service.core.folding.fold` [2]_). A tone's apparent frequency is ``± f``
+    modulo fs, so products of the apparent frequencies fold onto the same lines as
+    products of the true ones (the set of sums and differences is the same). After
+    integer decimation the products fold at the final rate, the rate to give here.
+
+    Each peak takes the lowest-order matching product (lower orders are stronger); a
+    peak that is itself one of the tones is marked ``"tone"`` and not explained.
+    """
+    p = _check_freqs(peaks_hz, "peaks_hz")
+    f0 = _check_freqs(fundamentals_hz, "fundamentals_hz")
+    if not 1 <= f0.size <= 20:
+        raise InputError(
+            f"fundamentals_hz has {f0.size} tones; give 1 to 20 strong tones",
+            field="fundamentals_hz",
+            value=f0.size,
+            limit=[1, 20],
+            code="out_of_range",
+        )
+    fs = _check_positive(sample_rate_hz, "sample_rate_hz", " Hz")
+    tol = _check_positive(tolerance_hz, "tolerance_hz", " Hz")
+    top = _check_int(max_order, "max_order", 2, 31)
+    sym = bool(symmetric)
+
+    true, order, ta, tb, mm, nn = _product_table(f0, sym, top)
+    app = fold(true, fs)
+    n_peaks = p.size
+    best = np.full(n_peaks, -1, dtype=np.int64)
+    err = np.full(n_peaks, np.nan)
+    tone_app = fold(f0, fs)
+    # The strong tones themselves first (order 1).
+    d_tone = np.abs(p[:, None] - tone_app[None, :]) if n_peaks else np.empty((0, f0.size))
+    is_tone = np.any(d_tone <= tol, axis=1)
+    tone_idx = np.argmin(d_tone, axis=1) if n_peaks else np.empty(0, dtype=np.int64)
+    free = ~is_tone
+    for o in np.unique(order):  # a few orders, lowest first; each vectorised over peaks
+        rows = np.flatnonzero(order == o)
+        srt = rows[np.argsort(app[rows], kind="stable")]
+        sa = app[srt]
+        pos = np.searchsorted(sa, p)
+        left = np.clip(pos - 1, 0, sa.size - 1)
+        right = np.clip(pos, 0, sa.size - 1)
+        pick = np.where(np.abs(sa[left] - p) <= np.abs(sa[right] - p), left, right)
+        dist = np.abs(sa[pick] - p)
+        hit = free & (dist <= tol)
+        best[hit] = srt[pick[hit]]
+        err[hit] = dist[hit]
+        free &= ~hit
+
+    explained = best >= 0
+    sel = np.where(explained, best, 0)
+    kind = np.full(n_peaks, "", dtype=object)
+    kind[explained] = np.where(tb[sel[explained]] < 0, "harmonic", "intermodulation")
+    kind[is_tone] = "tone"
+    out_order = np.where(explained, order[sel], np.where(is_tone, 1, 0)).astype(np.int64)
+    out_a = np.where(explained, ta[sel], np.where(is_tone, tone_idx, -1)).astype(np.int64)
+    out_b = np.where(explained, tb[sel], -1).astype(np.int64)
+    out_m = np.where(explained, mm[sel], np.where(is_tone, 1, 0)).astype(np.int64)
+    out_n = np.where(explained, nn[sel], 0).astype(np.int64)
+    out_true = np.where(
+        explained, true[sel], np.where(is_tone, f0[tone_idx] if n_peaks else 0, np.nan)
+    )
+    out_app = np.where(
+        explained, app[sel], np.where(is_tone, tone_app[tone_idx] if n_peaks else 0, np.nan)
+    )
+    err = np.where(is_tone, np.min(d_tone, axis=1) if n_peaks else 0.0, err)
+    label = np.full(n_peaks, "", dtype=object)
+    for i in np.flatnonzero(explained | is_tone):  # only the matched peaks get text
+        label[i] = _label(str(kind[i]), int(out_a[i]), int(out_b[i]), int(out_m[i]),
+                          int(out_n[i]), f0, float(out_true[i]))  # fmt: skip
+    return ClippingProducts(
+        explained=explained,
+        kind=kind,
+        order=out_order,
+        tone_a=out_a,
+        tone_b=out_b,
+        m=out_m,
+        n=out_n,
+        true_hz=out_true.astype(np.float64),
+        apparent_hz=out_app.astype(np.float64),
+        error_hz=err.astype(np.float64),
+        label=label,
+    )
+
+
+def _label(kind: str, a: int, b: int, m: int, n: int, f0: FloatArray, true_hz: float) -> str:
+    if kind == "tone":
+        return f"strong tone at {format_hz(f0[a], 4)}"
+    if kind == "harmonic":
+        return (
+            f"{m}× the tone at {format_hz(f0[a], 4)} (clipping harmonic, {format_hz(true_hz, 4)})"
+        )
+    sign = "+" if n > 0 else "\u2212"
+    ma = "" if m == 1 else f"{m}·"
+    nb = "" if abs(n) == 1 else f"{abs(n)}·"
+    return (
+        f"{ma}{format_hz(f0[a], 4)} {sign} {nb}{format_hz(f0[b], 4)} "
+        f"(clipping intermodulation, order {m + abs(n)}, {format_hz(true_hz, 4)})"
+    )
