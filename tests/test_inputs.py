@@ -9,6 +9,7 @@ import wave
 import numpy as np
 import pytest
 
+from service.core.errors import InputError
 from service.inputs import parse_spectrum_text, parse_time_record
 
 FS = 12_800
@@ -114,9 +115,7 @@ class TestParseSpectrumText:
             ("f,a\n1,2\n2,3\n3,4,5\n", "line 4 has 3 columns; expected 2"),
             ("# c\n1,2\n\n2\n3,4\n", "line 4 has 1 column; expected 2"),
             ("1,2\n2,3\n3,4\n4,abc\n", "line 4, column 2: 'abc' is not a number"),
-            ("1,2\n2,3\n3,4\n4,5\n5,nan\n", "line 5, column 2: 'nan' is not a finite number"),
-            ("1 2\n2 inf\n3 4\n", "line 2, column 2: 'inf' is not a finite number"),
-            ("1;2,5\n2;3\n3;4\n", "line 1, column 2: '2,5' uses a decimal comma"),
+            ("1 2\n2 inf\n3 4\n", "the spectrum has 2 data lines; at least 3"),
             ("f,a\n1,2\n2,3\n2,4\n", "line 4: frequency 2 Hz repeats line 3"),
             ("1,2\n# c\n3,3\n2,4\n", "line 4: frequency 2 Hz is lower than 3 Hz on line 3"),
             ("-1,2\n2,3\n3,4\n", "line 1: frequency -1 Hz is negative"),
@@ -127,6 +126,15 @@ class TestParseSpectrumText:
     def test_errors(self, text: str, message: str) -> None:
         with pytest.raises(ValueError, match=message.replace("(", r"\(").replace(")", r"\)")):
             parse_spectrum_text(text)
+
+    def test_non_finite_and_decimal_comma(self) -> None:
+        # Issue 12: non-finite cells are dropped and counted, not a failure of the file;
+        # "2,5" beside ";" is a decimal comma, not an error.
+        p = parse_spectrum_text("1,2\n2,3\n3,4\n4,5\n5,nan\n")
+        np.testing.assert_array_equal(p.freq_hz, [1, 2, 3, 4])
+        assert p.dropped == {"non_finite": 1} and any("line 5" in n for n in p.notes)
+        p = parse_spectrum_text("1;2,5\n2;3\n3;4\n")
+        np.testing.assert_array_equal(p.amplitude, [2.5, 3, 4])
 
     def test_limit(self) -> None:
         text = "\n".join(f"{i},{i % 7}" for i in range(101))
@@ -167,10 +175,25 @@ class TestParseTimeRecord:
         np.testing.assert_array_equal(rec.samples, x[:, 0])
         assert "extensible float 64-bit" in rec.format_description
 
-    def test_wav_rate_override(self) -> None:
-        rec = parse_time_record(_float_wav(_signal(1)), "f.wav", sample_rate_hz=25_600)
-        assert rec.sample_rate_hz == 25_600
+    def test_wav_rate_conflict(self) -> None:
+        # Issue 12: a request rate that disagrees with the header is an error naming both
+        # values; the request wins only when asked to.
+        wav = _float_wav(_signal(1))
+        with pytest.raises(
+            InputError, match="25600 Hz disagrees with the file's own rate of 12800"
+        ) as e:
+            parse_time_record(wav, "f.wav", sample_rate_hz=25_600)
+        assert (e.value.code, e.value.field, e.value.limit) == (
+            "rate_conflict",
+            "sample_rate_hz",
+            FS,
+        )
+        assert "Leave sample_rate_hz out" in (e.value.remedy or "")
+        rec = parse_time_record(wav, "f.wav", sample_rate_hz=25_600, rate_conflict="request")
+        assert (rec.sample_rate_hz, rec.file_rate_hz, rec.rate_source) == (25_600, FS, "request")
         assert "header says 12800 Hz" in rec.format_description
+        rec = parse_time_record(wav, "f.wav", sample_rate_hz=FS)
+        assert (rec.sample_rate_hz, rec.rate_source) == (FS, "request")
 
     def test_wav_errors(self) -> None:
         good = _pcm_wav(_signal(2), 2)
