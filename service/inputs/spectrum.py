@@ -165,9 +165,9 @@ def _amplitude_unit(name: str) -> str | None:
     if db:
         rest = name[db.start() :].strip(" )]")
         return rest if rest.lower() != "db" else "dB"
-    for match in _UNIT_SPOTS.finditer(name):
-        spot = next(g for g in match.groups() if g is not None).strip().lower()
-        spot = spot.replace(" ", "")
+    spots = [next(g for g in m.groups() if g is not None) for m in _UNIT_SPOTS.finditer(name)]
+    for spot in [*spots, name]:
+        spot = spot.strip().strip("()[]").strip().lower().replace(" ", "")
         for pattern, shown in _AMP_UNITS:
             if re.fullmatch(pattern, spot):
                 return shown
