@@ -26,7 +26,7 @@ from ._common import plural
 
 __all__ = ["Table", "decode_text", "metadata_sample_rate", "read_table"]
 
-_SAMPLE_LINES = 400  # non-blank lines examined to find the table and its dialect
+_SAMPLE_LINES = 200  # non-blank lines examined to find the table and its dialect
 
 # Spellings of "no value" written by spreadsheets, C runtimes and analysers. pandas reads
 # "inf"/"-inf"/"Infinity" itself; everything here becomes NaN.
@@ -268,9 +268,12 @@ def _find_table(
     results: list[tuple[int, int, int, int, int, Dialect]] = []
     preference = 0
     quoted = any('"' in line for _, line in sample)
+    present = {sep for sep in _SEPARATORS if any(sep in line for _, line in sample)}
     for sep in _SEPARATORS:
         for decimal, thousands in _MARKS:
             preference += 1
+            if sep not in present and (sep != " " or present):
+                continue  # a separator that never occurs reads one column: try it once
             if sep in (decimal, thousands) and not (sep == "," and quoted):
                 continue  # a comma separates and marks decimals only inside quotes
             dialect = Dialect(sep, decimal, thousands)
@@ -438,11 +441,11 @@ def read_table(
         maybe = _header_names(sample[start - 1][1], dialect, columns)
         if maybe is not None:
             names, header_no = maybe, sample[start - 1][0]
-    raw_lines = text.split("\n", start_line - 1)[: start_line - 1] if start_line > 1 else []
+    raw_lines = text[: _offset(text, start_line)].split("\n")[: start_line - 1]
     metadata = _parse_metadata(
         [ln for i, ln in enumerate(raw_lines, 1) if ln.strip() and i != header_no]
     )
-    body = clean.split("\n", start_line - 1)[-1] if start_line > 1 else clean
+    body = clean[_offset(clean, start_line) :]
     try:
         values = _read_body(body, dialect, columns)
     except _RaggedError as exc:
@@ -478,6 +481,14 @@ def read_table(
     return table
 
 
+def _offset(text: str, line: int) -> int:
+    """Index where 1-based ``line`` starts."""
+    pos = 0
+    for _ in range(line - 1):
+        pos = text.index("\n", pos) + 1
+    return pos
+
+
 def _read_options(dialect: Dialect, columns: int) -> dict[str, object]:
     return {
         "sep": r"\s+" if dialect.sep == " " else dialect.sep,
@@ -498,7 +509,8 @@ def _read_options(dialect: Dialect, columns: int) -> dict[str, object]:
 def _read_body(body: str, dialect: Dialect, columns: int) -> NDArray[np.float64]:
     options = _read_options(dialect, columns)
     try:
-        frame = pd.read_csv(io.StringIO(body), dtype=np.float64, **options)  # type: ignore[call-overload]
+        stream = io.BytesIO(body.encode("utf-8"))
+        frame = pd.read_csv(stream, dtype=np.float64, encoding="utf-8", **options)  # type: ignore[call-overload]
         return np.asarray(frame.to_numpy(dtype=np.float64))
     except pd.errors.ParserError as exc:
         raise _RaggedError(str(exc)) from None
