@@ -277,3 +277,75 @@ class TestParseTimeRecord:
     def test_unknown_type(self) -> None:
         with pytest.raises(ValueError, match=r"unknown type; accepted: WAV \(.wav\), NumPy"):
             parse_time_record(b"\x00\x01\x02", "capture.mat")
+
+
+class TestFileRates:
+    """The file's own rate, the request's, and what each channel carries (issue 12)."""
+
+    def test_text_header_rate(self) -> None:
+        x = _signal(2)
+        body = "\n".join(f"{a!r};{b!r}".replace(".", ",") for a, b in x.tolist())
+        text = f"Device: bench 3\nSample rate: {FS / 1000:g} kHz\nacc_x;acc_y\n{body}\n"
+        rec = parse_time_record(text.encode(), "run.csv", channel=1)
+        # Reference: the samples written (decimal comma), 1 kHz = 1000 Hz
+        np.testing.assert_array_equal(rec.samples, x[:, 1])
+        assert (rec.sample_rate_hz, rec.file_rate_hz, rec.rate_source) == (FS, FS, "file")
+        assert rec.channel_names == ("acc_x", "acc_y") and rec.metadata["Device"] == "bench 3"
+        with pytest.raises(InputError) as e:
+            parse_time_record(text.encode(), "run.csv", sample_rate_hz=2 * FS)
+        assert e.value.code == "rate_conflict" and "25600" in e.value.message
+        assert "12800" in e.value.message
+
+    def test_time_column(self) -> None:
+        x = _signal(2)
+        t = np.arange(N) / FS
+        rows = "\n".join(f"{a:.9g},{b!r},{c!r}" for a, (b, c) in zip(t, x.tolist(), strict=True))
+        rec = parse_time_record(f"Time (s),x,y\n{rows}\n".encode(), "t.csv")
+        assert rec.n_channels == 2 and rec.channel_names == ("x", "y")
+        np.testing.assert_array_equal(rec.samples, x[:, 0])
+        # Reference: the rate the time column was written with (t = k / FS)
+        assert rec.sample_rate_hz == pytest.approx(FS, rel=1e-6)
+        ms = "\n".join(f"{1000 * a:.9g},{b!r}" for a, b in zip(t, x[:, 0].tolist(), strict=True))
+        rec = parse_time_record(f"t [ms],x\n{ms}\n".encode(), "t.csv", sample_rate_hz=FS)
+        assert rec.rate_source == "request" and rec.file_rate_hz == pytest.approx(FS, rel=1e-6)
+
+    def test_channel_levels(self) -> None:
+        x = _signal(2)
+        x[:, 0] = np.random.default_rng(1).normal(0, 1e-4, N)  # converter noise only
+        rec = parse_time_record(_pcm_wav(x, 3), "two.wav")
+        # Reference: RMS of a sine of amplitude A is A/sqrt(2) (any signals textbook);
+        # 1000 samples are not a whole number of cycles, so allow 1 %.
+        assert rec.channel_rms[1] == pytest.approx(0.9 / np.sqrt(2), rel=0.01)
+        assert rec.channel_rms[0] == pytest.approx(1e-4, rel=0.1)
+        assert rec.channel_peak[1] == pytest.approx(0.9, rel=0.01)
+        assert rec.full_scale == 1.0 and rec.file_rate_hz == FS
+        assert parse_time_record(_float_wav(x), "f.wav").full_scale is None
+
+    def test_npy_needs_a_rate(self) -> None:
+        buf = io.BytesIO()
+        np.save(buf, _signal(1)[:, 0])
+        with pytest.raises(InputError) as e:
+            parse_time_record(buf.getvalue(), "a.npy")
+        assert (e.value.code, e.value.field) == ("missing_sample_rate", "sample_rate_hz")
+        assert e.value.remedy
+
+    @pytest.mark.parametrize(
+        ("line", "rate"),
+        [
+            # Reference: unit definitions (1 kHz = 1000 Hz, 1 µs = 1e-6 s, rate = 1/step)
+            ("Sample rate: 12800 Hz", 12_800.0),
+            ("Fs (kHz): 12.8", 12_800.0),
+            ("Sampling frequency;25,6;kHz", 25_600.0),
+            ("samplerate=48000", 48_000.0),
+            ("dt = 78.125 us", 12_800.0),
+            ("Sample interval: 0.5 ms", 2_000.0),
+        ],
+    )
+    def test_header_rate_spellings(self, line: str, rate: float) -> None:
+        text = f"{line}\nf,a\n1,2\n2,3\n3,1\n"
+        assert parse_spectrum_text(text).sample_rate_hz == pytest.approx(rate)
+
+    def test_text_record_gap(self) -> None:
+        with pytest.raises(InputError) as e:
+            parse_time_record(b"1\n2\nnan\n4\n", "s.csv", sample_rate_hz=FS)
+        assert e.value.code == "non_finite_sample" and "line 3" in e.value.message

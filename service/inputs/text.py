@@ -463,6 +463,12 @@ def read_table(
     except _CellError:
         raise _first_bad_cell(body, start_line, dialect, columns, what, field_name) from None
     blank = np.all(np.isnan(values), axis=1)
+    if np.any(blank):
+        # An all-NaN row is a blank (or comment) line, or a line of NaN markers.
+        body_lines = body.split("\n")
+        rows = np.flatnonzero(blank)
+        marked = np.array([bool(body_lines[i].strip()) for i in rows])
+        blank[rows[marked]] = False
     keep = np.flatnonzero(~blank)
     values = values[keep]
     lines = keep.astype(np.int64) + start_line
