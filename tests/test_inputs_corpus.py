@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from service.core.errors import InputError
-from service.inputs import parse_spectrum_text, parse_time_record
+from service.inputs import guess_text_kind, parse_spectrum_text, parse_time_record
 from tests.inputs_corpus import FORMS, Form, clean_spectrum
 
 
@@ -72,3 +72,14 @@ def test_request_scale_wins_and_says_so() -> None:
     assert parsed.scale_source == "request"
     parsed = parse_spectrum_text(next(f for f in FORMS if f.name == "clean").make())
     assert parsed.scale_source == "values"
+
+
+@pytest.mark.parametrize("form", [f for f in FORMS if f.error is None], ids=lambda f: f.name)
+def test_spectrum_forms_are_told_from_time_records(form: Form) -> None:
+    assert guess_text_kind(form.make()) == "spectrum"
+
+
+def test_time_records_are_told_from_spectra() -> None:
+    # Reference: the layouts written here (one column; a time column and two channels).
+    assert guess_text_kind(b"Sample rate: 12800 Hz\nacc\n0,5\n-0,25\n0,125\n") == "time_record"
+    assert guess_text_kind(b"Time (s),x,y\n0,1,2\n0.1,2,3\n0.2,3,4\n") == "time_record"

@@ -21,9 +21,9 @@ wav, npy, records
 from __future__ import annotations
 
 from ._common import DEFAULT_MAX_SAMPLES, DEFAULT_MAX_SPECTRUM_LINES, TimeRecord
-from .records import parse_time_record
+from .records import guess_text_kind, parse_time_record
 from .spectrum import ParsedSpectrum, parse_spectrum_text
-from .text import decode_text, metadata_sample_rate
+from .text import decode_text, metadata_sample_rate, sniff_table
 
 __all__ = [
     "DEFAULT_MAX_SAMPLES",
@@ -31,7 +31,9 @@ __all__ = [
     "ParsedSpectrum",
     "TimeRecord",
     "decode_text",
+    "guess_text_kind",
     "metadata_sample_rate",
     "parse_spectrum_text",
     "parse_time_record",
+    "sniff_table",
 ]

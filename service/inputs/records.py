@@ -22,10 +22,10 @@ from ._common import (
     to_bytes,
 )
 from .npy import read_npy
-from .text import read_table
+from .text import read_table, sniff_table
 from .wav import read_wav
 
-__all__ = ["parse_time_record"]
+__all__ = ["guess_text_kind", "parse_time_record"]
 
 TEXT_EXTENSIONS = (".csv", ".txt", ".tsv", ".dat", ".asc")
 _ACCEPTED_TYPES = (
@@ -193,3 +193,25 @@ def parse_time_record(
         status=415,
         remedy="Upload WAV, .npy or a text table; the file name's extension says which",
     )
+
+
+def guess_text_kind(data: bytes) -> str:
+    """``"spectrum"`` or ``"time_record"`` for an uploaded text table, from its shape.
+
+    A column named like time (``Time (s)``, ``t [ms]``) makes a time record; one named
+    like frequency (``Frequency (Hz)``, ``kHz``, ``CPM``) a spectrum; otherwise one
+    column is a time record and more a spectrum. Header blocks, encodings and decimal
+    commas are handled as the readers handle them. Content that is not a table is
+    called a spectrum, so the spectrum reader words the error.
+    """
+    from .spectrum import _FREQ_NAME  # the one definition of a frequency column name
+
+    shape = sniff_table(data)
+    if shape is None:
+        return "spectrum"
+    columns, names = shape
+    if _time_column(names) is not None:
+        return "time_record"
+    if any(n and _FREQ_NAME.search(n) for n in names):
+        return "spectrum"
+    return "time_record" if columns == 1 else "spectrum"

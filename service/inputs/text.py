@@ -24,7 +24,7 @@ from service.core.errors import InputError
 
 from ._common import plural
 
-__all__ = ["Table", "decode_text", "metadata_sample_rate", "read_table"]
+__all__ = ["Table", "decode_text", "metadata_sample_rate", "read_table", "sniff_table"]
 
 _SAMPLE_LINES = 200  # non-blank lines examined to find the table and its dialect
 
@@ -265,7 +265,7 @@ def _find_table(
     order of ``_SEPARATORS`` and ``_MARKS``). Lines above the first such line are the
     header block.
     """
-    results: list[tuple[int, int, int, int, int, Dialect]] = []
+    results: list[tuple[int, int, int, int, int, int, Dialect]] = []
     preference = 0
     quoted = any('"' in line for _, line in sample)
     present = {sep for sep in _SEPARATORS if any(sep in line for _, line in sample)}
@@ -287,18 +287,20 @@ def _find_table(
             # the most frequent column count; on a tie the one met first
             columns = max(set(data), key=lambda c: (data.count(c), -counts.index(c)))
             start = counts.index(columns)
-            # most lines in the main column count, then most lines read as numbers at all
-            key = (data.count(columns), len(data), -start, columns, -preference)
+            # most lines in the main column count, then most lines read as numbers at
+            # all, then a column-name line above the data that fits the count
+            header = start > 0 and _header_names(sample[start - 1][1], dialect, columns) is not None
+            key = (data.count(columns), len(data), int(header), -start, columns, -preference)
             results.append((*key, dialect))
     if not results:
         return None
     # "1,5" on every line is a two-column CSV of integers before it is one column with
-    # decimal commas, unless a separator other than the comma is in use.
-    comma_table = any(r[5].sep == "," and r[3] >= 2 and 2 * r[0] >= len(sample) for r in results)
+    # decimal commas, unless a column-name line says one column.
+    comma_table = any(r[6].sep == "," and r[4] >= 2 and 2 * r[0] >= len(sample) for r in results)
     if comma_table:
-        results = [r for r in results if not (r[3] == 1 and r[5].decimal == ",")]
-    best = max(results, key=lambda r: r[:5])
-    return best[5], -best[2], best[3]
+        results = [r for r in results if not (r[4] == 1 and r[6].decimal == "," and not r[2])]
+    best = max(results, key=lambda r: r[:6])
+    return best[6], -best[3], best[4]
 
 
 def _header_names(line: str, dialect: Dialect, columns: int) -> tuple[str, ...] | None:
@@ -374,6 +376,45 @@ def metadata_sample_rate(metadata: dict[str, str]) -> float | None:
     return None
 
 
+def _sample_lines(clean: str) -> list[tuple[int, str]]:
+    """The first non-blank lines with their 1-based numbers."""
+    sample: list[tuple[int, str]] = []
+    pos, number = 0, 0
+    while pos < len(clean) and len(sample) < _SAMPLE_LINES:
+        end = clean.find("\n", pos)
+        end = len(clean) if end < 0 else end
+        number += 1
+        line = clean[pos:end].strip()
+        if line:
+            sample.append((number, line))
+        pos = end + 1
+    return sample
+
+
+def sniff_table(data: bytes) -> tuple[int, tuple[str, ...]] | None:
+    """(column count, column names) of a text table from its first lines, or None.
+
+    Reads at most the first 64 KiB; None when that is not text or holds no table.
+    """
+    head = data[:65536]
+    if len(data) > len(head):
+        if head.startswith((codecs.BOM_UTF16_LE, codecs.BOM_UTF16_BE)):
+            head = head[: len(head) & ~1]
+        else:
+            head = head[: head.rfind(b"\n") + 1]
+    try:
+        text, _ = decode_text(head, "file")
+    except InputError:
+        return None
+    sample = _sample_lines(_strip_comments(text))
+    found = _find_table(sample)
+    if found is None:
+        return None
+    dialect, start, columns = found
+    names = _header_names(sample[start - 1][1], dialect, columns) if start else None
+    return columns, names or ()
+
+
 def read_table(
     data: bytes,
     *,
@@ -403,16 +444,7 @@ def read_table(
         )
     # Line-preserving: comments become blank, so row i still maps to one line.
     clean = _strip_comments(text)
-    sample: list[tuple[int, str]] = []
-    pos, number = 0, 0
-    while pos < len(clean) and len(sample) < _SAMPLE_LINES:
-        end = clean.find("\n", pos)
-        end = len(clean) if end < 0 else end
-        number += 1
-        line = clean[pos:end].strip()
-        if line:
-            sample.append((number, line))
-        pos = end + 1
+    sample = _sample_lines(clean)
     if not sample:
         raise InputError(
             f"no data lines: expected {what}, one line per value",
