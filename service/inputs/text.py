@@ -164,6 +164,13 @@ def _decode(raw: bytes, encoding: str, field_name: str) -> str:
     return text
 
 
+def _newlines(text: str) -> str:
+    """CRLF and lone CR (old Mac exports) become LF."""
+    if "\r" not in text:
+        return text
+    return text.replace("\r\n", "\n").replace("\r", "\n")
+
+
 def _check_controls(text: str, field_name: str) -> None:
     head = text[:8192]
     controls = sum(1 for ch in head if ord(ch) < 32 and ch not in "\t\n\r\f\v")
@@ -193,6 +200,12 @@ class Dialect:
     thousands: str | None
 
     def split(self, line: str) -> list[str]:
+        try:
+            return self._split(line)
+        except csv.Error:  # a stray quote or carriage return: not a clean data line
+            return [line]
+
+    def _split(self, line: str) -> list[str]:
         if self.sep == " ":
             cells = next(csv.reader([line.strip()], delimiter=" ", skipinitialspace=True))
             return [c.strip() for c in cells if c.strip() != ""] or [""]
@@ -406,7 +419,7 @@ def sniff_table(data: bytes) -> tuple[int, tuple[str, ...]] | None:
         text, _ = decode_text(head, "file")
     except InputError:
         return None
-    sample = _sample_lines(_strip_comments(text))
+    sample = _sample_lines(_strip_comments(_newlines(text)))
     found = _find_table(sample)
     if found is None:
         return None
@@ -432,6 +445,7 @@ def read_table(
         too many lines.
     """
     text, encoding = decode_text(data, field_name)
+    text = _newlines(text)
     n_raw = text.count("\n") + (0 if text.endswith("\n") or not text else 1)
     if n_raw > max_lines:
         raise InputError(
