@@ -349,3 +349,25 @@ class TestFileRates:
         with pytest.raises(InputError) as e:
             parse_time_record(b"1\n2\nnan\n4\n", "s.csv", sample_rate_hz=FS)
         assert e.value.code == "non_finite_sample" and "line 3" in e.value.message
+
+
+class TestScaleFromValues:
+    def test_few_negatives_in_a_linear_column(self) -> None:
+        # A linear spectrum: tall peaks over a low floor; two cells written negative.
+        amp = np.full(200, 1e-3)
+        amp[[50, 120]] = 0.5
+        amp[[10, 90]] = -1e-3
+        text = "\n".join(f"{i},{a!r}" for i, a in enumerate(amp.tolist()))
+        p = parse_spectrum_text(text)
+        assert (p.unit, p.scale_source, p.dropped) == ("linear", "values", {"negative": 2})
+        assert p.n_lines == 198 and any("negative amplitude" in n for n in p.notes)
+
+    def test_mostly_positive_db_is_not_taken_for_linear(self) -> None:
+        # dB re 1 µm/s: a floor near 20 dB with one dip below 0; no header says dB.
+        level = np.full(200, 20.0) + np.sin(np.arange(200))
+        level[77] = -3.0
+        text = "\n".join(f"{i},{v!r}" for i, v in enumerate(level.tolist()))
+        with pytest.raises(InputError) as e:
+            parse_spectrum_text(text)
+        assert e.value.code == "ambiguous_scale" and "unit='db'" in (e.value.remedy or "")
+        assert parse_spectrum_text(text, unit="db").scale_source == "request"

@@ -303,7 +303,9 @@ def parse_spectrum_text(
     dB when the header says so (``dB``, ``dBV``, ``dB re 1 g``). From values alone: none
     negative is linear; most negative, or at least a fifth, is dB; a handful (at most 3
     or 1 % of the rows) is a data problem in a linear column, those rows are dropped
-    and counted; anything between is an error asking for ``unit``.
+    and counted, provided the peaks stand at least 10 times above the median as linear
+    spectra do (dB values above 0 span a factor of a few); anything else is an error
+    asking for ``unit``.
     """
     max_lines = check_limit(max_lines, "max_lines")
     if unit not in ("auto", "linear", "db"):
@@ -451,7 +453,8 @@ def _decide_scale(
             f"all {n} values are >= 0, so they are read as linear amplitudes (say dB "
             "explicitly for a dB scale whose values are all positive)",
         )
-    if _handful(count, n):
+    positive = amp[amp > 0]
+    if _handful(count, n) and positive.size and np.max(positive) >= 10 * np.median(positive):
         return (
             "linear",
             "values",
