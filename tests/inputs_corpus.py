@@ -244,6 +244,26 @@ def _comments() -> bytes:
     return ("# spectrum export\nf (Hz),amp (g)\n" + "\n".join(rows) + "\n# end\n").encode()
 
 
+def _amplitude_first() -> bytes:
+    f, a = _fa()
+    return _table("Amplitude (g);Frequency (Hz)", [a, f], ";").encode()
+
+
+def _utf16_no_bom() -> bytes:
+    f, a = _fa()
+    return _table("Frequency (Hz)\tAmplitude (g)", [f, a], "\t", "\r\n").encode("utf-16-le")
+
+
+def _cr_only() -> bytes:
+    f, a = _fa()
+    return _table("Frequency (Hz),Amplitude (g)", [f, a], eol="\r").encode("mac-roman")
+
+
+def _orders() -> bytes:
+    f, a = _fa()
+    return _table("Order,Amplitude (g)", [f, a]).encode()
+
+
 FORMS: tuple[Form, ...] = (
     Form("clean", _clean, amplitude_unit="g"),
     Form("semicolon_decimal_comma_cp1252", _semicolon_comma, amplitude_unit="g"),
@@ -273,7 +293,11 @@ FORMS: tuple[Form, ...] = (
         amplitude_unit="g",
         kwargs={"amplitude_column": "Ch1"},
     ),
+    Form("amplitude_first", _amplitude_first, amplitude_unit="g"),
+    Form("utf16_le_no_bom_crlf", _utf16_no_bom, amplitude_unit="g"),
+    Form("cr_only_line_ends", _cr_only, amplitude_unit="g"),
     Form("binary_named_csv", _binary, error="binary_content"),
+    Form("orders_axis", _orders, error="unsupported_unit"),
     Form("two_unnamed_amplitudes", _two_unnamed, error="ambiguous_columns"),
     Form("two_named_channels", _two_named_channels, error="ambiguous_columns"),
 )

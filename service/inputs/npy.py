@@ -5,6 +5,7 @@ from __future__ import annotations
 import io
 
 import numpy as np
+from numpy.typing import NDArray
 
 from service.core.errors import InputError
 
@@ -85,7 +86,7 @@ def read_npy(
     n_ch = int(frames.shape[1])
     channel = check_channel(channel, n_ch)
     target = np.float32 if dtype == np.float32 else np.float64
-    x = np.ascontiguousarray(frames[:, channel], dtype=target)
+    x: NDArray[np.floating] = np.ascontiguousarray(frames[:, channel], dtype=target)
     check_samples(x, channel, field_name)
     rms, peak = channel_stats(frames)
     return TimeRecord(

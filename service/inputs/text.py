@@ -562,7 +562,7 @@ def _read_body(body: str, dialect: Dialect, columns: int) -> NDArray[np.float64]
     options = _read_options(dialect, columns)
     try:
         stream = io.BytesIO(body.encode("utf-8"))
-        frame = pd.read_csv(stream, dtype=np.float64, encoding="utf-8", **options)  # type: ignore[call-overload]
+        frame = pd.read_csv(stream, dtype=np.float64, encoding="utf-8", **options)
         return np.asarray(frame.to_numpy(dtype=np.float64))
     except pd.errors.ParserError as exc:
         raise _RaggedError(str(exc)) from None
