@@ -340,8 +340,8 @@ def _parse_metadata(lines: list[str]) -> dict[str, str]:
     meta: dict[str, str] = {}
     for raw in lines:
         line = raw.strip().lstrip("#").strip().strip('"')
-        if not line or set(line) <= set("-=*_[]"):
-            continue
+        if not line or set(line) <= set("-=*_[]") or re.fullmatch(r"\[[^\]]*\]", line):
+            continue  # rules and section markers ("[Header]") carry no value
         match = _KEY_VALUE.match(line)
         if match and match.group(1).strip():
             key = match.group(1).strip().strip("\"'")
@@ -527,8 +527,9 @@ def read_table(
             code="no_numeric_rows",
         )
     if metadata:
+        verb = "was" if len(metadata) == 1 else "were"
         table.notes.append(
-            f"{plural(len(metadata), 'header line')} before the table were read as metadata."
+            f"{plural(len(metadata), 'header line')} before the table {verb} read as metadata."
         )
     return table
 
