@@ -9,6 +9,7 @@ import wave
 import numpy as np
 import pytest
 
+from service.core.errors import InputError
 from service.inputs import parse_spectrum_text, parse_time_record
 
 FS = 12_800
@@ -114,9 +115,7 @@ class TestParseSpectrumText:
             ("f,a\n1,2\n2,3\n3,4,5\n", "line 4 has 3 columns; expected 2"),
             ("# c\n1,2\n\n2\n3,4\n", "line 4 has 1 column; expected 2"),
             ("1,2\n2,3\n3,4\n4,abc\n", "line 4, column 2: 'abc' is not a number"),
-            ("1,2\n2,3\n3,4\n4,5\n5,nan\n", "line 5, column 2: 'nan' is not a finite number"),
-            ("1 2\n2 inf\n3 4\n", "line 2, column 2: 'inf' is not a finite number"),
-            ("1;2,5\n2;3\n3;4\n", "line 1, column 2: '2,5' uses a decimal comma"),
+            ("1 2\n2 inf\n3 4\n", "the spectrum has 2 data lines; at least 3"),
             ("f,a\n1,2\n2,3\n2,4\n", "line 4: frequency 2 Hz repeats line 3"),
             ("1,2\n# c\n3,3\n2,4\n", "line 4: frequency 2 Hz is lower than 3 Hz on line 3"),
             ("-1,2\n2,3\n3,4\n", "line 1: frequency -1 Hz is negative"),
@@ -127,6 +126,15 @@ class TestParseSpectrumText:
     def test_errors(self, text: str, message: str) -> None:
         with pytest.raises(ValueError, match=message.replace("(", r"\(").replace(")", r"\)")):
             parse_spectrum_text(text)
+
+    def test_non_finite_and_decimal_comma(self) -> None:
+        # Issue 12: non-finite cells are dropped and counted, not a failure of the file;
+        # "2,5" beside ";" is a decimal comma, not an error.
+        p = parse_spectrum_text("1,2\n2,3\n3,4\n4,5\n5,nan\n")
+        np.testing.assert_array_equal(p.freq_hz, [1, 2, 3, 4])
+        assert p.dropped == {"non_finite": 1} and any("line 5" in n for n in p.notes)
+        p = parse_spectrum_text("1;2,5\n2;3\n3;4\n")
+        np.testing.assert_array_equal(p.amplitude, [2.5, 3, 4])
 
     def test_limit(self) -> None:
         text = "\n".join(f"{i},{i % 7}" for i in range(101))
@@ -167,10 +175,25 @@ class TestParseTimeRecord:
         np.testing.assert_array_equal(rec.samples, x[:, 0])
         assert "extensible float 64-bit" in rec.format_description
 
-    def test_wav_rate_override(self) -> None:
-        rec = parse_time_record(_float_wav(_signal(1)), "f.wav", sample_rate_hz=25_600)
-        assert rec.sample_rate_hz == 25_600
+    def test_wav_rate_conflict(self) -> None:
+        # Issue 12: a request rate that disagrees with the header is an error naming both
+        # values; the request wins only when asked to.
+        wav = _float_wav(_signal(1))
+        with pytest.raises(
+            InputError, match="25600 Hz disagrees with the file's own rate of 12800"
+        ) as e:
+            parse_time_record(wav, "f.wav", sample_rate_hz=25_600)
+        assert (e.value.code, e.value.field, e.value.limit) == (
+            "rate_conflict",
+            "sample_rate_hz",
+            FS,
+        )
+        assert "Leave sample_rate_hz out" in (e.value.remedy or "")
+        rec = parse_time_record(wav, "f.wav", sample_rate_hz=25_600, rate_conflict="request")
+        assert (rec.sample_rate_hz, rec.file_rate_hz, rec.rate_source) == (25_600, FS, "request")
         assert "header says 12800 Hz" in rec.format_description
+        rec = parse_time_record(wav, "f.wav", sample_rate_hz=FS)
+        assert (rec.sample_rate_hz, rec.rate_source) == (FS, "request")
 
     def test_wav_errors(self) -> None:
         good = _pcm_wav(_signal(2), 2)
@@ -254,3 +277,97 @@ class TestParseTimeRecord:
     def test_unknown_type(self) -> None:
         with pytest.raises(ValueError, match=r"unknown type; accepted: WAV \(.wav\), NumPy"):
             parse_time_record(b"\x00\x01\x02", "capture.mat")
+
+
+class TestFileRates:
+    """The file's own rate, the request's, and what each channel carries (issue 12)."""
+
+    def test_text_header_rate(self) -> None:
+        x = _signal(2)
+        body = "\n".join(f"{a!r};{b!r}".replace(".", ",") for a, b in x.tolist())
+        text = f"Device: bench 3\nSample rate: {FS / 1000:g} kHz\nacc_x;acc_y\n{body}\n"
+        rec = parse_time_record(text.encode(), "run.csv", channel=1)
+        # Reference: the samples written (decimal comma), 1 kHz = 1000 Hz
+        np.testing.assert_array_equal(rec.samples, x[:, 1])
+        assert (rec.sample_rate_hz, rec.file_rate_hz, rec.rate_source) == (FS, FS, "file")
+        assert rec.channel_names == ("acc_x", "acc_y") and rec.metadata["Device"] == "bench 3"
+        with pytest.raises(InputError) as e:
+            parse_time_record(text.encode(), "run.csv", sample_rate_hz=2 * FS)
+        assert e.value.code == "rate_conflict" and "25600" in e.value.message
+        assert "12800" in e.value.message
+
+    def test_time_column(self) -> None:
+        x = _signal(2)
+        t = np.arange(N) / FS
+        rows = "\n".join(f"{a:.9g},{b!r},{c!r}" for a, (b, c) in zip(t, x.tolist(), strict=True))
+        rec = parse_time_record(f"Time (s),x,y\n{rows}\n".encode(), "t.csv")
+        assert rec.n_channels == 2 and rec.channel_names == ("x", "y")
+        np.testing.assert_array_equal(rec.samples, x[:, 0])
+        # Reference: the rate the time column was written with (t = k / FS)
+        assert rec.sample_rate_hz == pytest.approx(FS, rel=1e-6)
+        ms = "\n".join(f"{1000 * a:.9g},{b!r}" for a, b in zip(t, x[:, 0].tolist(), strict=True))
+        rec = parse_time_record(f"t [ms],x\n{ms}\n".encode(), "t.csv", sample_rate_hz=FS)
+        assert rec.rate_source == "request" and rec.file_rate_hz == pytest.approx(FS, rel=1e-6)
+
+    def test_channel_levels(self) -> None:
+        x = _signal(2)
+        x[:, 0] = np.random.default_rng(1).normal(0, 1e-4, N)  # converter noise only
+        rec = parse_time_record(_pcm_wav(x, 3), "two.wav")
+        # Reference: RMS of a sine of amplitude A is A/sqrt(2) (any signals textbook);
+        # 1000 samples are not a whole number of cycles, so allow 1 %.
+        assert rec.channel_rms[1] == pytest.approx(0.9 / np.sqrt(2), rel=0.01)
+        assert rec.channel_rms[0] == pytest.approx(1e-4, rel=0.1)
+        assert rec.channel_peak[1] == pytest.approx(0.9, rel=0.01)
+        assert rec.full_scale == 1.0 and rec.file_rate_hz == FS
+        assert parse_time_record(_float_wav(x), "f.wav").full_scale is None
+
+    def test_npy_needs_a_rate(self) -> None:
+        buf = io.BytesIO()
+        np.save(buf, _signal(1)[:, 0])
+        with pytest.raises(InputError) as e:
+            parse_time_record(buf.getvalue(), "a.npy")
+        assert (e.value.code, e.value.field) == ("missing_sample_rate", "sample_rate_hz")
+        assert e.value.remedy
+
+    @pytest.mark.parametrize(
+        ("line", "rate"),
+        [
+            # Reference: unit definitions (1 kHz = 1000 Hz, 1 µs = 1e-6 s, rate = 1/step)
+            ("Sample rate: 12800 Hz", 12_800.0),
+            ("Fs (kHz): 12.8", 12_800.0),
+            ("Sampling frequency;25,6;kHz", 25_600.0),
+            ("samplerate=48000", 48_000.0),
+            ("dt = 78.125 us", 12_800.0),
+            ("Sample interval: 0.5 ms", 2_000.0),
+        ],
+    )
+    def test_header_rate_spellings(self, line: str, rate: float) -> None:
+        text = f"{line}\nf,a\n1,2\n2,3\n3,1\n"
+        assert parse_spectrum_text(text).sample_rate_hz == pytest.approx(rate)
+
+    def test_text_record_gap(self) -> None:
+        with pytest.raises(InputError) as e:
+            parse_time_record(b"1\n2\nnan\n4\n", "s.csv", sample_rate_hz=FS)
+        assert e.value.code == "non_finite_sample" and "line 3" in e.value.message
+
+
+class TestScaleFromValues:
+    def test_few_negatives_in_a_linear_column(self) -> None:
+        # A linear spectrum: tall peaks over a low floor; two cells written negative.
+        amp = np.full(200, 1e-3)
+        amp[[50, 120]] = 0.5
+        amp[[10, 90]] = -1e-3
+        text = "\n".join(f"{i},{a!r}" for i, a in enumerate(amp.tolist()))
+        p = parse_spectrum_text(text)
+        assert (p.unit, p.scale_source, p.dropped) == ("linear", "values", {"negative": 2})
+        assert p.n_lines == 198 and any("negative amplitude" in n for n in p.notes)
+
+    def test_mostly_positive_db_is_not_taken_for_linear(self) -> None:
+        # dB re 1 µm/s: a floor near 20 dB with one dip below 0; no header says dB.
+        level = np.full(200, 20.0) + np.sin(np.arange(200))
+        level[77] = -3.0
+        text = "\n".join(f"{i},{v!r}" for i, v in enumerate(level.tolist()))
+        with pytest.raises(InputError) as e:
+            parse_spectrum_text(text)
+        assert e.value.code == "ambiguous_scale" and "unit='db'" in (e.value.remedy or "")
+        assert parse_spectrum_text(text, unit="db").scale_source == "request"
