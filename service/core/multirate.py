@@ -901,19 +901,17 @@ def _judge(caps: list[_Cap], g: _Group, opts: _Opts) -> PeakGroup:
     tied = int(tied_mask.sum())
     if tied == 1 and cands[0].in_range:
         by_prior = int(tied_ev.sum()) > 1
-        return _finish(caps, g.members, "alias", cands, cands[0], 1, by_prior, res, unamb, opts)
+        zone1 = all(cands[0].zone[k] == 1 for k in g.members)
+        verdict = "real" if zone1 else "alias"
+        return _finish(caps, g.members, verdict, cands, cands[0], 1, by_prior, res, unamb, opts)
     return _finish(caps, g.members, "ambiguous", cands, None, tied, False, res, unamb, opts)
 
 
 def _judge_real(caps: list[_Cap], members: dict[int, int], opts: _Opts) -> PeakGroup:
-    res, unamb = _group_range(caps, members, opts.drift)
+    # The line itself is the first candidate; the CRT adds its images k·lcm ± f, which
+    # fold alike, so a line is "real" only when the evidence (or the prior) rules them out.
     f = np.array([float(np.mean([caps[k].freq[p] for k, p in members.items()]))])
-    g = _Group(members, f)
-    ev = _evaluate(caps, g, f, opts)
-    cands = _to_candidates(
-        ev, f, [0], np.array([True]), np.array([False]), np.asarray(ev["evidence"])
-    )
-    return _finish(caps, members, "real", cands, cands[0], 1, False, res, unamb, opts)
+    return _judge(caps, _Group(dict(members), f), opts)
 
 
 # --------------------------------------------------------------------------- entry
