@@ -767,16 +767,22 @@ def _candidates(
         for base in (n, res.lcm_hz - n):
             found.extend((base + reps * res.lcm_hz).tolist())
     crt = np.array([x for x in found if 0 <= x <= opts.max_true * (1 + 1e-12)])
-    # The scan's survivors, refined to the mean of every member's nearest unfolding.
+    # The scan's survivors, refined to the mean of the members' unfoldings near them:
+    # every branch (k·rate ± a for the multiples on either side) inside the tolerance
+    # counts, so a peak near 0 Hz or near Nyquist yields both readings, not the nearest.
     scan = g.cand
     if scan.size:
-        unf = []
+        row = np.arange(scan.size)
+        acc = np.zeros(scan.size)
         for k, x in zip(ks, a, strict=True):
             rate = caps[k].rate
-            near = rate * np.rint(scan / rate)
-            up, down = near + x, near - x
-            unf.append(np.where(np.abs(up - scan) <= np.abs(down - scan), up, down))
-        scan = np.maximum(np.mean(np.array(unf), axis=0), 0.0)
+            lo = rate * np.floor(scan[row] / rate)
+            opts_k = np.stack([lo + x, lo - x, lo + rate + x, lo + rate - x], axis=1)
+            gate = caps[k].unc[g.members[k]] + caps[ks[0]].unc[g.members[ks[0]]]
+            ok = np.abs(opts_k - scan[row][:, None]) <= gate + opts.drift * scan[row][:, None]
+            r_i, o_i = np.nonzero(ok)
+            row, acc = row[r_i], acc[r_i] + opts_k[r_i, o_i]
+        scan = np.maximum(acc / len(ks), 0.0)
     allc = np.concatenate([crt, scan])
     from_crt = np.concatenate([np.ones(crt.size, bool), np.zeros(scan.size, bool)])
     return allc, from_crt
@@ -885,7 +891,10 @@ def _judge(caps: list[_Cap], g: _Group, opts: _Opts) -> PeakGroup:
     evidence = ev["evidence"]
     # The prior's unit length: the group's unambiguous range (lcm/2 of its rates).
     score = evidence - opts.prior * c / res.unambiguous_hz
-    width = np.max([caps[k].unc[p] for k, p in g.members.items()]) * 2 + opts.drift * c
+    # Two candidates closer than the remainder-error bound τ = δ + drift·f/2 are one
+    # answer (the CRT's estimate is within τ of the truth [1]_): keep the better.
+    tau = np.max([caps[k].unc[p] for k, p in g.members.items()]) + opts.drift * c / 2
+    width = tau
     idx = _dedupe(c, score, width)
     c, from_crt, score, evidence = c[idx], from_crt[idx], score[idx], evidence[idx]
     ev = {k: (v[idx] if isinstance(v, np.ndarray) else v) for k, v in ev.items()}
@@ -899,11 +908,28 @@ def _judge(caps: list[_Cap], g: _Group, opts: _Opts) -> PeakGroup:
     in_range = c <= unamb * (1 + 1e-12)
     cands = _to_candidates(ev, c, order.tolist(), in_range, from_crt, score)
     tied = int(tied_mask.sum())
-    if tied == 1 and cands[0].in_range:
-        by_prior = int(tied_ev.sum()) > 1
-        zone1 = all(cands[0].zone[k] == 1 for k in g.members)
+    top: Candidate | None = cands[0]
+    if tied > 1:
+        # Readings of one tone from different branches (a peak near 0 Hz or near
+        # Nyquist reads both ways) spread over at most 2τ: one answer within the error
+        # bound, given as the reading nearest the middle of their span (lower first).
+        ct = np.array([x.true_hz for x in cands[:tied]])
+        t_max = float(np.max([caps[k].unc[p] for k, p in g.members.items()]))
+        t_max += opts.drift * float(ct.max()) / 2
+        if ct.max() - ct.min() <= 2 * t_max:
+            mid = 0.5 * (ct.max() + ct.min())
+            top = cands[int(np.argmin(np.abs(ct - mid)))]
+        else:
+            top = None
+    if top is not None and top.in_range:
+        # Without the prior, would a reading outside the top's 2τ cluster have tied?
+        t_top = opts.drift * top.true_hz / 2 + float(
+            np.max([caps[k].unc[p] for k, p in g.members.items()])
+        )
+        by_prior = opts.prior > 0 and bool(np.any(tied_ev & (np.abs(c - top.true_hz) > 2 * t_top)))
+        zone1 = all(top.zone[k] == 1 for k in g.members)
         verdict = "real" if zone1 else "alias"
-        return _finish(caps, g.members, verdict, cands, cands[0], 1, by_prior, res, unamb, opts)
+        return _finish(caps, g.members, verdict, cands, top, tied, by_prior, res, unamb, opts)
     return _finish(caps, g.members, "ambiguous", cands, None, tied, False, res, unamb, opts)
 
 

@@ -10,6 +10,7 @@ a 4-term Blackman-Harris window, ``numpy.fft.rfft``, peaks from
 from __future__ import annotations
 
 import math
+import time
 
 import numpy as np
 import pytest
@@ -293,7 +294,8 @@ def run_trials(n_trials, seed):
     rng = np.random.default_rng(seed)
     stats = dict(inside=0, inside_top=0, inside_first=0, outside=0, outside_ok=0,
                  blind=0, blind_ok=0, real=0, real_alias=0, real_in=0, real_in_real=0,
-                 real_in_blind=0, real_in_blind_ok=0)  # fmt: skip
+                 real_in_blind=0, real_in_blind_ok=0,
+                 comparisons=0, time_peaks_s=0.0, time_compare_s=0.0)  # fmt: skip
     for trial in range(n_trials):
         n_cap = int(rng.integers(2, 5))
         rates = sorted(int(r) for r in rng.choice(SERIES, n_cap, replace=False))
@@ -311,9 +313,16 @@ def run_trials(n_trials, seed):
         filt = None if rng.random() < 0.5 else (2, 0.45 * min(rates))
         eps = rng.uniform(-DRIFT / 2, DRIFT / 2, n_cap)
         tones = [(f_alias, -10.0), (f_real, -20.0)]
+        t0 = time.perf_counter()
         caps = [capture(tones, r, drift=e, butter=filt, seed=1000 * trial + i)
                 for i, (r, e) in enumerate(zip(rates, eps, strict=True))]  # fmt: skip
+        t1 = time.perf_counter()
         res = compare_captures(caps, drift=DRIFT, full_scale_db=0.0)
+        # Times for bench/multirate.py only (never asserted): the comparison against
+        # the simulation, FFTs and peak search that produced its input.
+        stats["time_peaks_s"] += t1 - t0
+        stats["time_compare_s"] += time.perf_counter() - t1
+        stats["comparisons"] += 1
         f_true = f_alias * (1 + eps.mean())
         tau = unc + DRIFT * f_alias / 2
         app0 = fold_ref(f_alias * (1 + eps[0]), rates[0])
