@@ -15,12 +15,20 @@ How it works
    signals ``fold(f) = fold(lcm − f)`` in every capture, so true frequencies are
    distinguishable only in ``[0, lcm/2]`` (the *unambiguous range*). The answer is also
    unique only while every remainder error is below ``M/4`` [1]_ [2]_; with drift the
-   error grows as ``δ + drift·f/2``, which caps the range further.
-2. Real lines first: peaks at the same frequency in every capture, below every Nyquist
-   frequency and level-consistent through the chains, are matched capture by capture
-   as an optimal assignment (:func:`scipy.optimize.linear_sum_assignment`) and marked
-   real; they are then out of the pool, so no real line is used again as an alias's
-   partner.
+   error grows as ``τ(f) = δ + drift·f/2``, which caps the range further. Inside the
+   range there are blind spots: a frequency within about ``τ`` of a multiple of ``M/2``
+   has a mixed-sign image (``f' ≡ f`` modulo some rates, ``f' ≡ −f`` modulo the others;
+   e.g. 11.2 and 27.2 kHz both read 1.6 kHz at 12.8 kS/s and 4.8 kHz at 16 kS/s),
+   found as a second sign combination and reported as a tie. They cover about ``4τ/M``
+   of the range for two rates.
+2. Lines that stay put first: peaks at the same frequency in every capture, below
+   every Nyquist frequency and level-consistent through the chains, are matched
+   capture by capture as an optimal assignment
+   (:func:`scipy.optimize.linear_sum_assignment`); they are then out of the pool, so
+   no such line is used again as an alias's partner. They are judged like any group
+   below: the line itself is a candidate, but so are its images ``k·lcm ± f``, which
+   fold alike; the verdict is ``"real"`` when the line alone stands (``max_true_hz``
+   inside the range, the chains' levels or the prior rule the images out).
 3. Aliases: the remaining peaks are matched capture by capture, again as assignments.
    Each group keeps the true frequencies (unfoldings of its first peak up to
    ``max_true_hz``) still consistent with all of its peaks; the cost of adding a peak is
@@ -48,11 +56,14 @@ How it works
 
    Candidates within :data:`TIE_LOG10` of the best are a tie, listed by ascending
    frequency; a tie is never broken by rounding.
-6. Verdict per group: ``"real"``; ``"alias"`` with ``top`` when one candidate stands
-   alone and lies inside the unambiguous range; ``"ambiguous"`` otherwise, with the
-   period with which candidates repeat and the converter rate that would best settle
-   it; ``"unmatched"`` for a peak seen in one capture only, or whose partners admit no
-   common true frequency.
+6. Candidates closer than ``τ`` are one candidate (the better one is kept). Verdict
+   per group: ``"real"`` or ``"alias"`` with ``top`` when one candidate stands alone,
+   or the tied candidates span at most ``2τ`` (readings of one tone from both sides of
+   0 Hz or of Nyquist; ``top`` is the one nearest the middle of the span), and it lies
+   inside the unambiguous range; ``"ambiguous"`` otherwise, with the period with which
+   candidates repeat and the converter rate that would best settle it; ``"unmatched"``
+   for a peak seen in one capture only, or whose partners admit no common true
+   frequency.
 
 An alias verdict is a hypothesis about the measurement, not about the machine.
 
@@ -125,6 +136,8 @@ MAX_CAPTURES = 6
 MIN_CAPTURES = 2
 MAX_PEAKS = 500
 MAX_FOLDS = 1000
+#: Bound on the matching work: (peaks per capture)² × unfoldings per peak.
+MAX_MATCH_CELLS = 50_000_000
 _BIG = 1e12
 _LN10 = math.log(10.0)
 
@@ -1013,6 +1026,15 @@ def compare_captures(
             f"at most {MAX_FOLDS} times is searched",
             field="max_true_hz", value=max_true, limit=MAX_FOLDS * min(rates),
             code="above_limit",
+        )  # fmt: skip
+    n_peaks = max(c.freq.size for c in caps)
+    cells = n_peaks**2 * (2 * max_true / min(rates) + 2)
+    if cells > MAX_MATCH_CELLS:
+        raise InputError(
+            f"{n_peaks} peaks per capture with max_true_hz={max_true:g} means "
+            f"{cells:.3g} pairings to weigh, more than {MAX_MATCH_CELLS:.3g}; lower "
+            "max_true_hz or raise the peak threshold",
+            field="max_true_hz", value=max_true, code="too_much_work",
         )  # fmt: skip
     drift_ = _check_number(drift, "drift", inclusive=True, high=0.2)
     band: tuple[float, float] | None = None

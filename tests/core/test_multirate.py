@@ -210,6 +210,36 @@ class TestDemoCarrier:
         assert g.top.true_hz == pytest.approx(10_000, abs=25)
 
 
+class TestLevelEvidence:
+    def test_different_filters_pick_the_image(self):
+        # Capture A behind a 2nd-order 5 kHz Butterworth, B behind a 6th-order 6 kHz one:
+        # the level difference between the captures must match the difference of the
+        # two chains' attenuations (reference: scipy.signal.freqs), which only 10 kHz
+        # does; 54 and 74 kHz fold alike but would differ by tens of dB.
+        tones = [(10_000.0, -6.0)]
+        caps = [
+            capture(tones, 12_800, butter=(2, 5_000.0), seed=11),
+            capture(tones, 16_000, butter=(6, 6_000.0), seed=12),
+        ]
+        res = compare_captures(caps, full_scale_db=0.0)
+        g = group_near(res, 0, fold_ref(10_000, 12_800), 5)
+        assert g.verdict == "alias" and not g.decided_by_prior
+        assert g.top is not None and g.top.true_hz == pytest.approx(10_000, abs=25)
+        att_a, att_b = _butter_db(2, 5_000.0)[0], _butter_db(6, 6_000.0)[0]
+        c54 = next(c for c in g.candidates if abs(c.true_hz - 54_000) < 300)
+        implied = np.array(
+            [g.level_db[0] + att_a(c54.true_hz)[0], g.level_db[1] + att_b(c54.true_hz)[0]]
+        )
+        assert c54.level_error_db == pytest.approx(tuple(implied - implied.mean()), abs=1e-6)
+        assert c54.score < g.top.score - 1.0
+
+    def test_too_much_work(self):
+        caps = [Capture(r, np.linspace(1, r / 2 - 1, 400), np.zeros(400), 1.0)
+                for r in (1_000, 1_300)]  # fmt: skip
+        with pytest.raises(InputError, match="pairings"):
+            compare_captures(caps, max_true_hz=900_000)
+
+
 class TestPair11k2:
     def test_basic(self):
         # 11.2 kHz folds to 1.6 kHz at 12.8 kS/s and 4.8 kHz at 16 kS/s (fold formula).
