@@ -59,7 +59,8 @@ How it works
 6. Candidates closer than ``τ`` are one candidate (the better one is kept). Verdict
    per group: ``"real"`` or ``"alias"`` with ``top`` when one candidate stands alone,
    or the tied candidates span at most ``2τ`` (readings of one tone from both sides of
-   0 Hz or of Nyquist; ``top`` is the one nearest the middle of the span), and it lies
+   0 Hz or of Nyquist; ``top`` is the best-scored one if it leads by more than
+   :data:`CLUSTER_LEAD_LOG10`, else the one nearest the middle of the span), and it lies
    inside the unambiguous range; ``"ambiguous"`` otherwise, with the period with which
    candidates repeat and the converter rate that would best settle it; ``"unmatched"``
    for a peak seen in one capture only, or whose partners admit no common true
@@ -95,6 +96,7 @@ from .errors import InputError
 from .folding import fold
 
 __all__ = [
+    "CLUSTER_LEAD_LOG10",
     "DEFAULT_SETTLE_RATES_HZ",
     "MATCH_REJECT",
     "TIE_LOG10",
@@ -120,6 +122,9 @@ Attenuation: TypeAlias = Callable[[FloatArray], ArrayLike] | tuple[ArrayLike, Ar
 #: Evidence gap, log10 units, below which two candidates are a tie (a likelihood ratio
 #: under 10 does not decide between two true frequencies).
 TIE_LOG10 = 1.0
+#: Inside one answer's spread (readings within 2τ), the best-scored reading is the top
+#: only when it leads by more than this, log10 units; otherwise the middle reading is.
+CLUSTER_LEAD_LOG10 = 0.1
 #: Cost of leaving a group or a peak without partner in an assignment step (squared
 #: standard units): a pair is matched when its cost is below ``2·MATCH_REJECT``, e.g. a
 #: frequency error at the tolerance (4) and a level error of 3.5 σ (12).
@@ -930,8 +935,13 @@ def _judge(caps: list[_Cap], g: _Group, opts: _Opts) -> PeakGroup:
         t_max = float(np.max([caps[k].unc[p] for k, p in g.members.items()]))
         t_max += opts.drift * float(ct.max()) / 2
         if ct.max() - ct.min() <= 2 * t_max:
-            mid = 0.5 * (ct.max() + ct.min())
-            top = cands[int(np.argmin(np.abs(ct - mid)))]
+            st = np.array([x.score for x in cands[:tied]])
+            lead = np.sort(st)[-1] - np.sort(st)[-2]
+            if lead > CLUSTER_LEAD_LOG10:
+                top = cands[int(np.argmax(st))]
+            else:
+                mid = 0.5 * (ct.max() + ct.min())
+                top = cands[int(np.argmin(np.abs(ct - mid)))]
         else:
             top = None
     if top is not None and top.in_range:
