@@ -408,6 +408,51 @@ class TestTrials:
         assert s["real_in_blind_ok"] == s["real_in_blind"], s
 
 
+class TestManyCaptures:
+    def test_six_captures(self):
+        # Reference: lcm of 8000, 10240, 12800, 16000, 20480, 25600 by integer arithmetic.
+        rates = (8_000, 10_240, 12_800, 16_000, 20_480, 25_600)
+        lcm = math.lcm(*rates)
+        tones = [(37_123.0, -10.0), (1_234.0, -20.0)]
+        caps = [capture(tones, r, seed=20 + i) for i, r in enumerate(rates)]
+        res = compare_captures(caps, drift=0.0, max_true_hz=100_000)
+        assert res.resolution.lcm_hz == lcm
+        g = group_near(res, 0, fold_ref(37_123.0, 8_000), 3)
+        assert all(p >= 0 for p in g.peak)
+        assert g.verdict == "alias"
+        assert g.top is not None and g.top.true_hz == pytest.approx(37_123.0, abs=2)
+        assert group_near(res, 0, 1_234.0, 3).verdict == "real"
+
+    def test_missing_in_one_capture(self):
+        # A peak lost in one capture leaves a group of the others, judged on their rates.
+        tones = [(11_000.0, -10.0)]
+        caps = [capture(tones, r, seed=30 + i) for i, r in enumerate((12_800, 16_000))]
+        third = capture([], 20_480, seed=40)  # noise only: no peak above the floor
+        res = compare_captures([*caps, third], max_true_hz=30_000)
+        g = group_near(res, 0, fold_ref(11_000.0, 12_800), 3)
+        assert g.peak[2] == -1 and g.period_hz == math.lcm(12_800, 16_000)
+        assert g.candidates[0].true_hz == pytest.approx(11_000.0, abs=30)
+
+    def test_with_project_chain(self):
+        # The attenuation protocol takes the project's chain as a callable; its value at
+        # the candidate is checked against scipy.signal.freqs (reference).
+        from service.core.chain import AnalogLowpass, Chain
+
+        flt = AnalogLowpass(family="butterworth", order=2, cutoff_hz=5_000.0)
+        tones = [(10_000.0, -6.0)]
+        caps = []
+        for i, r in enumerate((12_800, 16_000)):
+            c = capture(tones, r, butter=DEMO_FILTER, seed=50 + i)
+            chain = Chain.shorthand(r, flt)
+            att = lambda f, chain=chain: chain.evaluate(f).attenuation_db  # noqa: E731
+            caps.append(Capture(c.rate_hz, c.freq_hz, c.level_db, c.uncertainty_hz, att))
+        res = compare_captures(caps, max_true_hz=30_000)
+        g = group_near(res, 0, fold_ref(10_000, 12_800), 5)
+        assert g.verdict == "alias" and g.top is not None
+        ref = _butter_db(*DEMO_FILTER)[0](g.top.true_hz)[0]
+        assert g.top.attenuation_db == pytest.approx((ref, ref), abs=0.01)
+
+
 class TestSettleRate:
     def test_basic(self):
         # Reference: numpy folds. 11.2 and 27.2 kHz read alike at 12.8 and 16 kS/s.
