@@ -436,7 +436,14 @@ def _check_captures(captures: Sequence[Capture]) -> list[_Cap]:
                     code="above_limit",
                 )  # fmt: skip
             lev = _check_array(cap.level_db, "level_db", f.size)
-            unc = _check_array(np.broadcast_to(cap.uncertainty_hz, f.shape), "uncertainty_hz")
+            try:
+                unc_in = np.broadcast_to(np.asarray(cap.uncertainty_hz, dtype=float), f.shape)
+            except ValueError:
+                raise InputError(
+                    f"uncertainty_hz must be one number or one per peak ({f.size})",
+                    field="uncertainty_hz", code="length_mismatch",
+                ) from None  # fmt: skip
+            unc = _check_array(unc_in, "uncertainty_hz")
             if np.any(unc <= 0):
                 i = int(np.flatnonzero(unc <= 0)[0])
                 raise InputError(
@@ -808,7 +815,6 @@ def _candidates(
 
 def _evaluate(caps: list[_Cap], g: _Group, c: FloatArray, opts: _Opts) -> dict[str, Any]:
     ks = sorted(g.members)
-    n_cap = len(caps)
     app = np.stack([fold(c, cap.rate) for cap in caps], axis=1)  # K × n_cap
     att = np.stack([cap.att(c) for cap in caps], axis=1)
     ferr = np.full(app.shape, np.nan)
@@ -832,7 +838,6 @@ def _evaluate(caps: list[_Cap], g: _Group, c: FloatArray, opts: _Opts) -> dict[s
     zone = np.stack(
         [np.maximum(np.ceil(c / (cap.rate / 2) - 1e-12), 1) for cap in caps], axis=1
     ).astype(np.int64)
-    _ = n_cap
     return {"app": app, "att": att, "ferr": ferr, "lerr": lerr, "ok": ok,
             "evidence": nat / _LN10, "zone": zone}  # fmt: skip
 

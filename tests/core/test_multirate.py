@@ -483,6 +483,8 @@ class TestErrors:
         assert e.value.field == "captures[1].freq_hz[0]"
         with pytest.raises(InputError, match="uncertainty_hz"):
             compare_captures([self._cap(unc=0.0), self._cap(16_000)])
+        with pytest.raises(InputError, match="one per peak"):
+            compare_captures([self._cap(unc=[1.0, 2.0]), self._cap(16_000)])
         with pytest.raises(InputError, match="level_db"):
             compare_captures([self._cap(lev=(1.0, 2.0)), self._cap(16_000)])
         with pytest.raises(InputError, match="non-finite"):
