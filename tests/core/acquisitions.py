@@ -49,6 +49,7 @@ import numpy as np
 import scipy.signal
 
 from service.core.attribution import Attribution, attribute
+from service.core.calibration import calibrate
 from service.core.chain import AnalogLowpass, Chain, Decimate, Sample
 from service.core.harmonics import Family, find_families
 from service.core.sources import expand_sources, source_from_dict
@@ -60,8 +61,11 @@ from .simulate import SimChain, decimate_taps, simulate_capture
 __all__ = [
     "Acquisition",
     "Scored",
+    "calibrated_confidences",
+    "contributors",
     "diagnose",
     "draw",
+    "reliability",
     "run_corpus",
     "score",
 ]
@@ -132,8 +136,10 @@ def _sources(rng: np.random.Generator, rpm: float) -> list[dict[str, Any]]:
                     "blades": int(rng.integers(5, 12)), "harmonics": 2,
                     "amplitude": _logu(rng, 0.02, 0.2)})  # fmt: skip
     if rng.random() < 0.6:
-        out.append({"type": "line", "label": "supply", "line_hz": float(rng.choice([50.0, 60.0])),
-                    "harmonics": [1, 2, 3, 5, 7], "amplitude": _logu(rng, 0.002, 0.02)})  # fmt: skip
+        out.append({"type": "line", "label": "supply",
+                    "line_hz": float(rng.choice([50.0, 60.0])),
+                    "harmonics": [1, 2, 3, 5, 7],
+                    "amplitude": _logu(rng, 0.002, 0.02)})  # fmt: skip
     if rng.random() < 0.7:
         out.append({"type": "pwm", "label": "inverter",
                     "carrier_hz": float(rng.choice([4000.0, 8000.0, 10000.0, 16000.0, 20000.0])),
@@ -276,18 +282,28 @@ def diagnose(acq: Acquisition) -> tuple[Attribution, list[Family], Any]:
 
 @dataclass(frozen=True, eq=False)
 class Scored:
-    """Claims of a corpus as parallel arrays (one row per verdict)."""
+    """Scored explanations of a corpus as parallel arrays, one row per explanation.
+
+    Rows with ``rank == 0`` are the verdicts (the best explanation of a peak that was
+    not left unexplained); ``rank >= 1`` are its ranked alternatives.
+    """
 
     kind: np.ndarray  # str: direct / family / alias / mirror
     raw: np.ndarray  # the confidence attribute() gave
     blind: np.ndarray  # bool
     right: np.ndarray  # bool
+    rank: np.ndarray  # int, 0 = the verdict
+    peak: np.ndarray  # int, running peak number over the corpus
     seed: np.ndarray  # int
     unexplained: int  # peaks left unexplained (not claims)
+    peaks: int
     acquisitions: int
 
-    def __len__(self) -> int:
-        return int(self.raw.size)
+    @property
+    def verdicts(self) -> np.ndarray:
+        """Boolean mask of the verdict rows."""
+        out: np.ndarray = self.rank == 0
+        return out
 
 
 def _right(kind: str, true_hz: float, contrib_true: np.ndarray, nyq: float, tol: float) -> bool:
@@ -299,50 +315,92 @@ def _right(kind: str, true_hz: float, contrib_true: np.ndarray, nyq: float, tol:
     return bool(np.any(np.abs(above - true_hz) <= tol + TRUE_MATCH_FRACTION * above))
 
 
-def score(acq: Acquisition, att: Attribution, floor: np.ndarray) -> list[tuple[Any, ...]]:
-    """(kind, raw confidence, right) for each verdict of ``att``; unexplained as None."""
+def contributors(acq: Acquisition, att: Attribution, floor: np.ndarray) -> list[np.ndarray]:
+    """True frequencies of the tones that make each peak (see the module's definition)."""
     fs = acq.chain.final_rate_hz
-    nyq = fs / 2.0
     apparent = _fold(acq.true_hz, fs)
     level = _record_level(acq)
-    tol = att.tolerance_hz
-    rows: list[tuple[Any, ...]] = []
-    for i in range(len(att)):
-        near = np.abs(apparent - att.freq_hz[i]) <= tol
+    out = []
+    for i in range(len(att)):  # peaks of one acquisition
+        near = np.abs(apparent - att.freq_hz[i]) <= att.tolerance_hz
         near &= level >= 0.5 * floor[i]
         if np.any(near):
             near &= level >= np.max(level[near]) * 10 ** (-CONTRIBUTOR_SPREAD_DB / 20)
-        kind = str(att.verdict[i])
-        if kind == "unexplained":
-            rows.append((None, float(att.confidence[i]), False))
+        out.append(acq.true_hz[near])
+    return out
+
+
+def score(
+    acq: Acquisition, att: Attribution, floor: np.ndarray
+) -> list[list[tuple[str, float, bool]]]:
+    """Per peak, (kind, raw confidence, right) of each ranked explanation; [] if unexplained."""
+    nyq = acq.chain.final_rate_hz / 2.0
+    out: list[list[tuple[str, float, bool]]] = []
+    for i, contrib in enumerate(contributors(acq, att, floor)):
+        if att.verdict[i] == "unexplained":
+            out.append([])
             continue
-        ok = _right(kind, float(att.true_hz[i]), acq.true_hz[near], nyq, tol)
-        rows.append((kind, float(att.confidence[i]), ok))
-    return rows
+        out.append([
+            (e.kind, float(e.confidence), _right(e.kind, e.true_hz, contrib, nyq, att.tolerance_hz))
+            for e in att.alternatives[i]
+        ])  # fmt: skip
+    return out
+
+
+def calibrated_confidences(att: Attribution, blind: bool) -> tuple[np.ndarray, list[np.ndarray]]:
+    """The calibrated confidence of each verdict (NaN if unexplained) and of each
+    alternative, as the integrated service would report them."""
+    alts = [
+        calibrate([e.kind for e in a], [e.confidence for e in a], blind) if a else np.empty(0)
+        for a in att.alternatives
+    ]
+    verdict = np.array([
+        c[0] if v != "unexplained" else np.nan for c, v in zip(alts, att.verdict, strict=True)
+    ])  # fmt: skip
+    return verdict, alts
 
 
 def run_corpus(seeds: range | list[int]) -> Scored:
     """Draw, simulate, diagnose and score the acquisitions of ``seeds``."""
-    kind: list[str] = []
-    raw: list[float] = []
-    blind: list[bool] = []
-    right: list[bool] = []
-    seed_of: list[int] = []
+    cols: dict[str, list[Any]] = {
+        k: [] for k in ("kind", "raw", "blind", "right", "rank", "peak", "seed")
+    }
     unexplained = 0
+    n_peaks = 0
     for s in seeds:  # one acquisition per seed
         acq = draw(s)
         att, _fams, peaks = diagnose(acq)
-        for k, c, ok in score(acq, att, peaks.floor):
-            if k is None:
+        for expl in score(acq, att, peaks.floor):
+            if not expl:
                 unexplained += 1
-                continue
-            kind.append(k)
-            raw.append(c)
-            blind.append(acq.blind)
-            right.append(ok)
-            seed_of.append(s)
+            for rank, (k, c, ok) in enumerate(expl):
+                for name, v in zip(cols, (k, c, acq.blind, ok, rank, n_peaks, s), strict=True):
+                    cols[name].append(v)
+            n_peaks += 1
     return Scored(
-        kind=strings(kind), raw=np.array(raw), blind=np.array(blind, dtype=bool),
-        right=np.array(right, dtype=bool), seed=np.array(seed_of, dtype=np.int64),
-        unexplained=unexplained, acquisitions=len(seeds),
+        kind=strings(cols["kind"]), raw=np.array(cols["raw"], dtype=np.float64),
+        blind=np.array(cols["blind"], dtype=bool), right=np.array(cols["right"], dtype=bool),
+        rank=np.array(cols["rank"], dtype=np.int64), peak=np.array(cols["peak"], dtype=np.int64),
+        seed=np.array(cols["seed"], dtype=np.int64), unexplained=unexplained, peaks=n_peaks,
+        acquisitions=len(seeds),
     )  # fmt: skip
+
+
+def reliability(
+    confidence: np.ndarray, right: np.ndarray, edges: np.ndarray | None = None
+) -> list[tuple[float, float, int, float, float]]:
+    """Reliability table: per confidence bin (lo, hi, count, stated mean, observed accuracy).
+
+    Bins are the deciles of stated confidence, [0, 0.1), ..., [0.9, 1.0]; empty bins have
+    NaN mean and accuracy.
+    """
+    e = np.linspace(0.0, 1.0, 11) if edges is None else edges
+    idx = np.clip(np.searchsorted(e, confidence, side="right") - 1, 0, e.size - 2)
+    rows = []
+    for b in range(e.size - 1):  # ten bins
+        sel = idx == b
+        n = int(np.sum(sel))
+        mean = float(np.mean(confidence[sel])) if n else float("nan")
+        acc = float(np.mean(right[sel])) if n else float("nan")
+        rows.append((float(e[b]), float(e[b + 1]), n, mean, acc))
+    return rows
