@@ -97,6 +97,9 @@ def write_tables(
         "linearly by service.core.calibration.calibrate.",
         '"""',
         "",
+        "#: Seeds of the fit corpus, [start, stop); held-out checks must use others.",
+        f"FIT_SEEDS = ({fit.start}, {fit.stop})",
+        "",
         "TABLES: dict[str, tuple[tuple[float, ...], tuple[float, ...]]] = {",
     ]
     for name, (x, y) in tables.items():

@@ -6,3 +6,4 @@ Placeholder until the first fit: the identity map.
 TABLES: dict[str, tuple[tuple[float, ...], tuple[float, ...]]] = {
     "all": ((0.0, 1.0), (0.0, 1.0)),
 }
+FIT_SEEDS = (0, 0)
