@@ -35,6 +35,7 @@ sys.path.insert(0, str(ROOT))
 
 from service.core.attribution import MIN_CONFIDENCE  # noqa: E402
 from service.core.calibration import (  # noqa: E402
+    ALTERNATIVE,
     GROUPS,
     calibrate,
     group_of,
@@ -56,26 +57,26 @@ def _seeds(text: str) -> range:
 def fit_tables(
     corpus: Scored, min_group: int, min_block: float
 ) -> tuple[dict[str, tuple[tuple[float, ...], tuple[float, ...]]], dict[str, int]]:
-    """Knots per group (and pooled) from the verdicts of ``corpus``; and the counts."""
-    v = corpus.verdicts
-    groups = group_of(corpus.kind[v], corpus.blind[v])
-    raw, right = corpus.raw[v], corpus.right[v].astype(np.float64)
-    members: dict[str, np.ndarray] = {g: groups == g for g in GROUPS}
-    for pooled in sorted(set(GROUPS.values())):
-        members[pooled] = np.isin(groups, [g for g, p in GROUPS.items() if p == pooled])
-    members["all"] = np.ones(groups.size, dtype=bool)
+    """Knots per group (and pooled), for verdicts and, prefixed, for alternatives."""
     tables: dict[str, tuple[tuple[float, ...], tuple[float, ...]]] = {}
     counts: dict[str, int] = {}
-    for name, sel in members.items():  # a handful of groups
-        n = int(np.sum(sel))
-        counts[name] = n
-        if n < min_group and name != "all":
-            continue
-        x, y = knots_from_fit(*isotonic_fit(raw[sel], right[sel]), min_weight=min_block)
-        tables[name] = (
-            tuple(round(float(a), 4) for a in x),
-            tuple(round(float(b), 4) for b in y),
-        )
+    for prefix, rows in (("", corpus.verdicts), (ALTERNATIVE, ~corpus.verdicts)):
+        groups = group_of(corpus.kind[rows], corpus.blind[rows])
+        raw, right = corpus.raw[rows], corpus.right[rows].astype(np.float64)
+        members: dict[str, np.ndarray] = {g: groups == g for g in GROUPS}
+        for pooled in sorted(set(GROUPS.values())):
+            members[pooled] = np.isin(groups, [g for g, p in GROUPS.items() if p == pooled])
+        members["all"] = np.ones(groups.size, dtype=bool)
+        for name, sel in members.items():  # a handful of groups
+            n = int(np.sum(sel))
+            counts[prefix + name] = n
+            if n < min_group and (name != "all" or n == 0):
+                continue
+            x, y = knots_from_fit(*isotonic_fit(raw[sel], right[sel]), min_weight=min_block)
+            tables[prefix + name] = (
+                tuple(round(float(a), 4) for a in x),
+                tuple(round(float(b), 4) for b in y),
+            )
     return tables, counts
 
 
@@ -183,7 +184,7 @@ def main() -> int:
         f"{held.acquisitions} acquisitions, {held.peaks} peaks, {int(np.sum(v))} verdicts, "
         f"{held.unexplained} unexplained (not claims) ({time.perf_counter() - t0:.1f} s)"
     )
-    cal = calibrate(held.kind, held.raw, held.blind, tables=tables)
+    cal = calibrate(held.kind, held.raw, held.blind, tables=tables, alternative=~v)
     print_reliability(
         "verdicts, raw confidence (as attribute() gives it)", held.raw[v], held.right[v]
     )
@@ -192,10 +193,18 @@ def main() -> int:
     print_groups(held, cal[v], v)
     alt = ~v
     if np.any(alt):
-        print_reliability("alternatives (rank >= 2), calibrated", cal[alt], held.right[alt])
+        raw_alt = calibrate(held.kind[alt], held.raw[alt], held.blind[alt], tables=tables)
+        print_reliability(
+            "alternatives (ranked below the verdict), with the verdicts' tables",
+            raw_alt,
+            held.right[alt],
+        )
+        print_reliability("alternatives, with their own tables", cal[alt], held.right[alt])
     # Ranking by the calibrated confidence instead of the raw one: how often is the top
-    # explanation right? (Only peaks with a verdict; the raw MIN_CONFIDENCE gate kept.)
-    key = np.where(held.raw >= MIN_CONFIDENCE, cal, -1.0)
+    # explanation right? (Only peaks with a verdict; the raw MIN_CONFIDENCE gate kept;
+    # every explanation through the verdicts' tables, since ranking precedes the choice.)
+    as_verdict = calibrate(held.kind, held.raw, held.blind, tables=tables)
+    key = np.where(held.raw >= MIN_CONFIDENCE, as_verdict, -1.0)
     order = np.lexsort((-key, held.peak))
     first = np.r_[True, held.peak[order][1:] != held.peak[order][:-1]]
     top_cal = order[first]

@@ -341,7 +341,8 @@ def score(
             out.append([])
             continue
         out.append([
-            (e.kind, float(e.confidence), _right(e.kind, e.true_hz, contrib, nyq, att.tolerance_hz))
+            (e.kind, float(e.confidence), acq.blind or e.family_index >= 0,
+             _right(e.kind, e.true_hz, contrib, nyq, att.tolerance_hz))
             for e in att.alternatives[i]
         ])  # fmt: skip
     return out
@@ -351,7 +352,14 @@ def calibrated_confidences(att: Attribution, blind: bool) -> tuple[np.ndarray, l
     """The calibrated confidence of each verdict (NaN if unexplained) and of each
     alternative, as the integrated service would report them."""
     alts = [
-        calibrate([e.kind for e in a], [e.confidence for e in a], blind) if a else np.empty(0)
+        calibrate(
+            [e.kind for e in a],
+            [e.confidence for e in a],
+            [blind or e.family_index >= 0 for e in a],
+            alternative=np.arange(len(a)) > 0,
+        )
+        if a
+        else np.empty(0)
         for a in att.alternatives
     ]
     verdict = np.array([
@@ -373,8 +381,8 @@ def run_corpus(seeds: range | list[int]) -> Scored:
         for expl in score(acq, att, peaks.floor):
             if not expl:
                 unexplained += 1
-            for rank, (k, c, ok) in enumerate(expl):
-                for name, v in zip(cols, (k, c, acq.blind, ok, rank, n_peaks, s), strict=True):
+            for rank, (k, c, b, ok) in enumerate(expl):
+                for name, v in zip(cols, (k, c, b, ok, rank, n_peaks, s), strict=True):
                     cols[name].append(v)
             n_peaks += 1
     return Scored(

@@ -137,9 +137,19 @@ class TestCalibrate:
         # blind alias has its own table; a named alias falls back to "sources"; a blind
         # family to "blind", absent, so to "all"; a mirror to "mirror", absent, to "all".
         np.testing.assert_allclose(got, [0.2, 0.6, 0.4, 0.4])
-        assert list(group_of(["family", "alias", "direct"], True)) == [
-            "family_blind", "alias_blind", "direct",
+        assert list(group_of(["family", "alias", "direct", "mirror"], True)) == [
+            "family_blind", "alias_blind", "direct", "mirror_blind",
         ]  # fmt: skip
+        # Alternatives: their own table, else the pooled/all alternatives' table, else
+        # the verdicts' "all".
+        tables["alt_alias"] = ((0.0, 1.0), (0.05, 0.05))
+        tables["alt_all"] = ((0.0, 1.0), (0.1, 0.1))
+        got = calibrate(["alias", "direct", "alias"], [0.5] * 3, False, tables=tables,
+                        alternative=[True, True, False])  # fmt: skip
+        np.testing.assert_allclose(got, [0.05, 0.1, 0.6])
+        del tables["alt_all"]
+        got = calibrate(["direct"], [0.5], False, tables=tables, alternative=True)
+        np.testing.assert_allclose(got, [0.4])
 
     def test_maps_are_monotone_and_capped(self):
         raw = np.linspace(0.0, 1.0, 1001)
