@@ -74,7 +74,7 @@ def fit_tables(
                 continue
             x, y = knots_from_fit(*isotonic_fit(raw[sel], right[sel]), min_weight=min_block)
             tables[prefix + name] = (
-                tuple(round(float(a), 4) for a in x),
+                tuple(round(float(a), 6) for a in x),
                 tuple(round(float(b), 4) for b in y),
             )
     return tables, counts

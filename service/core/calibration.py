@@ -235,37 +235,44 @@ def isotonic_fit(
 
 def knots_from_fit(
     x_lo: FloatArray, x_hi: FloatArray, value: FloatArray, block_weight: FloatArray,
-    min_weight: float = 40.0,
+    min_weight: float = 40.0, min_step: float = 0.01,
 ) -> tuple[FloatArray, FloatArray]:  # fmt: skip
-    """Piecewise-linear knots from isotonic blocks, small blocks merged with a neighbour.
+    """Piecewise-linear knots from isotonic blocks, pooled until each knot says something.
 
-    A block lighter than ``min_weight`` is pooled with its lighter neighbour (the pooled
-    mean lies between the two, so the order holds); each remaining block gives a knot at
-    each end of its score range (one if the range is a single value). Values are clipped
-    to :data:`MIN_CALIBRATED`..:data:`MAX_CALIBRATED`.
+    Values are first clipped to :data:`MIN_CALIBRATED`..:data:`MAX_CALIBRATED`. Then,
+    repeatedly, the lightest block under ``min_weight``, or else the adjacent pair whose
+    values differ least (by less than ``min_step``), is pooled into its weighted mean,
+    which lies between the two, so the order holds. Each remaining block gives a knot at
+    each end of its score range (one if the range is a single value).
     """
     lo, hi = list(map(float, x_lo)), list(map(float, x_hi))
-    s = [float(v * w) for v, w in zip(value, block_weight, strict=True)]
     w = list(map(float, block_weight))
-    while len(w) > 1 and min(w) < min_weight:
+    v = [float(np.clip(a, MIN_CALIBRATED, MAX_CALIBRATED)) for a in value]
+    s = [a * b for a, b in zip(v, w, strict=True)]
+
+    def pool(a: int) -> None:  # block a absorbs block a + 1
+        w[a] += w[a + 1]
+        s[a] += s[a + 1]
+        hi[a] = hi[a + 1]
+        del w[a + 1], s[a + 1], lo[a + 1], hi[a + 1]
+
+    while len(w) > 1:  # offline: a few hundred blocks at most
         i = int(np.argmin(w))
-        j = (
-            i + 1
-            if i == 0
-            else i - 1
-            if i == len(w) - 1
-            else (i - 1 if w[i - 1] < w[i + 1] else i + 1)
-        )
-        a, b = min(i, j), max(i, j)
-        w[a] += w[b]
-        s[a] += s[b]
-        hi[a] = hi[b]
-        del w[b], s[b], lo[b], hi[b]
+        if w[i] < min_weight:
+            if i == 0 or (i < len(w) - 1 and w[i + 1] < w[i - 1]):
+                pool(i)
+            else:
+                pool(i - 1)
+            continue
+        gaps = np.diff(np.array(s) / np.array(w))
+        j = int(np.argmin(gaps))
+        if gaps[j] >= min_step:
+            break
+        pool(j)
     xs: list[float] = []
     ys: list[float] = []
     for bl, bh, bsum, bwt in zip(lo, hi, s, w, strict=True):
-        v = float(np.clip(bsum / bwt, MIN_CALIBRATED, MAX_CALIBRATED))
         for xk in (bl, bh) if bh > bl else (bl,):
             xs.append(xk)
-            ys.append(v)
+            ys.append(bsum / bwt)
     return np.array(xs), np.array(ys)

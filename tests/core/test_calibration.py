@@ -110,6 +110,16 @@ class TestKnotsFromFit:
         np.testing.assert_allclose(x, [0.3, 0.6, 0.7, 0.9])
         np.testing.assert_allclose(y, [0.25, 0.25, 0.9, 0.9])
 
+    def test_small_steps_pool(self):
+        # Worked by hand: values 0.3 and 0.305 differ by less than min_step = 0.01 and
+        # pool into (0.3·50 + 0.305·50)/100 = 0.3025; 0.9 stays apart.
+        x, y = knots_from_fit(
+            np.array([0.3, 0.4, 0.7]), np.array([0.35, 0.5, 0.9]),
+            np.array([0.3, 0.305, 0.9]), np.array([50.0, 50.0, 50.0]),
+        )  # fmt: skip
+        np.testing.assert_allclose(x, [0.3, 0.5, 0.7, 0.9])
+        np.testing.assert_allclose(y, [0.3025, 0.3025, 0.9, 0.9])
+
     def test_edges(self):
         # A perfect block is capped below certainty; a single-valued block is one knot.
         x, y = knots_from_fit(np.array([0.8]), np.array([0.8]), np.array([1.0]), np.array([100.0]))
