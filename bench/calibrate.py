@@ -146,9 +146,9 @@ def print_groups(corpus: Scored, conf: np.ndarray, sel: np.ndarray) -> None:
 
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--fit", type=_seeds, default=_seeds("0:3000"), help="fit seeds lo:hi")
+    ap.add_argument("--fit", type=_seeds, default=_seeds("0:8000"), help="fit seeds lo:hi")
     ap.add_argument(
-        "--held-out", type=_seeds, default=_seeds("100000:101000"), help="held-out seeds lo:hi"
+        "--held-out", type=_seeds, default=_seeds("100000:102000"), help="held-out seeds lo:hi"
     )
     ap.add_argument("--min-group", type=int, default=150, help="fewest verdicts for a table")
     ap.add_argument("--min-block", type=float, default=40.0, help="fewest verdicts per knot")
@@ -195,19 +195,26 @@ def main() -> int:
     if np.any(alt):
         raw_alt = calibrate(held.kind[alt], held.raw[alt], held.blind[alt], tables=tables)
         print_reliability(
-            "alternatives (ranked below the verdict), with the verdicts' tables",
+            "explanations not chosen, with the verdicts' tables",
             raw_alt,
             held.right[alt],
         )
-        print_reliability("alternatives, with their own tables", cal[alt], held.right[alt])
+        print_reliability(
+            "explanations not chosen (alternatives, candidates of unexplained peaks), "
+            "with their own tables",
+            cal[alt],
+            held.right[alt],
+        )
     # Ranking by the calibrated confidence instead of the raw one: how often is the top
     # explanation right? (Only peaks with a verdict; the raw MIN_CONFIDENCE gate kept;
     # every explanation through the verdicts' tables, since ranking precedes the choice.)
     as_verdict = calibrate(held.kind, held.raw, held.blind, tables=tables)
+    has_verdict = np.isin(held.peak, held.peak[v])
     key = np.where(held.raw >= MIN_CONFIDENCE, as_verdict, -1.0)
+    key = np.where(has_verdict, key, -2.0)
     order = np.lexsort((-key, held.peak))
     first = np.r_[True, held.peak[order][1:] != held.peak[order][:-1]]
-    top_cal = order[first]
+    top_cal = order[first & has_verdict[order]]
     print(
         f"\nverdict accuracy ranked by raw score: {np.mean(held.right[v]):.3f}; "
         f"ranked by calibrated confidence: {np.mean(held.right[top_cal]):.3f} "

@@ -285,14 +285,16 @@ class Scored:
     """Scored explanations of a corpus as parallel arrays, one row per explanation.
 
     Rows with ``rank == 0`` are the verdicts (the best explanation of a peak that was
-    not left unexplained); ``rank >= 1`` are its ranked alternatives.
+    not left unexplained); ``rank >= 1`` are its ranked alternatives; ``rank == -1`` the
+    candidates of a peak left unexplained (none was chosen). Alternatives and those
+    candidates are the explanations "not chosen".
     """
 
     kind: np.ndarray  # str: direct / family / alias / mirror
     raw: np.ndarray  # the confidence attribute() gave
     blind: np.ndarray  # bool
     right: np.ndarray  # bool
-    rank: np.ndarray  # int, 0 = the verdict
+    rank: np.ndarray  # int, 0 = the verdict, -1 = a candidate of an unexplained peak
     peak: np.ndarray  # int, running peak number over the corpus
     seed: np.ndarray  # int
     unexplained: int  # peaks left unexplained (not claims)
@@ -332,14 +334,14 @@ def contributors(acq: Acquisition, att: Attribution, floor: np.ndarray) -> list[
 
 def score(
     acq: Acquisition, att: Attribution, floor: np.ndarray
-) -> list[list[tuple[str, float, bool]]]:
-    """Per peak, (kind, raw confidence, right) of each ranked explanation; [] if unexplained."""
+) -> list[list[tuple[str, float, bool, bool]]]:
+    """Per peak, (kind, raw confidence, blind, right) of each ranked explanation, best
+    first (also for a peak left unexplained: its candidates were all too weak).
+    ``blind``: a blind family member, or a mirror found without sources (the
+    calibration groups)."""
     nyq = acq.chain.final_rate_hz / 2.0
-    out: list[list[tuple[str, float, bool]]] = []
+    out: list[list[tuple[str, float, bool, bool]]] = []
     for i, contrib in enumerate(contributors(acq, att, floor)):
-        if att.verdict[i] == "unexplained":
-            out.append([])
-            continue
         out.append([
             (e.kind, float(e.confidence), acq.blind or e.family_index >= 0,
              _right(e.kind, e.true_hz, contrib, nyq, att.tolerance_hz))
@@ -350,17 +352,19 @@ def score(
 
 def calibrated_confidences(att: Attribution, blind: bool) -> tuple[np.ndarray, list[np.ndarray]]:
     """The calibrated confidence of each verdict (NaN if unexplained) and of each
-    alternative, as the integrated service would report them."""
+    peak's ranked explanations, as the integrated service would report them: the
+    verdict through the verdicts' tables, every explanation not chosen (alternatives,
+    and all candidates of an unexplained peak) through the alternatives' tables."""
     alts = [
         calibrate(
             [e.kind for e in a],
             [e.confidence for e in a],
             [blind or e.family_index >= 0 for e in a],
-            alternative=np.arange(len(a)) > 0,
+            alternative=(np.arange(len(a)) > 0) | (v == "unexplained"),
         )
         if a
         else np.empty(0)
-        for a in att.alternatives
+        for a, v in zip(att.alternatives, att.verdict, strict=True)
     ]
     verdict = np.array([
         c[0] if v != "unexplained" else np.nan for c, v in zip(alts, att.verdict, strict=True)
@@ -378,10 +382,11 @@ def run_corpus(seeds: range | list[int]) -> Scored:
     for s in seeds:  # one acquisition per seed
         acq = draw(s)
         att, _fams, peaks = diagnose(acq)
-        for expl in score(acq, att, peaks.floor):
-            if not expl:
-                unexplained += 1
+        for verdict, expl in zip(att.verdict, score(acq, att, peaks.floor), strict=True):
+            chosen = verdict != "unexplained"
+            unexplained += not chosen
             for rank, (k, c, b, ok) in enumerate(expl):
+                rank = rank if chosen else -1
                 for name, v in zip(cols, (k, c, b, ok, rank, n_peaks, s), strict=True):
                     cols[name].append(v)
             n_peaks += 1
