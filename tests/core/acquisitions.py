@@ -32,12 +32,15 @@ peak. A verdict is right when:
   below the final Nyquist frequency);
 - ``alias``: some contributor lies truly above the final Nyquist frequency and its true
   frequency is within ``tolerance_hz + 1 %`` of the stated ``true_hz`` (1 % covers the
-  speed offset; different Nyquist zones are at least a few hundred Hz apart);
+  stated speed's offset of up to 0.8 %; so the two unfoldings ``m·fs ± f`` of one peak
+  are told apart only when ``2·f`` exceeds that margin);
 - ``mirror``: some contributor lies in the second zone at the image ``fs − f`` (the
   same test as an alias, with ``true_hz = fs − f``).
 
 A peak with no contributor (noise, leakage, a window sidelobe) makes every claim wrong.
-``unexplained`` is not a claim: it is counted, not scored.
+``unexplained`` is not a claim: it is counted, and left out of the verdicts'
+calibration. The same rule scores every ranked alternative, and the candidates of an
+unexplained peak, as explanations "not chosen" (the calibration's ``alt_`` tables).
 """
 
 from __future__ import annotations
