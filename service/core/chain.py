@@ -33,7 +33,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from service.core import filters as _flt
 from service.core.filters import _show
-from service.core.folding import _fold_unchecked, _zone_unchecked
+from service.core.folding import _fold_unchecked, _zone_unchecked, check_fold_range
 
 __all__ = [
     "AnalogLowpass",
@@ -594,6 +594,7 @@ class Chain:
         f = np.atleast_1d(f)
         n = f.size
         plan = self._plan
+        check_fold_range(f, plan.final_rate_hz)
         rows = np.empty((len(self.stages), n))
         active: list[int] = []  # rows that are not identically 0 dB
         folded = f  # frequency seen at the current rate (true frequency before sampling)

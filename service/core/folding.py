@@ -15,7 +15,11 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import bad, check_freqs, check_positive
+
 __all__ = [
+    "MAX_FOLD_RATIO",
+    "check_fold_range",
     "fold",
     "fold_intervals",
     "is_inverted",
@@ -24,23 +28,43 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-
-def _check_rate(sample_rate_hz: float, name: str = "sample_rate_hz") -> float:
-    rate = float(sample_rate_hz)
-    if not np.isfinite(rate) or rate <= 0:
-        raise ValueError(f"{name}={sample_rate_hz!r} must be a finite number > 0")
-    return rate
+#: Largest true frequency, as a multiple of the sample rate, that is folded. Beyond it
+#: ``f / fs`` keeps too few fractional digits in double precision (machine epsilon
+#: 2.2e-16 × 1e9 ≈ 2e-7 of fs) for the apparent frequency and zone to mean anything.
+MAX_FOLD_RATIO = 1e9
 
 
-def _check_freqs(freq_hz: ArrayLike, name: str = "freq_hz") -> FloatArray:
-    f = np.asarray(freq_hz, dtype=np.float64)
-    if not np.all(np.isfinite(f)):
-        bad = f[~np.isfinite(f)].ravel()[0]
-        raise ValueError(f"{name} contains {bad!r}; every frequency must be finite")
-    if np.any(f < 0):
-        bad = f[f < 0].ravel()[0]
-        raise ValueError(f"{name} contains {bad!r}; frequencies must be >= 0 Hz")
-    return f
+def check_fold_range(f: FloatArray, sample_rate_hz: float, name: str = "freq_hz") -> None:
+    """Refuse true frequencies above ``MAX_FOLD_RATIO`` times the sample rate.
+
+    Parameters
+    ----------
+    f : ndarray
+        Checked true frequencies, Hz (finite, >= 0).
+    sample_rate_hz : float
+        Checked sample rate, Hz (> 0).
+    name : str
+        Parameter name for the message and the error's ``field``.
+
+    Raises
+    ------
+    InputError
+        Code ``above_limit``, limit ``MAX_FOLD_RATIO * sample_rate_hz`` in Hz.
+    """
+    if f.size == 0:
+        return
+    top = float(np.max(f))
+    limit = MAX_FOLD_RATIO * sample_rate_hz
+    if top > limit:
+        raise bad(
+            f"{name} contains {top!r} Hz, more than {MAX_FOLD_RATIO:g} times the sample "
+            f"rate {sample_rate_hz!r} Hz; its apparent frequency cannot be computed in "
+            "double precision",
+            name,
+            "above_limit",
+            value=top,
+            limit=limit,
+        )
 
 
 def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
@@ -67,8 +91,9 @@ def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
     ----------
     .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.2.
     """
-    fs = _check_rate(sample_rate_hz)
-    f = _check_freqs(freq_hz)
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    f = check_freqs(freq_hz)
+    check_fold_range(f, fs)
     return _fold_unchecked(f, fs)
 
 
@@ -99,13 +124,15 @@ def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]
     ----------
     .. [2] Lyons, *Understanding Digital Signal Processing*, sec. 2.3.
     """
-    fs = _check_rate(sample_rate_hz)
-    f = _check_freqs(freq_hz)
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    f = check_freqs(freq_hz)
+    check_fold_range(f, fs)
     return _zone_unchecked(f, fs)
 
 
 def _zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
-    zone = np.ceil(f / (fs / 2.0))
+    # The clip keeps the cast to int64 defined for unchecked callers (2**62 < int64 max).
+    zone = np.ceil(np.minimum(f / (fs / 2.0), 2.0**62))
     # Guard against round-off putting an exact multiple of fs/2 one zone high: the fold
     # formula is the arbiter, so zone and apparent frequency always agree.
     return np.maximum(zone, 1).astype(np.int64)
@@ -155,13 +182,20 @@ def fold_intervals(
     apparent_low, apparent_high : ndarray
         Apparent interval ends, Hz, in ``[0, fs/2]``.
     """
-    fs = _check_rate(sample_rate_hz)
-    lo = _check_freqs(low_hz, "low_hz")
-    hi = _check_freqs(high_hz, "high_hz")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    lo = check_freqs(low_hz, "low_hz")
+    hi = check_freqs(high_hz, "high_hz")
+    check_fold_range(np.asarray(hi, dtype=np.float64), fs, "high_hz")
     lo, hi = (np.atleast_1d(a).astype(np.float64) for a in np.broadcast_arrays(lo, hi))
     if np.any(hi < lo):
         i = int(np.flatnonzero(hi < lo)[0])
-        raise ValueError(f"high_hz[{i}]={hi[i]!r} is below low_hz[{i}]={lo[i]!r}")
+        raise bad(
+            f"high_hz[{i}]={float(hi[i])!r} is below low_hz[{i}]={float(lo[i])!r}",
+            f"high_hz[{i}]",
+            "below_limit",
+            value=float(hi[i]),
+            limit=float(lo[i]),
+        )
     nyq = fs / 2.0
     a_lo = _fold_unchecked(lo, fs)
     a_hi = _fold_unchecked(hi, fs)
