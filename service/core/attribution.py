@@ -30,6 +30,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .chain import Chain, ChainResponse
+from .checks import check_one_of, check_positive, check_range
 from .folding import fold_intervals
 from .harmonics import (
     MAX_SOURCE_EXCESS_DB,
@@ -213,20 +214,6 @@ class Attribution:
 # --------------------------------------------------------------------------- checks
 
 
-def _check_positive(value: float, name: str, unit: str = "") -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0{unit}")
-    return v
-
-
-def _check_window(window: str) -> str:
-    allowed = [*sorted(WINDOWS), "unknown"]
-    if not isinstance(window, str) or window.lower() not in allowed:
-        raise ValueError(f"window={window!r} must be one of {', '.join(allowed)}")
-    return window.lower()
-
-
 @lru_cache(maxsize=8)
 def _half_width_bins(window: str) -> float:
     # An unknown window is taken as Hann, the usual default of analysers.
@@ -252,8 +239,8 @@ def frequency_tolerance_hz(bin_width_hz: float, window: str = "hann") -> float:
         tones closer than the main-lobe half-width merge into one peak [1]_, and the
         refined frequency carries a small error on top.
     """
-    bw = _check_positive(bin_width_hz, "bin_width_hz", " Hz")
-    w = _check_window(window)
+    bw = check_positive(bin_width_hz, "bin_width_hz", unit=" Hz")
+    w = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
     refine = REFINE_ERROR_UNKNOWN_BINS if w == "unknown" else REFINE_ERROR_BINS
     return bw * (_half_width_bins(w) + refine)
 
@@ -268,13 +255,6 @@ def _check_band(band_hz: tuple[float, float] | None, edge: float) -> tuple[float
     if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
         raise ValueError(f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high")
     return (lo, hi)
-
-
-def _check_speed_tolerance(pct: float) -> float:
-    p = float(pct)
-    if not np.isfinite(p) or not 0 <= p <= 50:
-        raise ValueError(f"speed_tolerance_pct={pct!r} must be between 0 and 50")
-    return p
 
 
 def _tone_intervals(
@@ -499,9 +479,9 @@ def attribute(
     rate = chain.final_rate_hz
     nyq = rate / 2.0
     freq, amp, fl = _check_peaks(peaks_freq_hz, peaks_amplitude, floor, nyq)
-    bw = _check_positive(bin_width_hz, "bin_width_hz", " Hz")
-    window = _check_window(window)
-    lvl_tol = _check_positive(level_tolerance_db, "level_tolerance_db", " dB")
+    bw = check_positive(bin_width_hz, "bin_width_hz", unit=" Hz")
+    window = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
+    lvl_tol = check_positive(level_tolerance_db, "level_tolerance_db", unit=" dB")
     if (
         isinstance(max_alternatives, bool)
         or int(max_alternatives) != max_alternatives
@@ -519,7 +499,7 @@ def attribute(
         if bad:
             raise ValueError(f"families[{i}] refers to peak {bad[0]}; there are {freq.size} peaks")
 
-    speed_tol = _check_speed_tolerance(speed_tolerance_pct)
+    speed_tol = check_range(speed_tolerance_pct, "speed_tolerance_pct", 0, 50)
     tol = frequency_tolerance_hz(bw, window)
     edge = rate / SPAN_DIVISOR
     seen_db = _db(amp)

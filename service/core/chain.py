@@ -24,7 +24,6 @@ from __future__ import annotations
 
 import dataclasses
 import functools
-import math
 from dataclasses import dataclass, field
 from typing import Any, ClassVar
 
@@ -32,7 +31,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from service.core import filters as _flt
-from service.core.filters import _show
+from service.core.checks import bad, check_finite, check_freqs, check_int, show
 from service.core.folding import _fold_unchecked, _zone_unchecked, check_fold_range
 
 __all__ = [
@@ -60,20 +59,20 @@ _DECIMATE_FILTERS = ("fir", "iir", "none")
 def _check_number(
     value: Any, name: str, *, low: float = 0.0, high: float | None = None, strict: bool = True
 ) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}={_show(value)!r} must be a number") from None
-    if isinstance(value, bool) or not math.isfinite(v):
-        raise ValueError(f"{name}={_show(value)!r} must be a finite number")
+    v = check_finite(value, name)
     if (strict and v <= low) or (not strict and v < low):
-        raise ValueError(f"{name}={_show(value)!r} must be {'>' if strict else '>='} {low:g}")
+        raise bad(
+            f"{name}={show(value)} must be {'>' if strict else '>='} {low:g}",
+            name,
+            "not_positive" if strict and low == 0 else "below_limit",
+            value=v,
+            limit=low,
+        )
     if high is not None and v > high:
-        raise ValueError(f"{name}={_show(value)!r} must be <= {high:g}")
+        raise bad(
+            f"{name}={show(value)} must be <= {high:g}", name, "above_limit", value=v, limit=high
+        )
     return v
-
-
-_check_int = _flt._check_int
 
 
 def _as_floats(values: Any, name: str) -> tuple[float, ...]:
@@ -212,7 +211,7 @@ class AnalogLowpass:
                 "table_hz + table_gain_db)"
             )
         rp, rs = _flt._check_family(self.family, self.ripple_db, self.stop_atten_db)
-        set_(self, "order", _check_int(self.order, "order", 1, 20))
+        set_(self, "order", check_int(self.order, "order", 1, 20))
         set_(self, "cutoff_hz", _check_number(self.cutoff_hz, "cutoff_hz"))
         set_(self, "ripple_db", rp)
         set_(self, "stop_atten_db", rs)
@@ -395,9 +394,9 @@ class Decimate:
 
     def __post_init__(self) -> None:
         if self.filter not in _DECIMATE_FILTERS:
-            raise ValueError(f"filter={_show(self.filter)!r} must be one of 'fir', 'iir', 'none'")
+            raise ValueError(f"filter={show(self.filter)} must be one of 'fir', 'iir', 'none'")
         high = 13 if self.filter == "iir" else _MAX_DECIMATION
-        factor = _check_int(self.factor, "factor", 1, high)
+        factor = check_int(self.factor, "factor", 1, high)
         object.__setattr__(self, "factor", factor)
 
     def coefficients(self) -> tuple[FloatArray, FloatArray] | None:
@@ -588,7 +587,7 @@ class Chain:
         ----------
         .. [2] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.6.
         """
-        f = _flt._check_freqs(freq_hz)
+        f = check_freqs(freq_hz)
         if f.ndim > 1:
             raise ValueError(f"freq_hz must be a scalar or 1-D, got shape {f.shape}")
         f = np.atleast_1d(f)

@@ -71,9 +71,7 @@ def bad(
 
 
 def _is_number(value: object) -> bool:
-    return not isinstance(value, bool) and isinstance(
-        value, int | float | np.integer | np.floating
-    )
+    return not isinstance(value, bool) and isinstance(value, int | float | np.integer | np.floating)
 
 
 def check_finite(value: object, name: str, *, cut: int | None = None) -> float:
@@ -132,7 +130,11 @@ def check_positive(
         v = check_finite(value, name, cut=cut)
         if v <= 0:
             raise bad(
-                f"{name}={show(value, cut)} must be > 0{unit}", name, "not_positive", value=v, limit=0
+                f"{name}={show(value, cut)} must be > 0{unit}",
+                name,
+                "not_positive",
+                value=v,
+                limit=0,
             )
     else:
         if not _is_number(value):
@@ -181,7 +183,9 @@ def check_range(
     if v < low:
         raise bad(f"{name}={show(value)} must be {clause}", name, "below_limit", value=v, limit=low)
     if v > high:
-        raise bad(f"{name}={show(value)} must be {clause}", name, "above_limit", value=v, limit=high)
+        raise bad(
+            f"{name}={show(value)} must be {clause}", name, "above_limit", value=v, limit=high
+        )
     return v
 
 

@@ -21,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import check_positive
 from .harmonics import _check_peaks, format_hz
 
 __all__ = [
@@ -152,13 +153,6 @@ class RateComparison:
 #: Unfoldings searched per peak (2 per multiple of the lower rate) and in total.
 MAX_UNFOLDINGS = 20_000
 MAX_CANDIDATE_CELLS = 4_000_000
-
-
-def _check_positive(value: float, name: str) -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0")
-    return v
 
 
 def _zone(f: FloatArray, rate: float) -> IntArray:
@@ -392,18 +386,18 @@ def compare_rates(
     attenuate it alike; with different anti-alias filters widen ``level_tolerance_db``.
     A machine whose speed changed between the captures moves its real tones too.
     """
-    ra = _check_positive(rate_a_hz, "rate_a_hz")
-    rb = _check_positive(rate_b_hz, "rate_b_hz")
+    ra = check_positive(rate_a_hz, "rate_a_hz")
+    rb = check_positive(rate_b_hz, "rate_b_hz")
     if math.isclose(ra, rb, rel_tol=1e-9):
         raise ValueError(
             f"rate_b_hz={rate_b_hz!r} equals rate_a_hz={rate_a_hz!r}; the two-rate test "
             "needs two different sample rates"
         )
-    ba = _check_positive(bin_a_hz, "bin_a_hz")
-    bb = _check_positive(bin_b_hz, "bin_b_hz")
-    lvl = _check_positive(level_tolerance_db, "level_tolerance_db")
+    ba = check_positive(bin_a_hz, "bin_a_hz")
+    bb = check_positive(bin_b_hz, "bin_b_hz")
+    lvl = check_positive(level_tolerance_db, "level_tolerance_db")
     max_true = (
-        10.0 * max(ra, rb) if max_true_hz is None else _check_positive(max_true_hz, "max_true_hz")
+        10.0 * max(ra, rb) if max_true_hz is None else check_positive(max_true_hz, "max_true_hz")
     )
     try:
         fa, aa, _ = _check_peaks(peaks_a_hz, amp_a, 1.0, ra / 2.0)

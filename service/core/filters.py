@@ -31,6 +31,8 @@ import numpy as np
 import scipy.signal as sig
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import check_freqs, check_int, check_positive, show
+
 __all__ = [
     "ANALOG_FAMILIES",
     "MAX_ATTENUATION_DB",
@@ -83,76 +85,36 @@ _MAG_FLOOR = 10.0 ** (-MAX_ATTENUATION_DB / 20.0)
 # --------------------------------------------------------------------------- checks
 
 
-def _check_freqs(freq_hz: ArrayLike, name: str = "freq_hz") -> FloatArray:
-    f = np.asarray(freq_hz, dtype=np.float64)
-    finite = np.isfinite(f)
-    if not finite.all():
-        raise ValueError(
-            f"{name} contains {float(f[~finite].ravel()[0])!r}; every frequency must be finite"
-        )
-    if (f < 0).any():
-        raise ValueError(
-            f"{name} contains {float(f[f < 0].ravel()[0])!r}; frequencies must be >= 0 Hz"
-        )
-    return f
-
-
-def _show(value: object) -> object:
-    """A value as a message shows it: numpy scalars as plain Python numbers."""
-    return value.item() if isinstance(value, np.generic) else value
-
-
-def _check_positive(value: float, name: str, upper: float | None = None) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}={_show(value)!r} must be a number") from None
-    if not math.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={_show(value)!r} must be a finite number > 0")
-    if upper is not None and v > upper:
-        raise ValueError(f"{name}={_show(value)!r} must be <= {upper:g}")
-    return v
-
-
-def _check_int(value: int, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, int | np.integer):
-        raise ValueError(f"{name}={_show(value)!r} must be an integer between {low} and {high}")
-    v = int(value)
-    if not low <= v <= high:
-        raise ValueError(f"{name}={_show(value)!r} must be between {low} and {high}")
-    return v
-
-
 def _check_family(
     family: str, ripple_db: float | None, stop_atten_db: float | None
 ) -> tuple[float | None, float | None]:
     if family not in ANALOG_FAMILIES:
         names = ", ".join(ANALOG_FAMILIES)
-        raise ValueError(f"family={_show(family)!r} must be one of {names}")
+        raise ValueError(f"family={show(family)} must be one of {names}")
     needs_ripple, needs_stop = ANALOG_FAMILIES[family]
     rp: float | None = None
     rs: float | None = None
     if needs_ripple:
         if ripple_db is None:
             raise ValueError(f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)")
-        rp = _check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
+        rp = check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
     elif ripple_db is not None:
         raise ValueError(
-            f"ripple_db={_show(ripple_db)!r} does not apply to a {family} filter; omit it"
+            f"ripple_db={show(ripple_db)} does not apply to a {family} filter; omit it"
         )
     if needs_stop:
         if stop_atten_db is None:
             raise ValueError(
                 f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)"
             )
-        rs = _check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
+        rs = check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
         if rp is not None and rs <= rp:
             raise ValueError(
-                f"stop_atten_db={_show(stop_atten_db)!r} must be > ripple_db={_show(ripple_db)!r}"
+                f"stop_atten_db={show(stop_atten_db)} must be > ripple_db={show(ripple_db)}"
             )
     elif stop_atten_db is not None:
         raise ValueError(
-            f"stop_atten_db={_show(stop_atten_db)!r} does not apply to a {family} filter; omit it"
+            f"stop_atten_db={show(stop_atten_db)} does not apply to a {family} filter; omit it"
         )
     return rp, rs
 
@@ -401,9 +363,9 @@ def analog_attenuation_db(
     .. [3] Paarmann, *Design and Analysis of Analog Filters*, 2001.
     """
     rp, rs = _check_family(family, ripple_db, stop_atten_db)
-    n = _check_int(order, "order", 1, _MAX_ORDER)
-    fc = _check_positive(cutoff_hz, "cutoff_hz")
-    f = _check_freqs(freq_hz)
+    n = check_int(order, "order", 1, _MAX_ORDER)
+    fc = check_positive(cutoff_hz, "cutoff_hz")
+    f = check_freqs(freq_hz)
     return _analog_unchecked(f, family, n, fc, rp, rs)
 
 
@@ -438,7 +400,7 @@ def table_attenuation_db(
     elliptic) should be measured far enough to show that floor.
     """
     fx, gy = _check_table(table_hz, table_gain_db)
-    f = _check_freqs(freq_hz)
+    f = check_freqs(freq_hz)
     return _table_unchecked(f, fx, gy)
 
 
@@ -481,9 +443,9 @@ def sensor_attenuation_db(freq_hz: ArrayLike, natural_hz: float, q: float) -> Fl
     ----------
     .. [4] Harris' Shock and Vibration Handbook, 5th ed., 2002, ch. 2 (from memory).
     """
-    fn = _check_positive(natural_hz, "natural_hz")
-    qq = _check_positive(q, "q", 1000.0)
-    f = _check_freqs(freq_hz)
+    fn = check_positive(natural_hz, "natural_hz")
+    qq = check_positive(q, "q", 1000.0)
+    f = check_freqs(freq_hz)
     return _sensor_unchecked(f, fn, qq)
 
 
@@ -532,20 +494,20 @@ def design_lowpass_fir(
     ----------
     .. [2] Kaiser, Proc. IEEE ISCAS, 1974.
     """
-    rate = _check_positive(rate_hz, "rate_hz")
-    fp = _check_positive(passband_hz, "passband_hz")
-    fstop = _check_positive(stopband_hz, "stopband_hz")
-    a = _check_positive(atten_db, "atten_db", _MAX_FIR_ATTEN_DB)
+    rate = check_positive(rate_hz, "rate_hz")
+    fp = check_positive(passband_hz, "passband_hz")
+    fstop = check_positive(stopband_hz, "stopband_hz")
+    a = check_positive(atten_db, "atten_db", _MAX_FIR_ATTEN_DB)
     if a < _MIN_FIR_ATTEN_DB:
-        raise ValueError(f"atten_db={_show(atten_db)!r} must be >= {_MIN_FIR_ATTEN_DB:g}")
+        raise ValueError(f"atten_db={show(atten_db)} must be >= {_MIN_FIR_ATTEN_DB:g}")
     if fp >= fstop:
         raise ValueError(
-            f"passband_hz={_show(passband_hz)!r} must be below stopband_hz={_show(stopband_hz)!r}"
+            f"passband_hz={show(passband_hz)} must be below stopband_hz={show(stopband_hz)}"
         )
     if fstop > rate / 2:
         raise ValueError(
-            f"stopband_hz={_show(stopband_hz)!r} must be <= the Nyquist frequency {rate / 2:g} Hz "
-            f"of rate_hz={_show(rate_hz)!r}"
+            f"stopband_hz={show(stopband_hz)} must be <= the Nyquist frequency {rate / 2:g} Hz "
+            f"of rate_hz={show(rate_hz)}"
         )
     return np.array(_kaiser_fir(rate, fp, fstop, a))
 
@@ -590,9 +552,9 @@ def decimation_filter(factor: int, kind: str = "fir") -> tuple[FloatArray, Float
     choice. The FIR is applied once either way.
     """
     if kind not in ("fir", "iir"):
-        raise ValueError(f"kind={_show(kind)!r} must be 'fir' or 'iir'")
+        raise ValueError(f"kind={show(kind)} must be 'fir' or 'iir'")
     high = _MAX_DECIMATION if kind == "fir" else _MAX_IIR_DECIMATION
-    m = _check_int(factor, "factor", 1, high)
+    m = check_int(factor, "factor", 1, high)
     b, a = _decimation_ba(m, kind)
     return np.array(b), np.array(a)
 
@@ -647,12 +609,12 @@ def digital_attenuation_db(
     ----------
     .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 5.3.
     """
-    rate = _check_positive(rate_hz, "rate_hz")
+    rate = check_positive(rate_hz, "rate_hz")
     bb = _check_coefficients(b, "b")
     aa = _check_coefficients(a, "a")
     if aa[0] == 0:
         raise ValueError("a[0]=0.0 must be non-zero")
-    f = _check_freqs(apparent_hz, "apparent_hz")
+    f = check_freqs(apparent_hz, "apparent_hz")
     if (f > rate / 2 * (1 + 1e-12)).any():
         bad = float(f[f > rate / 2 * (1 + 1e-12)].ravel()[0])
         raise ValueError(

@@ -29,6 +29,8 @@ import numpy as np
 import scipy.special
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import check_int, check_positive
+
 __all__ = [
     "BLIND_MAX_P_VALUE",
     "Family",
@@ -192,19 +194,6 @@ class Family:
 
 
 # --------------------------------------------------------------------------- checks
-
-
-def _check_positive(value: float, name: str) -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0")
-    return v
-
-
-def _check_int(value: int, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or int(value) != value or not low <= int(value) <= high:
-        raise ValueError(f"{name}={value!r} must be a whole number between {low} and {high}")
-    return int(value)
 
 
 def _check_peaks(
@@ -551,13 +540,37 @@ def find_families(
     peaks, then the lowest fundamental, is kept. The search is greedy: the best family's
     peaks are removed and the search repeats.
     """
-    fs = _check_positive(sample_rate_hz, "sample_rate_hz")
-    bw = _check_positive(bin_width_hz, "bin_width_hz")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    bw = check_positive(bin_width_hz, "bin_width_hz")
     f, a, _fl = _check_peaks(peaks_freq_hz, peaks_amplitude, floor, fs / 2.0)
-    kmax = _check_int(max_harmonic, "max_harmonic", 2, 200)
-    min_members = _check_int(min_members, "min_members", 2, 100)
-    max_families = _check_int(max_families, "max_families", 1, 50)
-    max_true = 10.0 * fs if max_true_hz is None else _check_positive(max_true_hz, "max_true_hz")
+    kmax = check_int(
+        max_harmonic,
+        "max_harmonic",
+        2,
+        200,
+        word="a whole number",
+        integral_floats=True,
+        one_message=True,
+    )
+    min_members = check_int(
+        min_members,
+        "min_members",
+        2,
+        100,
+        word="a whole number",
+        integral_floats=True,
+        one_message=True,
+    )
+    max_families = check_int(
+        max_families,
+        "max_families",
+        1,
+        50,
+        word="a whole number",
+        integral_floats=True,
+        one_message=True,
+    )
+    max_true = 10.0 * fs if max_true_hz is None else check_positive(max_true_hz, "max_true_hz")
     pv = float(max_p_value)
     if not np.isfinite(pv) or not 0 < pv < 1:
         raise ValueError(f"max_p_value={max_p_value!r} must be between 0 and 1 (exclusive)")

@@ -46,6 +46,8 @@ from service.core import filters as _flt
 from service.core.chain import AnalogLowpass, Chain, Sample, SensorResonance, Stage
 from service.core.tones import ToneSet
 
+from .checks import check_finite, check_int, check_positive
+
 __all__ = [
     "ANALYSER_RATES_HZ",
     "CONVERTER_RATES_HZ",
@@ -158,40 +160,13 @@ class PlanImpossible(ValueError):
 # --------------------------------------------------------------------------- checks
 
 
-def _check_finite(value: object, name: str) -> float:
-    if isinstance(value, bool):
-        raise ValueError(f"{name}={value!r} must be a number")
-    try:
-        v = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}={value!r} must be a number") from None
-    if not math.isfinite(v):
-        raise ValueError(f"{name}={value!r} must be a finite number")
-    return v
-
-
-def _check_positive(value: object, name: str, unit: str = "") -> float:
-    v = _check_finite(value, name)
-    if v <= 0:
-        raise ValueError(f"{name}={value!r} must be > 0{unit}")
-    return v
-
-
-def _check_int(value: object, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, int | np.integer):
-        raise ValueError(f"{name}={value!r} must be a whole number between {low} and {high}")
-    if not low <= int(value) <= high:
-        raise ValueError(f"{name}={value!r} must be between {low} and {high}")
-    return int(value)
-
-
 def _check_band(band_hz: object) -> tuple[float, float]:
     try:
         lo_raw, hi_raw = list(band_hz)  # type: ignore[call-overload]
     except (TypeError, ValueError):
         raise ValueError(f"band_hz={band_hz!r} must be two numbers (low, high) in Hz") from None
-    lo = _check_finite(lo_raw, "band_hz[0]")
-    hi = _check_finite(hi_raw, "band_hz[1]")
+    lo = check_finite(lo_raw, "band_hz[0]")
+    hi = check_finite(hi_raw, "band_hz[1]")
     if lo < 0:
         raise ValueError(f"band_hz[0]={lo_raw!r} must be >= 0 Hz")
     if hi <= lo:
@@ -206,8 +181,8 @@ def _check_speed_range(speed_range: object) -> tuple[float, float]:
         raise ValueError(
             f"speed_range={speed_range!r} must be two speed factors (min, max), 1 = nominal"
         ) from None
-    lo = _check_finite(lo_raw, "speed_range[0]")
-    hi = _check_finite(hi_raw, "speed_range[1]")
+    lo = check_finite(lo_raw, "speed_range[0]")
+    hi = check_finite(hi_raw, "speed_range[1]")
     if lo < 0:
         raise ValueError(f"speed_range[0]={lo_raw!r} must be >= 0 (a factor of nominal speed)")
     if hi < lo:
@@ -331,9 +306,13 @@ class FilterOption:
         if self.cutoff_hz is not None and self.cutoff_fraction is not None:
             raise ValueError("give cutoff_hz or cutoff_fraction, not both")
         if self.cutoff_hz is not None:
-            set_(self, "cutoff_hz", _check_positive(self.cutoff_hz, "cutoff_hz", " Hz"))
+            set_(
+                self,
+                "cutoff_hz",
+                check_positive(self.cutoff_hz, "cutoff_hz", unit=" Hz", separate=True),
+            )
         if self.cutoff_fraction is not None:
-            frac = _check_positive(self.cutoff_fraction, "cutoff_fraction")
+            frac = check_positive(self.cutoff_fraction, "cutoff_fraction", separate=True)
             if frac > 0.5:
                 raise ValueError(f"cutoff_fraction={frac!r} must be <= 0.5 (of the sample rate)")
             set_(self, "cutoff_fraction", frac)
@@ -358,7 +337,7 @@ class FilterOption:
             if self.ripple_db is not None or self.stop_atten_db is not None:
                 raise ValueError("family 'none' (no filter) takes no ripple_db or stop_atten_db")
             return
-        set_(self, "order", _check_int(self.order, "order", 1, 20))
+        set_(self, "order", check_int(self.order, "order", 1, 20, word="a whole number"))
         rp, rs = _flt._check_family(fam, self.ripple_db, self.stop_atten_db)
         set_(self, "ripple_db", rp)
         set_(self, "stop_atten_db", rs)
@@ -471,7 +450,7 @@ DEFAULT_FILTERS: tuple[FilterOption, ...] = (
 
 def speed_range_from_tolerance(tolerance_pct: float) -> tuple[float, float]:
     """Speed factors ``(1 - p/100, 1 + p/100)`` for a ± tolerance of ``p`` percent (0-99)."""
-    p = _check_finite(tolerance_pct, "tolerance_pct")
+    p = check_finite(tolerance_pct, "tolerance_pct")
     if not 0 <= p < 100:
         raise ValueError(f"tolerance_pct={tolerance_pct!r} must be between 0 and 99.99 %")
     return (1.0 - p / 100.0, 1.0 + p / 100.0)
@@ -571,10 +550,10 @@ def record_length(
     .. [4] Welch, *IEEE Trans. Audio Electroacoust.* 15(2), 1967.
     .. [5] Common practice.
     """
-    fs = _check_positive(sample_rate_hz, "sample_rate_hz", " Hz")
-    n_lines = _check_int(lines, "lines", 1, 1_048_576)
-    n_avg = _check_int(averages, "averages", 1, 100_000)
-    ov = _check_finite(overlap_pct, "overlap_pct")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz", unit=" Hz", separate=True)
+    n_lines = check_int(lines, "lines", 1, 1_048_576, word="a whole number")
+    n_avg = check_int(averages, "averages", 1, 100_000, word="a whole number")
+    ov = check_finite(overlap_pct, "overlap_pct")
     if not 0 <= ov < 100:
         raise ValueError(f"overlap_pct={overlap_pct!r} must be >= 0 and < 100")
     samples = round(SPAN_DIVISOR * n_lines)
@@ -872,7 +851,7 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
     tones = _check_tones(req.tones)
     band = _check_band(req.band_hz)
     s_lo, s_hi = _check_speed_range(req.speed_range)
-    n_speeds = _check_int(req.n_speeds, "n_speeds", 2, _MAX_SPEEDS)
+    n_speeds = check_int(req.n_speeds, "n_speeds", 2, _MAX_SPEEDS, word="a whole number")
     if (req.rejection_db is None) == (req.floor is None):
         raise ValueError(
             "give exactly one of rejection_db (dB below the strongest in-band "
@@ -886,7 +865,7 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
     known = np.isfinite(amp)
     assumed = ~known
     if req.floor is not None:
-        floor = _check_positive(req.floor, "floor")
+        floor = check_positive(req.floor, "floor", separate=True)
         if not known.any():
             raise ValueError(
                 "floor needs tone amplitudes: no tone has one; give amplitudes or use "
@@ -895,7 +874,7 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
         limit_db = 20.0 * math.log10(floor)
         reference_db = None
     else:
-        rej = _check_finite(req.rejection_db, "rejection_db")
+        rej = check_finite(req.rejection_db, "rejection_db")
         if not 0 <= rej <= 300:
             raise ValueError(f"rejection_db={req.rejection_db!r} must be between 0 and 300 dB")
         in_band = (fmax >= band[0]) & (fmin <= band[1])
@@ -1121,7 +1100,9 @@ def _check_rates(rates_hz: object, series: object) -> FloatArray:
         raise ValueError("rates_hz is empty; give at least one sample rate (Hz)")
     if len(vals) > _MAX_RATES:
         raise ValueError(f"rates_hz has {len(vals)} entries; at most {_MAX_RATES}")
-    out = [_check_positive(v, f"rates_hz[{i}]", " Hz") for i, v in enumerate(vals)]
+    out = [
+        check_positive(v, f"rates_hz[{i}]", unit=" Hz", separate=True) for i, v in enumerate(vals)
+    ]
     return np.unique(np.asarray(out, dtype=np.float64))
 
 
@@ -1152,7 +1133,12 @@ def _check_lines_options(options: object) -> tuple[int, ...]:
     if not vals:
         raise ValueError("lines_options is empty; give at least one number of lines")
     return tuple(
-        sorted({_check_int(v, f"lines_options[{i}]", 1, 1_048_576) for i, v in enumerate(vals)})
+        sorted(
+            {
+                check_int(v, f"lines_options[{i}]", 1, 1_048_576, word="a whole number")
+                for i, v in enumerate(vals)
+            }
+        )
     )
 
 
@@ -1161,7 +1147,7 @@ def _required_bin(req: PlanRequest, prob: _Problem, mainlobe: float) -> tuple[fl
     need: float | None = None
     why = ""
     if req.bin_width_hz is not None:
-        need = _check_positive(req.bin_width_hz, "bin_width_hz", " Hz")
+        need = check_positive(req.bin_width_hz, "bin_width_hz", unit=" Hz", separate=True)
         why = f"the requested {_hz(need)} bins"
     if req.resolve is not None:
         try:
@@ -1230,13 +1216,13 @@ class _Context:
         self.filters = _check_filters(req.filters)
         self.lines_options = _check_lines_options(req.lines_options)
         record_length(1000.0, 100, req.averages, req.overlap_pct)  # validates both
-        self.max_loss = _check_finite(req.max_band_loss_db, "max_band_loss_db")
+        self.max_loss = check_finite(req.max_band_loss_db, "max_band_loss_db")
         if self.max_loss < 0:
             raise ValueError(f"max_band_loss_db={req.max_band_loss_db!r} must be >= 0 dB")
         self.rpm = (
             None
             if req.nominal_rpm is None
-            else _check_positive(req.nominal_rpm, "nominal_rpm", " rpm")
+            else check_positive(req.nominal_rpm, "nominal_rpm", unit=" rpm", separate=True)
         )
         self.required_bin, self.bin_why = _required_bin(req, self.prob, self.mainlobe)
 
@@ -1896,7 +1882,11 @@ def run_up(
     tones = _check_tones(tones)
     if not isinstance(chain, Chain):
         raise ValueError(f"chain must be a Chain, got {type(chain).__name__}")
-    n_rpm = None if nominal_rpm is None else _check_positive(nominal_rpm, "nominal_rpm", " rpm")
+    n_rpm = (
+        None
+        if nominal_rpm is None
+        else check_positive(nominal_rpm, "nominal_rpm", unit=" rpm", separate=True)
+    )
     if (speed_factors is None) == (rpm is None):
         raise ValueError("give exactly one of speed_factors and rpm")
     if rpm is not None:
@@ -1916,11 +1906,11 @@ def run_up(
         raise ValueError(f"{gname}[{i}] is not above {gname}[{i - 1}]; the grid must increase")
     fs = chain.final_rate_hz
     band = (0.0, fs / SPAN_DIVISOR) if band_hz is None else _check_band(band_hz)
-    n_lines = _check_int(lines, "lines", 1, 1_048_576)
+    n_lines = check_int(lines, "lines", 1, 1_048_576, word="a whole number")
     tol = (
         fs / (SPAN_DIVISOR * n_lines)
         if tolerance_hz is None
-        else _check_positive(tolerance_hz, "tolerance_hz", " Hz")
+        else check_positive(tolerance_hz, "tolerance_hz", unit=" Hz", separate=True)
     )
 
     # Lines: the tones, then numeric orders of interest.
@@ -1931,7 +1921,7 @@ def run_up(
         if isinstance(item, str):
             interest.append(_find_tone(tones, item, f"orders_of_interest[{j}]"))
         else:
-            order = _check_positive(item, f"orders_of_interest[{j}]")
+            order = check_positive(item, f"orders_of_interest[{j}]", separate=True)
             if n_rpm is None:
                 raise ValueError(
                     f"orders_of_interest[{j}]={item!r} is a numeric order; it needs nominal_rpm"

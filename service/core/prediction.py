@@ -14,6 +14,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .chain import Chain, ChainResponse
+from .checks import check_int, check_range
 from .folding import fold_intervals
 from .tones import ToneSet
 
@@ -85,21 +86,6 @@ def _check_band(band_hz: tuple[float, float] | None, nyquist: float) -> tuple[fl
     return (lo, hi)
 
 
-def _check_lines(lines: int | None) -> int:
-    if lines is None:
-        return DEFAULT_LINES
-    if int(lines) != lines or not 1 <= lines <= 1_048_576:
-        raise ValueError(f"lines={lines!r} must be a whole number between 1 and 1048576")
-    return int(lines)
-
-
-def _check_tolerance(pct: float) -> float:
-    p = float(pct)
-    if not np.isfinite(p) or not 0 <= p <= 50:
-        raise ValueError(f"speed_tolerance_pct={pct!r} must be between 0 and 50")
-    return p
-
-
 def predict(
     tones: ToneSet,
     chain: Chain,
@@ -132,8 +118,20 @@ def predict(
     Prediction
     """
     notes = tuple(chain.validate())
-    n_lines = _check_lines(lines)
-    tol = _check_tolerance(speed_tolerance_pct)
+    n_lines = (
+        DEFAULT_LINES
+        if lines is None
+        else check_int(
+            lines,
+            "lines",
+            1,
+            1_048_576,
+            word="a whole number",
+            integral_floats=True,
+            one_message=True,
+        )
+    )
+    tol = check_range(speed_tolerance_pct, "speed_tolerance_pct", 0, 50)
     if not np.isfinite(collision_bins) or collision_bins <= 0:
         raise ValueError(f"collision_bins={collision_bins!r} must be > 0")
     response = chain.evaluate(tones.freq_hz)

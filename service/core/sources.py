@@ -37,6 +37,8 @@ from numpy.typing import ArrayLike, NDArray
 
 from service.core.tones import ToneSet
 
+from .checks import check_int, check_positive
+
 __all__ = [
     "BEARING_DEFECTS",
     "SOURCE_TYPES",
@@ -104,25 +106,6 @@ def _as_float(value: object, name: str) -> float:
     return float(value)
 
 
-def _check_positive(value: object, name: str, upper: float | None = None) -> float:
-    x = _as_float(value, name)
-    if not math.isfinite(x) or x <= 0:
-        raise ValueError(f"{name}={_r(value)} must be a finite number > 0")
-    if upper is not None and x > upper:
-        raise ValueError(f"{name}={_r(value)} must be at most {upper:g}")
-    return x
-
-
-def _check_int(value: object, name: str, low: int, high: int) -> int:
-    msg = f"{name}={_r(value)} must be an integer between {low} and {high}"
-    if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-        raise ValueError(msg)
-    x = float(value)
-    if not math.isfinite(x) or x != round(x) or not low <= x <= high:
-        raise ValueError(msg)
-    return int(x)
-
-
 def _check_amplitude(value: object, name: str = "amplitude") -> float | None:
     """A linear amplitude >= 0, or None (unknown; NaN also means unknown)."""
     if value is None:
@@ -167,10 +150,6 @@ def _as_sequence(values: object, name: str) -> list[Any]:
     if isinstance(values, str | bytes | Mapping) or not isinstance(values, Sequence | np.ndarray):
         raise ValueError(f"{name}={_r(values)} must be a list of values")
     return list(values)
-
-
-def _check_speed_hz(value: object, name: str = "speed_hz") -> float:
-    return _check_positive(value, name)
 
 
 def _fmt(x: float) -> str:
@@ -226,8 +205,10 @@ def fundamental_from_shaft(speed_hz: float, pole_pairs: int) -> float:
     Standard relation for a synchronous (e.g. permanent-magnet) machine; for an
     induction machine the slip makes ``f1`` slightly higher than this.
     """
-    fr = _check_speed_hz(speed_hz)
-    p = _check_int(pole_pairs, "pole_pairs", 1, MAX_POLE_PAIRS)
+    fr = check_positive(speed_hz, "speed_hz", cut=80)
+    p = check_int(
+        pole_pairs, "pole_pairs", 1, MAX_POLE_PAIRS, integral_floats=True, one_message=True, cut=80
+    )
     return p * fr
 
 
@@ -289,9 +270,11 @@ def bearing_multiples(
 def _check_bearing(
     n_elements: object, element_diameter: object, pitch_diameter: object, angle: object
 ) -> tuple[int, float, float, float]:
-    n = _check_int(n_elements, "n_elements", 3, MAX_ELEMENTS)
-    d = _check_positive(element_diameter, "element_diameter")
-    big_d = _check_positive(pitch_diameter, "pitch_diameter")
+    n = check_int(
+        n_elements, "n_elements", 3, MAX_ELEMENTS, integral_floats=True, one_message=True, cut=80
+    )
+    d = check_positive(element_diameter, "element_diameter", cut=80)
+    big_d = check_positive(pitch_diameter, "pitch_diameter", cut=80)
     if d >= big_d:
         raise ValueError(
             f"element_diameter={_r(element_diameter)} must be less than "
@@ -393,11 +376,14 @@ class Shaft(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "speed_hz", _check_speed_hz(self.speed_hz))
+        set_(self, "speed_hz", check_positive(self.speed_hz, "speed_hz", cut=80))
         seq = _as_sequence(self.orders, "orders")
         if not 1 <= len(seq) <= MAX_ORDERS:
             raise ValueError(f"orders has {len(seq)} entries; must have between 1 and {MAX_ORDERS}")
-        orders = tuple(_check_positive(o, f"orders[{i}]", MAX_ORDER) for i, o in enumerate(seq))
+        orders = tuple(
+            check_positive(o, f"orders[{i}]", MAX_ORDER, upper_words="at most", cut=80)
+            for i, o in enumerate(seq)
+        )
         if len(set(orders)) != len(orders):
             dup = next(o for o in orders if orders.count(o) > 1)
             raise ValueError(f"orders lists {_fmt(dup)} more than once")
@@ -478,12 +464,46 @@ class GearMesh(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "speed_hz", _check_speed_hz(self.speed_hz))
-        set_(self, "teeth", _check_int(self.teeth, "teeth", 1, MAX_TEETH))
-        set_(self, "harmonics", _check_int(self.harmonics, "harmonics", 1, MAX_HARMONICS))
-        set_(self, "sidebands", _check_int(self.sidebands, "sidebands", 0, MAX_SIDEBANDS))
+        set_(self, "speed_hz", check_positive(self.speed_hz, "speed_hz", cut=80))
+        set_(
+            self,
+            "teeth",
+            check_int(
+                self.teeth, "teeth", 1, MAX_TEETH, integral_floats=True, one_message=True, cut=80
+            ),
+        )
+        set_(
+            self,
+            "harmonics",
+            check_int(
+                self.harmonics,
+                "harmonics",
+                1,
+                MAX_HARMONICS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            ),
+        )
+        set_(
+            self,
+            "sidebands",
+            check_int(
+                self.sidebands,
+                "sidebands",
+                0,
+                MAX_SIDEBANDS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            ),
+        )
         if self.mating_speed_hz is not None:
-            set_(self, "mating_speed_hz", _check_speed_hz(self.mating_speed_hz, "mating_speed_hz"))
+            set_(
+                self,
+                "mating_speed_hz",
+                check_positive(self.mating_speed_hz, "mating_speed_hz", cut=80),
+            )
         set_(self, "amplitude", _check_amplitude(self.amplitude))
         _check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
         set_(
@@ -596,7 +616,7 @@ class Bearing(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "speed_hz", _check_speed_hz(self.speed_hz))
+        set_(self, "speed_hz", check_positive(self.speed_hz, "speed_hz", cut=80))
         n, d, big_d, phi = _check_bearing(
             self.n_elements, self.element_diameter, self.pitch_diameter, self.contact_angle_deg
         )
@@ -604,7 +624,19 @@ class Bearing(_Expandable):
         set_(self, "element_diameter", d)
         set_(self, "pitch_diameter", big_d)
         set_(self, "contact_angle_deg", phi)
-        set_(self, "harmonics", _check_int(self.harmonics, "harmonics", 1, MAX_HARMONICS))
+        set_(
+            self,
+            "harmonics",
+            check_int(
+                self.harmonics,
+                "harmonics",
+                1,
+                MAX_HARMONICS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            ),
+        )
         seq = _as_sequence(self.defects, "defects")
         wanted = [str(x).upper() if isinstance(x, str) else x for x in seq]
         for i, x in enumerate(wanted):
@@ -692,9 +724,27 @@ class BladePass(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "speed_hz", _check_speed_hz(self.speed_hz))
-        set_(self, "blades", _check_int(self.blades, "blades", 1, MAX_BLADES))
-        set_(self, "harmonics", _check_int(self.harmonics, "harmonics", 1, MAX_HARMONICS))
+        set_(self, "speed_hz", check_positive(self.speed_hz, "speed_hz", cut=80))
+        set_(
+            self,
+            "blades",
+            check_int(
+                self.blades, "blades", 1, MAX_BLADES, integral_floats=True, one_message=True, cut=80
+            ),
+        )
+        set_(
+            self,
+            "harmonics",
+            check_int(
+                self.harmonics,
+                "harmonics",
+                1,
+                MAX_HARMONICS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            ),
+        )
         set_(self, "amplitude", _check_amplitude(self.amplitude))
         _check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
         set_(
@@ -751,9 +801,17 @@ class LineHarmonics(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "line_hz", _check_positive(self.line_hz, "line_hz"))
+        set_(self, "line_hz", check_positive(self.line_hz, "line_hz", cut=80))
         if isinstance(self.harmonics, int | np.integer) and not isinstance(self.harmonics, bool):
-            count = _check_int(self.harmonics, "harmonics", 1, MAX_HARMONICS)
+            count = check_int(
+                self.harmonics,
+                "harmonics",
+                1,
+                MAX_HARMONICS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            )
             harm: tuple[int, ...] = tuple(range(1, count + 1))
         else:
             seq = _as_sequence(self.harmonics, "harmonics")
@@ -762,7 +820,16 @@ class LineHarmonics(_Expandable):
                     f"harmonics has {len(seq)} entries; must have between 1 and {MAX_HARMONICS}"
                 )
             harm = tuple(
-                _check_int(v, f"harmonics[{i}]", 1, MAX_HARMONICS) for i, v in enumerate(seq)
+                check_int(
+                    v,
+                    f"harmonics[{i}]",
+                    1,
+                    MAX_HARMONICS,
+                    integral_floats=True,
+                    one_message=True,
+                    cut=80,
+                )
+                for i, v in enumerate(seq)
             )
             if len(set(harm)) != len(harm):
                 dup = next(v for v in harm if harm.count(v) > 1)
@@ -849,14 +916,34 @@ class PwmCarrier(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "carrier_hz", _check_positive(self.carrier_hz, "carrier_hz"))
-        set_(self, "fundamental_hz", _check_positive(self.fundamental_hz, "fundamental_hz"))
+        set_(self, "carrier_hz", check_positive(self.carrier_hz, "carrier_hz", cut=80))
+        set_(self, "fundamental_hz", check_positive(self.fundamental_hz, "fundamental_hz", cut=80))
         set_(
             self,
             "carrier_multiples",
-            _check_int(self.carrier_multiples, "carrier_multiples", 1, MAX_HARMONICS),
+            check_int(
+                self.carrier_multiples,
+                "carrier_multiples",
+                1,
+                MAX_HARMONICS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            ),
         )
-        set_(self, "sidebands", _check_int(self.sidebands, "sidebands", 0, MAX_SIDEBANDS))
+        set_(
+            self,
+            "sidebands",
+            check_int(
+                self.sidebands,
+                "sidebands",
+                0,
+                MAX_SIDEBANDS,
+                integral_floats=True,
+                one_message=True,
+                cut=80,
+            ),
+        )
         if not isinstance(self.line_to_line, bool | np.bool_):
             raise ValueError(f"line_to_line={_r(self.line_to_line)} must be true or false")
         set_(self, "line_to_line", bool(self.line_to_line))
@@ -941,7 +1028,7 @@ class Resonance(_Expandable):
     def __post_init__(self) -> None:
         set_ = object.__setattr__
         set_(self, "label", _check_label(self.label))
-        set_(self, "freq_hz", _check_positive(self.freq_hz, "freq_hz"))
+        set_(self, "freq_hz", check_positive(self.freq_hz, "freq_hz", cut=80))
         set_(self, "amplitude", _check_amplitude(self.amplitude))
 
     def expand(self) -> ToneSet:
@@ -1122,7 +1209,7 @@ def _pop_speed(d: dict[str, Any], prefix: str, type_name: str, required: bool) -
     unit = given[0]
     key = f"{prefix}_{unit}"
     value = d.pop(key)
-    _check_positive(value, key)
+    check_positive(value, key, cut=80)
     return speed_to_hz(value, unit)
 
 

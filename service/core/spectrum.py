@@ -34,6 +34,8 @@ import scipy.ndimage
 import scipy.signal
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import check_finite_array, check_int, check_one_of, check_positive, check_range
+
 __all__ = [
     "USUAL_LINES",
     "WINDOWS",
@@ -72,49 +74,6 @@ _TABLE_PAD = 512  # zero padding: table resolution 1/512 bin
 
 
 # --------------------------------------------------------------------------- checks
-
-
-def _check_window(window: str, name: str = "window", allow_unknown: bool = False) -> str:
-    allowed = sorted(WINDOWS) + (["unknown"] if allow_unknown else [])
-    if not isinstance(window, str) or window.lower() not in allowed:
-        raise ValueError(f"{name}={window!r} must be one of {', '.join(allowed)}")
-    return window.lower()
-
-
-def _check_positive(value: float, name: str, unit: str = "") -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0{unit}")
-    return v
-
-
-def _check_range(value: float, name: str, low: float, high: float, unit: str = "") -> float:
-    v = float(value)
-    if not np.isfinite(v) or not low <= v <= high:
-        raise ValueError(f"{name}={value!r} must be between {low:g} and {high:g}{unit}")
-    return v
-
-
-def _check_int(value: int, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or int(value) != value:
-        raise ValueError(f"{name}={value!r} must be a whole number")
-    v = int(value)
-    if not low <= v <= high:
-        raise ValueError(f"{name}={value!r} must be between {low} and {high}")
-    return v
-
-
-def _check_spectrum_array(values: ArrayLike, name: str, min_len: int = 1) -> FloatArray:
-    a = np.asarray(values, dtype=np.float64)
-    if a.ndim != 1:
-        raise ValueError(f"{name} must be 1-D; got shape {a.shape}")
-    if a.size < min_len:
-        raise ValueError(f"{name} has {a.size} values; at least {min_len} are needed")
-    bad = ~np.isfinite(a)
-    if np.any(bad):
-        i = int(np.argmax(bad))
-        raise ValueError(f"{name}[{i}]={float(a[i])!r}; every value must be finite")
-    return a
 
 
 def _tiny(amplitude: FloatArray) -> float:
@@ -168,8 +127,8 @@ def window_figures(name: str, n: int = 4096) -> dict[str, float]:
     ----------
     .. [1] Harris, *Proc. IEEE* 66(1), 1978, sec. IV and Table 1.
     """
-    name = _check_window(name, "name")
-    n = _check_int(n, "n", 16, 2**20)
+    name = check_one_of(name, "name", sorted(WINDOWS))
+    n = check_int(n, "n", 16, 2**20, type_text="a whole number", integral_floats=True)
     w = _window(name, n)
     s1 = float(np.sum(w))
     s2 = float(np.sum(w * w))
@@ -331,12 +290,14 @@ def amplitude_spectrum(
         raise ValueError(f"samples must be 1-D; got shape {x.shape}")
     if x.dtype not in (np.float32, np.float64):
         x = x.astype(np.float64)
-    fs = _check_positive(sample_rate_hz, "sample_rate_hz", " Hz")
-    window = _check_window(window)
-    overlap_pct = _check_range(overlap_pct, "overlap_pct", 0.0, 95.0, " %")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz", unit=" Hz")
+    window = check_one_of(window, "window", sorted(WINDOWS))
+    overlap_pct = check_range(overlap_pct, "overlap_pct", 0.0, 95.0, unit=" %")
     n = x.size
     if averages is not None:
-        averages = _check_int(averages, "averages", 1, 1_000_000)
+        averages = check_int(
+            averages, "averages", 1, 1_000_000, type_text="a whole number", integral_floats=True
+        )
     want = averages if averages is not None else _DEFAULT_MIN_AVERAGES
 
     if lines is None:
@@ -359,7 +320,9 @@ def amplitude_spectrum(
         ]
         lines_req, nfft = (enough or fits)[-1]
     else:
-        lines_req = _check_int(lines, "lines", 1, USUAL_LINES[-1])
+        lines_req = check_int(
+            lines, "lines", 1, USUAL_LINES[-1], type_text="a whole number", integral_floats=True
+        )
         nfft = _nfft_for_lines(lines_req)
         if nfft > n:
             raise ValueError(
@@ -439,7 +402,7 @@ def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArr
     power-averaged spectrum the median sits slightly below the mean level (by about
     1.6 dB for a single average, less with more averages: chi-square statistics).
     """
-    amp = _check_spectrum_array(amplitude, "amplitude")
+    amp = check_finite_array(amplitude, "amplitude")
     if np.any(amp < 0):
         i = int(np.argmax(amp < 0))
         raise ValueError(f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0")
@@ -447,7 +410,9 @@ def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArr
     if width_bins is None:
         width = n if n < 31 else int(np.clip(n // 64, 31, 1025))
     else:
-        width = _check_int(width_bins, "width_bins", 3, 1_000_001)
+        width = check_int(
+            width_bins, "width_bins", 3, 1_000_001, type_text="a whole number", integral_floats=True
+        )
     width = min(width | 1, n | 1)
     tiny = _tiny(amp)
     db = _db(amp, tiny)
@@ -559,8 +524,8 @@ def find_peaks(
        spectral peaks".
     .. [2] Grandke, *IEEE Trans. Instrum. Meas.* 32(2), 1983.
     """
-    f = _check_spectrum_array(freq_hz, "freq_hz", min_len=3)
-    amp = _check_spectrum_array(amplitude, "amplitude", min_len=3)
+    f = check_finite_array(freq_hz, "freq_hz", min_len=3)
+    amp = check_finite_array(amplitude, "amplitude", min_len=3)
     if amp.size != f.size:
         raise ValueError(f"amplitude has {amp.size} values but freq_hz has {f.size}")
     if np.any(amp < 0):
@@ -573,14 +538,16 @@ def find_peaks(
             f"freq_hz[{i}]={float(f[i])!r} does not exceed freq_hz[{i - 1}]={float(f[i - 1])!r}; "
             "frequencies must increase"
         )
-    threshold_db = _check_range(threshold_db, "threshold_db", 0.0, 200.0, " dB")
-    prominence_db = _check_range(prominence_db, "prominence_db", 0.0, 200.0, " dB")
-    window = _check_window(window, allow_unknown=True)
-    max_peaks = _check_int(max_peaks, "max_peaks", 1, 1_000_000)
+    threshold_db = check_range(threshold_db, "threshold_db", 0.0, 200.0, unit=" dB")
+    prominence_db = check_range(prominence_db, "prominence_db", 0.0, 200.0, unit=" dB")
+    window = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
+    max_peaks = check_int(
+        max_peaks, "max_peaks", 1, 1_000_000, type_text="a whole number", integral_floats=True
+    )
     if floor is None:
         fl = noise_floor(amp)
     else:
-        fl = _check_spectrum_array(
+        fl = check_finite_array(
             np.broadcast_to(np.asarray(floor, float), amp.shape) if np.ndim(floor) == 0 else floor,
             "floor",
         )
@@ -654,7 +621,7 @@ def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
     reference keeps every value positive (dB SPL re 20 µPa, dBµV), so the caller should
     let the user override the guess, e.g. from a column header.
     """
-    a = _check_spectrum_array(amplitude, "amplitude")
+    a = check_finite_array(amplitude, "amplitude")
     neg = int(np.count_nonzero(a < 0))
     if neg:
         return (
@@ -686,7 +653,7 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     ndarray
         Linear amplitudes.
     """
-    v = _check_spectrum_array(values, "values")
+    v = check_finite_array(values, "values")
     u = unit.lower() if isinstance(unit, str) else unit
     if u == "db":
         out: FloatArray = 10.0 ** (v / 20.0)
