@@ -31,6 +31,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .chain import Chain, ChainResponse
 from .checks import check_one_of, check_positive, check_range
+from .errors import InputError
 from .folding import fold_intervals
 from .harmonics import (
     MAX_SOURCE_EXCESS_DB,
@@ -251,9 +252,19 @@ def _check_band(band_hz: tuple[float, float] | None, edge: float) -> tuple[float
     try:
         lo, hi = (float(v) for v in band_hz)
     except (TypeError, ValueError):
-        raise ValueError(f"band_hz={band_hz!r} must be two numbers (low, high) in Hz") from None
+        raise InputError(
+            f"band_hz={band_hz!r} must be two numbers (low, high) in Hz",
+            field="band_hz",
+            code="bad_type",
+            value=band_hz,
+        ) from None
     if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
-        raise ValueError(f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high")
+        raise InputError(
+            f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high",
+            field="band_hz",
+            code="bad_type",
+            value=[lo, hi],
+        )
     return (lo, hi)
 
 
@@ -487,17 +498,34 @@ def attribute(
         or int(max_alternatives) != max_alternatives
         or not (1 <= int(max_alternatives) <= 20)
     ):
-        raise ValueError(f"max_alternatives={max_alternatives!r} must be between 1 and 20")
+        raise InputError(
+            f"max_alternatives={max_alternatives!r} must be between 1 and 20",
+            field="max_alternatives",
+            code="out_of_range",
+            value=max_alternatives,
+        )
     n_alt = int(max_alternatives)
     if tones is not None and not isinstance(tones, ToneSet):
-        raise ValueError(f"tones must be a ToneSet or None, got {type(tones).__name__}")
+        raise InputError(
+            f"tones must be a ToneSet or None, got {type(tones).__name__}",
+            field="tones",
+            code="bad_type",
+        )
     fams = list(families or [])
     for i, fam in enumerate(fams):
         if not isinstance(fam, Family):
-            raise ValueError(f"families[{i}] is a {type(fam).__name__}; expected a Family")
+            raise InputError(
+                f"families[{i}] is a {type(fam).__name__}; expected a Family",
+                field=f"families[{i}]",
+                code="bad_type",
+            )
         bad = [m.peak for m in fam.members if not 0 <= m.peak < freq.size]
         if bad:
-            raise ValueError(f"families[{i}] refers to peak {bad[0]}; there are {freq.size} peaks")
+            raise InputError(
+                f"families[{i}] refers to peak {bad[0]}; there are {freq.size} peaks",
+                field=f"families[{i}]",
+                code="out_of_range",
+            )
 
     speed_tol = check_range(speed_tolerance_pct, "speed_tolerance_pct", 0, 50)
     tol = frequency_tolerance_hz(bw, window)

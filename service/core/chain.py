@@ -34,6 +34,8 @@ from service.core import filters as _flt
 from service.core.checks import bad, check_finite, check_freqs, check_int, show
 from service.core.folding import _fold_unchecked, _zone_unchecked, check_fold_range
 
+from .errors import InputError
+
 __all__ = [
     "AnalogLowpass",
     "Chain",
@@ -79,9 +81,18 @@ def _as_floats(values: Any, name: str) -> tuple[float, ...]:
     try:
         arr = np.atleast_1d(np.asarray(values, dtype=np.float64))
     except (TypeError, ValueError):
-        raise ValueError(f"{name}={values!r} must be a sequence of numbers") from None
+        raise InputError(
+            f"{name}={values!r} must be a sequence of numbers",
+            field=name,
+            code="bad_type",
+            value=values,
+        ) from None
     if arr.ndim != 1:
-        raise ValueError(f"{name} must be a flat sequence of numbers, got shape {arr.shape}")
+        raise InputError(
+            f"{name} must be a flat sequence of numbers, got shape {arr.shape}",
+            field=name,
+            code="bad_type",
+        )
     return tuple(float(v) for v in arr)
 
 
@@ -192,13 +203,19 @@ class AnalogLowpass:
         ]
         table = [n for n in ("table_hz", "table_gain_db") if getattr(self, n) is not None]
         if design and table:
-            raise ValueError(
+            raise InputError(
                 f"give either a filter design (family, order, cutoff_hz) or a measured "
-                f"table (table_hz, table_gain_db), not both: got {', '.join(design + table)}"
+                f"table (table_hz, table_gain_db), not both: got {', '.join(design + table)}",
+                field=None,
+                code="conflict",
             )
         if table:
             if len(table) != 2:
-                raise ValueError("a measured table needs both table_hz and table_gain_db")
+                raise InputError(
+                    "a measured table needs both table_hz and table_gain_db",
+                    field="table_gain_db" if self.table_gain_db is None else "table_hz",
+                    code="missing",
+                )
             fx = _as_floats(self.table_hz, "table_hz")
             gy = _as_floats(self.table_gain_db, "table_gain_db")
             _flt._check_table(fx, gy)
@@ -206,9 +223,11 @@ class AnalogLowpass:
             set_(self, "table_gain_db", gy)
             return
         if self.family is None or self.order is None or self.cutoff_hz is None:
-            raise ValueError(
+            raise InputError(
                 "an analog low-pass needs family, order and cutoff_hz (or a measured "
-                "table_hz + table_gain_db)"
+                "table_hz + table_gain_db)",
+                field=None,
+                code="missing",
             )
         rp, rs = _flt._check_family(self.family, self.ripple_db, self.stop_atten_db)
         set_(self, "order", check_int(self.order, "order", 1, 20))
@@ -306,40 +325,55 @@ class DigitalLowpass:
         ]
         coef = [n for n in ("b", "a") if getattr(self, n) is not None]
         if spec and coef:
-            raise ValueError(
+            raise InputError(
                 "give either a spec (passband_hz, stopband_hz, atten_db) or coefficients "
-                f"(b, a), not both: got {', '.join(spec + coef)}"
+                f"(b, a), not both: got {', '.join(spec + coef)}",
+                field=None,
+                code="conflict",
             )
         if coef:
             if self.b is None:
-                raise ValueError("explicit coefficients need b (a defaults to (1.0,))")
+                raise InputError(
+                    "explicit coefficients need b (a defaults to (1.0,))",
+                    field="b",
+                    code="missing",
+                )
             b = _as_floats(self.b, "b")
             a = _as_floats(self.a if self.a is not None else (1.0,), "a")
             _flt._check_coefficients(b, "b")
             _flt._check_coefficients(a, "a")
             if a[0] == 0:
-                raise ValueError(f"a[0]={a[0]!r} must be non-zero")
+                raise InputError(
+                    f"a[0]={a[0]!r} must be non-zero", field="a[0]", code="invalid", value=a[0]
+                )
             if len(a) > 1:
                 radius = float(np.max(np.abs(np.roots(a))))
                 if radius >= 1.0:
-                    raise ValueError(
+                    raise InputError(
                         f"a={a!r} has a pole at radius {radius:.6g}; an IIR filter must be "
-                        "stable (all poles inside the unit circle, radius < 1)"
+                        "stable (all poles inside the unit circle, radius < 1)",
+                        field="a",
+                        code="unstable",
                     )
             set_(self, "b", b)
             set_(self, "a", a)
             return
         if len(spec) != 3:
-            raise ValueError(
+            raise InputError(
                 "a digital low-pass needs passband_hz, stopband_hz and atten_db (or "
-                "explicit coefficients b, a)"
+                "explicit coefficients b, a)",
+                field=None,
+                code="missing",
             )
         fp = _check_number(self.passband_hz, "passband_hz")
         fstop = _check_number(self.stopband_hz, "stopband_hz")
         att = _check_number(self.atten_db, "atten_db", low=10.0, strict=False, high=200.0)
         if fp >= fstop:
-            raise ValueError(
-                f"passband_hz={self.passband_hz!r} must be below stopband_hz={self.stopband_hz!r}"
+            raise InputError(
+                f"passband_hz={self.passband_hz!r} must be below stopband_hz={self.stopband_hz!r}",
+                field="passband_hz",
+                code="below_limit",
+                value=self.passband_hz,
             )
         set_(self, "passband_hz", fp)
         set_(self, "stopband_hz", fstop)
@@ -394,7 +428,12 @@ class Decimate:
 
     def __post_init__(self) -> None:
         if self.filter not in _DECIMATE_FILTERS:
-            raise ValueError(f"filter={show(self.filter)} must be one of 'fir', 'iir', 'none'")
+            raise InputError(
+                f"filter={show(self.filter)} must be one of 'fir', 'iir', 'none'",
+                field="filter",
+                code="not_allowed",
+                value=self.filter,
+            )
         high = 13 if self.filter == "iir" else _MAX_DECIMATION
         factor = check_int(self.factor, "factor", 1, high)
         object.__setattr__(self, "factor", factor)
@@ -498,9 +537,12 @@ class Chain:
         stages = tuple(self.stages)
         for i, st in enumerate(stages):
             if not isinstance(st, _STAGE_TYPES):
-                raise ValueError(
+                raise InputError(
                     f"stages[{i}]={st!r} is not a chain stage (SensorResonance, "
-                    "AnalogLowpass, Sample, DigitalLowpass or Decimate)"
+                    "AnalogLowpass, Sample, DigitalLowpass or Decimate)",
+                    field=f"stages[{i}]",
+                    code="bad_type",
+                    value=st,
                 )
         object.__setattr__(self, "stages", stages)
         object.__setattr__(self, "_plan", _analyse(stages))
@@ -511,7 +553,12 @@ class Chain:
         stages: tuple[Stage, ...] = (Sample(sample_rate_hz),)
         if anti_alias is not None:
             if not isinstance(anti_alias, AnalogLowpass):
-                raise ValueError(f"anti_alias={anti_alias!r} must be an AnalogLowpass or None")
+                raise InputError(
+                    f"anti_alias={anti_alias!r} must be an AnalogLowpass or None",
+                    field="anti_alias",
+                    code="bad_type",
+                    value=anti_alias,
+                )
             stages = (anti_alias, *stages)
         return cls(stages)
 
@@ -589,7 +636,11 @@ class Chain:
         """
         f = check_freqs(freq_hz)
         if f.ndim > 1:
-            raise ValueError(f"freq_hz must be a scalar or 1-D, got shape {f.shape}")
+            raise InputError(
+                f"freq_hz must be a scalar or 1-D, got shape {f.shape}",
+                field="freq_hz",
+                code="bad_type",
+            )
         f = np.atleast_1d(f)
         n = f.size
         plan = self._plan
@@ -707,23 +758,33 @@ def _digital(
 def _analyse(stages: tuple[Stage, ...]) -> _Plan:
     sample_at = [i for i, st in enumerate(stages) if isinstance(st, Sample)]
     if not sample_at:
-        raise ValueError("the chain has no Sample stage; add the converter's sample rate")
+        raise InputError(
+            "the chain has no Sample stage; add the converter's sample rate",
+            field="stages",
+            code="missing",
+        )
     if len(sample_at) > 1:
-        raise ValueError(
+        raise InputError(
             f"the chain has {len(sample_at)} Sample stages (at positions {sample_at}); "
-            "exactly one is allowed"
+            "exactly one is allowed",
+            field="stages",
+            code="conflict",
         )
     s_idx = sample_at[0]
     for i, st in enumerate(stages):
         if i < s_idx and isinstance(st, DigitalLowpass | Decimate):
-            raise ValueError(
+            raise InputError(
                 f"stages[{i}] ({st.kind}) comes before the Sample stage at position {s_idx}; "
-                "digital stages act on samples and must follow it"
+                "digital stages act on samples and must follow it",
+                field=f"stages[{i}]",
+                code="bad_order",
             )
         if i > s_idx and isinstance(st, SensorResonance | AnalogLowpass):
-            raise ValueError(
+            raise InputError(
                 f"stages[{i}] ({st.kind}) comes after the Sample stage at position {s_idx}; "
-                "analog stages must precede the converter"
+                "analog stages must precede the converter",
+                field=f"stages[{i}]",
+                code="bad_order",
             )
     sample = stages[s_idx]
     assert isinstance(sample, Sample)
@@ -759,9 +820,11 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
             if st.is_spec:
                 assert st.stopband_hz is not None
                 if st.stopband_hz > rate / 2:
-                    raise ValueError(
+                    raise InputError(
                         f"stages[{i}] digital low-pass stopband_hz={st.stopband_hz:g} is above "
-                        f"the Nyquist frequency {rate / 2:g} Hz of the rate where it runs"
+                        f"the Nyquist frequency {rate / 2:g} Hz of the rate where it runs",
+                        field=f"stages[{i}].stopband_hz",
+                        code="above_limit",
                     )
             coefs[i] = st.coefficients(rate)
             last_lowpass = st
@@ -769,9 +832,11 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
             assert rate is not None
             new_rate = rate / st.factor
             if new_rate < _MIN_FINAL_RATE_HZ:
-                raise ValueError(
+                raise InputError(
                     f"stages[{i}] decimate by {st.factor} brings the rate to {new_rate:g} Hz; "
-                    f"it must stay >= {_MIN_FINAL_RATE_HZ:g} Hz"
+                    f"it must stay >= {_MIN_FINAL_RATE_HZ:g} Hz",
+                    field=f"stages[{i}].factor",
+                    code="above_limit",
                 )
             coefs[i] = st.coefficients()
             if st.filter == "none" and st.factor > 1:

@@ -22,6 +22,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from .checks import check_positive
+from .errors import InputError
 from .harmonics import _check_peaks, format_hz
 
 __all__ = [
@@ -153,6 +154,21 @@ class RateComparison:
 #: Unfoldings searched per peak (2 per multiple of the lower rate) and in total.
 MAX_UNFOLDINGS = 20_000
 MAX_CANDIDATE_CELLS = 4_000_000
+
+
+def _in_capture(exc: InputError, capture: str, freq_name: str, amp_name: str) -> InputError:
+    """The error of one capture's peaks, re-worded and re-rooted at that capture's inputs."""
+    field = exc.field or ""
+    for old, new in (("peaks_freq_hz", freq_name), ("peaks_amplitude", amp_name)):
+        if field.startswith(old):
+            field = new + field[len(old) :]
+    return InputError(
+        f"capture {capture}: {exc}",
+        field=field or None,
+        value=exc.value,
+        limit=exc.limit,
+        code=exc.code,
+    )
 
 
 def _zone(f: FloatArray, rate: float) -> IntArray:
@@ -389,9 +405,12 @@ def compare_rates(
     ra = check_positive(rate_a_hz, "rate_a_hz")
     rb = check_positive(rate_b_hz, "rate_b_hz")
     if math.isclose(ra, rb, rel_tol=1e-9):
-        raise ValueError(
+        raise InputError(
             f"rate_b_hz={rate_b_hz!r} equals rate_a_hz={rate_a_hz!r}; the two-rate test "
-            "needs two different sample rates"
+            "needs two different sample rates",
+            field="rate_b_hz",
+            code="conflict",
+            value=rate_b_hz,
         )
     ba = check_positive(bin_a_hz, "bin_a_hz")
     bb = check_positive(bin_b_hz, "bin_b_hz")
@@ -401,25 +420,29 @@ def compare_rates(
     )
     try:
         fa, aa, _ = _check_peaks(peaks_a_hz, amp_a, 1.0, ra / 2.0)
-    except ValueError as exc:
-        raise ValueError(f"capture A: {exc}") from None
+    except InputError as exc:
+        raise _in_capture(exc, "A", "peaks_a_hz", "amp_a") from None
     try:
         fb, ab, _ = _check_peaks(peaks_b_hz, amp_b, 1.0, rb / 2.0)
-    except ValueError as exc:
-        raise ValueError(f"capture B: {exc}") from None
+    except InputError as exc:
+        raise _in_capture(exc, "B", "peaks_b_hz", "amp_b") from None
     # Every peak is unfolded at every multiple of the lower rate up to max_true: bound the
     # work (peaks × unfoldings) so a careless request cannot occupy a worker for minutes.
     folds = 2.0 * max_true / min(ra, rb) + 3.0
     if folds > MAX_UNFOLDINGS:
-        raise ValueError(
+        raise InputError(
             f"max_true_hz={max_true:g} is {max_true / min(ra, rb):.0f} times the lower sample "
-            f"rate; at most {MAX_UNFOLDINGS // 2} times is searched (lower max_true_hz)"
+            f"rate; at most {MAX_UNFOLDINGS // 2} times is searched (lower max_true_hz)",
+            field="max_true_hz",
+            code="above_limit",
         )
     if folds * max(fa.size, fb.size) > MAX_CANDIDATE_CELLS:
-        raise ValueError(
+        raise InputError(
             f"{max(fa.size, fb.size)} peaks × {folds:.0f} unfoldings is more than the "
             f"{MAX_CANDIDATE_CELLS:,} candidates searched; lower max_true_hz or raise the "
-            "peak threshold"
+            "peak threshold",
+            field=None,
+            code="above_limit",
         )
     tol = MATCH_BINS * (ba + bb)
     sa = _Side(fa, 20 * np.log10(aa), ra, np.argsort(fa, kind="stable").astype(np.int64), "a")

@@ -32,6 +32,7 @@ import scipy.signal as sig
 from numpy.typing import ArrayLike, NDArray
 
 from .checks import check_freqs, check_int, check_positive, show
+from .errors import InputError
 
 __all__ = [
     "ANALOG_FAMILIES",
@@ -90,31 +91,51 @@ def _check_family(
 ) -> tuple[float | None, float | None]:
     if family not in ANALOG_FAMILIES:
         names = ", ".join(ANALOG_FAMILIES)
-        raise ValueError(f"family={show(family)} must be one of {names}")
+        raise InputError(
+            f"family={show(family)} must be one of {names}",
+            field="family",
+            code="not_allowed",
+            value=family,
+        )
     needs_ripple, needs_stop = ANALOG_FAMILIES[family]
     rp: float | None = None
     rs: float | None = None
     if needs_ripple:
         if ripple_db is None:
-            raise ValueError(f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)")
+            raise InputError(
+                f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)",
+                field="ripple_db",
+                code="empty",
+            )
         rp = check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
     elif ripple_db is not None:
-        raise ValueError(
-            f"ripple_db={show(ripple_db)} does not apply to a {family} filter; omit it"
+        raise InputError(
+            f"ripple_db={show(ripple_db)} does not apply to a {family} filter; omit it",
+            field="ripple_db",
+            code="conflict",
+            value=ripple_db,
         )
     if needs_stop:
         if stop_atten_db is None:
-            raise ValueError(
-                f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)"
+            raise InputError(
+                f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)",
+                field="stop_atten_db",
+                code="empty",
             )
         rs = check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
         if rp is not None and rs <= rp:
-            raise ValueError(
-                f"stop_atten_db={show(stop_atten_db)} must be > ripple_db={show(ripple_db)}"
+            raise InputError(
+                f"stop_atten_db={show(stop_atten_db)} must be > ripple_db={show(ripple_db)}",
+                field="stop_atten_db",
+                code="below_limit",
+                value=stop_atten_db,
             )
     elif stop_atten_db is not None:
-        raise ValueError(
-            f"stop_atten_db={show(stop_atten_db)} does not apply to a {family} filter; omit it"
+        raise InputError(
+            f"stop_atten_db={show(stop_atten_db)} does not apply to a {family} filter; omit it",
+            field="stop_atten_db",
+            code="conflict",
+            value=stop_atten_db,
         )
     return rp, rs
 
@@ -123,23 +144,36 @@ def _check_table(table_hz: ArrayLike, table_gain_db: ArrayLike) -> tuple[FloatAr
     fx = np.asarray(table_hz, dtype=np.float64).ravel()
     gy = np.asarray(table_gain_db, dtype=np.float64).ravel()
     if fx.size < 2:
-        raise ValueError(f"table_hz has {fx.size} points; at least 2 are needed")
+        raise InputError(
+            f"table_hz has {fx.size} points; at least 2 are needed", field="table_hz", code="empty"
+        )
     if gy.size != fx.size:
-        raise ValueError(
-            f"table_gain_db has {gy.size} values; expected {fx.size} (one per table_hz)"
+        raise InputError(
+            f"table_gain_db has {gy.size} values; expected {fx.size} (one per table_hz)",
+            field="table_gain_db",
+            code="mismatched_lengths",
         )
     if not np.isfinite(fx).all() or (fx <= 0).any():
         bad = float(fx[~np.isfinite(fx) | (fx <= 0)][0])
-        raise ValueError(f"table_hz contains {bad!r}; frequencies must be finite and > 0 Hz")
+        raise InputError(
+            f"table_hz contains {bad!r}; frequencies must be finite and > 0 Hz",
+            field="table_hz",
+            code="not_finite",
+        )
     if (np.diff(fx) <= 0).any():
         i = int(np.flatnonzero(np.diff(fx) <= 0)[0]) + 1
-        raise ValueError(
+        raise InputError(
             f"table_hz[{i}]={float(fx[i])!r} is not above table_hz[{i - 1}]={float(fx[i - 1])!r}; "
-            "frequencies must be strictly increasing"
+            "frequencies must be strictly increasing",
+            field=f"table_hz[{i}]",
+            code="not_increasing",
+            value=float(fx[i]),
         )
     if not np.isfinite(gy).all():
-        raise ValueError(
-            f"table_gain_db contains {float(gy[~np.isfinite(gy)][0])!r}; gains must be finite"
+        raise InputError(
+            f"table_gain_db contains {float(gy[~np.isfinite(gy)][0])!r}; gains must be finite",
+            field="table_gain_db",
+            code="not_finite",
         )
     return fx, gy
 
@@ -147,10 +181,14 @@ def _check_table(table_hz: ArrayLike, table_gain_db: ArrayLike) -> tuple[FloatAr
 def _check_coefficients(values: ArrayLike, name: str) -> FloatArray:
     c = np.atleast_1d(np.asarray(values, dtype=np.float64))
     if c.ndim != 1 or c.size == 0:
-        raise ValueError(f"{name} must be a non-empty 1-D sequence of coefficients")
+        raise InputError(
+            f"{name} must be a non-empty 1-D sequence of coefficients", field=name, code="invalid"
+        )
     if not np.isfinite(c).all():
-        raise ValueError(
-            f"{name} contains {float(c[~np.isfinite(c)][0])!r}; coefficients must be finite"
+        raise InputError(
+            f"{name} contains {float(c[~np.isfinite(c)][0])!r}; coefficients must be finite",
+            field=name,
+            code="not_finite",
         )
     return c
 
@@ -185,7 +223,7 @@ def _root_factors(roots: NDArray[np.complex128]) -> list[tuple[float | None, flo
     upper = roots[~is_real & (roots.imag > 0)]
     real = roots[is_real].real
     if 2 * upper.size + real.size != roots.size:  # pragma: no cover - scipy keeps symmetry
-        raise ValueError("filter roots are not in conjugate pairs")
+        raise InputError("filter roots are not in conjugate pairs", field=None, code="invalid")
     c = np.abs(upper) ** 2
     pairs: list[tuple[float | None, float]] = [
         (float(4.0 * pr**2 - 2.0 * ci), float(ci**2)) for pr, ci in zip(upper.real, c, strict=True)
@@ -499,15 +537,26 @@ def design_lowpass_fir(
     fstop = check_positive(stopband_hz, "stopband_hz")
     a = check_positive(atten_db, "atten_db", _MAX_FIR_ATTEN_DB)
     if a < _MIN_FIR_ATTEN_DB:
-        raise ValueError(f"atten_db={show(atten_db)} must be >= {_MIN_FIR_ATTEN_DB:g}")
+        raise InputError(
+            f"atten_db={show(atten_db)} must be >= {_MIN_FIR_ATTEN_DB:g}",
+            field="atten_db",
+            code="below_limit",
+            value=atten_db,
+        )
     if fp >= fstop:
-        raise ValueError(
-            f"passband_hz={show(passband_hz)} must be below stopband_hz={show(stopband_hz)}"
+        raise InputError(
+            f"passband_hz={show(passband_hz)} must be below stopband_hz={show(stopband_hz)}",
+            field="passband_hz",
+            code="below_limit",
+            value=passband_hz,
         )
     if fstop > rate / 2:
-        raise ValueError(
+        raise InputError(
             f"stopband_hz={show(stopband_hz)} must be <= the Nyquist frequency {rate / 2:g} Hz "
-            f"of rate_hz={show(rate_hz)}"
+            f"of rate_hz={show(rate_hz)}",
+            field="stopband_hz",
+            code="above_limit",
+            value=stopband_hz,
         )
     return np.array(_kaiser_fir(rate, fp, fstop, a))
 
@@ -517,10 +566,12 @@ def _kaiser_fir(rate: float, fp: float, fstop: float, atten: float) -> tuple[flo
     nyq = rate / 2
     numtaps, beta = sig.kaiserord(atten, (fstop - fp) / nyq)
     if numtaps > MAX_FIR_TAPS:
-        raise ValueError(
+        raise InputError(
             f"a low-pass with passband {fp:g} Hz, stopband {fstop:g} Hz and {atten:g} dB at "
             f"{rate:g} S/s needs {numtaps} taps; at most {MAX_FIR_TAPS}: widen the "
-            "transition band or decimate first"
+            "transition band or decimate first",
+            field=None,
+            code="above_limit",
         )
     taps = sig.firwin(numtaps, (fp + fstop) / 2, window=("kaiser", beta), fs=rate)
     return tuple(float(t) for t in taps)
@@ -552,7 +603,9 @@ def decimation_filter(factor: int, kind: str = "fir") -> tuple[FloatArray, Float
     choice. The FIR is applied once either way.
     """
     if kind not in ("fir", "iir"):
-        raise ValueError(f"kind={show(kind)} must be 'fir' or 'iir'")
+        raise InputError(
+            f"kind={show(kind)} must be 'fir' or 'iir'", field="kind", code="invalid", value=kind
+        )
     high = _MAX_DECIMATION if kind == "fir" else _MAX_IIR_DECIMATION
     m = check_int(factor, "factor", 1, high)
     b, a = _decimation_ba(m, kind)
@@ -613,13 +666,15 @@ def digital_attenuation_db(
     bb = _check_coefficients(b, "b")
     aa = _check_coefficients(a, "a")
     if aa[0] == 0:
-        raise ValueError("a[0]=0.0 must be non-zero")
+        raise InputError("a[0]=0.0 must be non-zero", field="a[0]", code="invalid")
     f = check_freqs(apparent_hz, "apparent_hz")
     if (f > rate / 2 * (1 + 1e-12)).any():
         bad = float(f[f > rate / 2 * (1 + 1e-12)].ravel()[0])
-        raise ValueError(
+        raise InputError(
             f"apparent_hz contains {bad!r}; it must be <= the Nyquist frequency {rate / 2:g} Hz "
-            "(fold the frequencies first)"
+            "(fold the frequencies first)",
+            field="apparent_hz",
+            code="above_limit",
         )
     return _digital_unchecked(f, rate, bb, aa)
 

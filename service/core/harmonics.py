@@ -30,6 +30,7 @@ import scipy.special
 from numpy.typing import ArrayLike, NDArray
 
 from .checks import check_int, check_positive
+from .errors import InputError
 
 __all__ = [
     "BLIND_MAX_P_VALUE",
@@ -202,28 +203,54 @@ def _check_peaks(
     f = np.atleast_1d(np.asarray(freq, dtype=np.float64))
     a = np.atleast_1d(np.asarray(amp, dtype=np.float64))
     if f.ndim != 1:
-        raise ValueError(f"peaks_freq_hz must be 1-D; got shape {f.shape}")
+        raise InputError(
+            f"peaks_freq_hz must be 1-D; got shape {f.shape}",
+            field="peaks_freq_hz",
+            code="bad_type",
+        )
     if a.shape != f.shape:
-        raise ValueError(f"peaks_amplitude has {a.size} values but peaks_freq_hz has {f.size}")
+        raise InputError(
+            f"peaks_amplitude has {a.size} values but peaks_freq_hz has {f.size}",
+            field="peaks_amplitude",
+            code="mismatched_lengths",
+        )
     fl = np.broadcast_to(np.asarray(floor, dtype=np.float64), f.shape).astype(np.float64)
     for name, arr in (("peaks_freq_hz", f), ("peaks_amplitude", a), ("floor", fl)):
         bad = ~np.isfinite(arr)
         if np.any(bad):
             i = int(np.argmax(bad))
-            raise ValueError(f"{name}[{i}]={float(arr[i])!r}; every value must be finite")
+            raise InputError(
+                f"{name}[{i}]={float(arr[i])!r}; every value must be finite",
+                field=f"{name}[{i}]",
+                code="not_finite",
+                value=float(arr[i]),
+            )
     bad = (f < 0) | (f > nyquist * (1 + 1e-9))
     if np.any(bad):
         i = int(np.argmax(bad))
-        raise ValueError(
+        raise InputError(
             f"peaks_freq_hz[{i}]={float(f[i])!r} must be between 0 and the Nyquist frequency "
-            f"{nyquist:g} Hz"
+            f"{nyquist:g} Hz",
+            field=f"peaks_freq_hz[{i}]",
+            code="out_of_range",
+            value=float(f[i]),
         )
     if np.any(a <= 0):
         i = int(np.argmax(a <= 0))
-        raise ValueError(f"peaks_amplitude[{i}]={float(a[i])!r}; amplitudes must be > 0")
+        raise InputError(
+            f"peaks_amplitude[{i}]={float(a[i])!r}; amplitudes must be > 0",
+            field=f"peaks_amplitude[{i}]",
+            code="not_positive",
+            value=float(a[i]),
+        )
     if np.any(fl <= 0):
         i = int(np.argmax(fl <= 0))
-        raise ValueError(f"floor[{i}]={float(fl[i])!r}; the floor must be > 0")
+        raise InputError(
+            f"floor[{i}]={float(fl[i])!r}; the floor must be > 0",
+            field=f"floor[{i}]",
+            code="not_positive",
+            value=float(fl[i]),
+        )
     return f, a, fl
 
 
@@ -573,9 +600,19 @@ def find_families(
     max_true = 10.0 * fs if max_true_hz is None else check_positive(max_true_hz, "max_true_hz")
     pv = float(max_p_value)
     if not np.isfinite(pv) or not 0 < pv < 1:
-        raise ValueError(f"max_p_value={max_p_value!r} must be between 0 and 1 (exclusive)")
+        raise InputError(
+            f"max_p_value={max_p_value!r} must be between 0 and 1 (exclusive)",
+            field="max_p_value",
+            code="out_of_range",
+            value=max_p_value,
+        )
     if attenuation is not None and not callable(attenuation):
-        raise ValueError(f"attenuation={attenuation!r} must be a callable or None")
+        raise InputError(
+            f"attenuation={attenuation!r} must be a callable or None",
+            field="attenuation",
+            code="bad_type",
+            value=attenuation,
+        )
 
     order = np.argsort(f, kind="stable")
     amp_db = 20.0 * np.log10(a)

@@ -47,6 +47,7 @@ from service.core.chain import AnalogLowpass, Chain, Sample, SensorResonance, St
 from service.core.tones import ToneSet
 
 from .checks import check_finite, check_int, check_positive
+from .errors import InputError
 
 __all__ = [
     "ANALYSER_RATES_HZ",
@@ -164,13 +165,28 @@ def _check_band(band_hz: object) -> tuple[float, float]:
     try:
         lo_raw, hi_raw = list(band_hz)  # type: ignore[call-overload]
     except (TypeError, ValueError):
-        raise ValueError(f"band_hz={band_hz!r} must be two numbers (low, high) in Hz") from None
+        raise InputError(
+            f"band_hz={band_hz!r} must be two numbers (low, high) in Hz",
+            field="band_hz",
+            code="bad_type",
+            value=band_hz,
+        ) from None
     lo = check_finite(lo_raw, "band_hz[0]")
     hi = check_finite(hi_raw, "band_hz[1]")
     if lo < 0:
-        raise ValueError(f"band_hz[0]={lo_raw!r} must be >= 0 Hz")
+        raise InputError(
+            f"band_hz[0]={lo_raw!r} must be >= 0 Hz",
+            field="band_hz[0]",
+            code="below_limit",
+            value=lo_raw,
+        )
     if hi <= lo:
-        raise ValueError(f"band_hz[1]={hi_raw!r} must be above band_hz[0]={lo_raw!r}")
+        raise InputError(
+            f"band_hz[1]={hi_raw!r} must be above band_hz[0]={lo_raw!r}",
+            field="band_hz[1]",
+            code="not_increasing",
+            value=hi_raw,
+        )
     return lo, hi
 
 
@@ -178,49 +194,88 @@ def _check_speed_range(speed_range: object) -> tuple[float, float]:
     try:
         lo_raw, hi_raw = list(speed_range)  # type: ignore[call-overload]
     except (TypeError, ValueError):
-        raise ValueError(
-            f"speed_range={speed_range!r} must be two speed factors (min, max), 1 = nominal"
+        raise InputError(
+            f"speed_range={speed_range!r} must be two speed factors (min, max), 1 = nominal",
+            field="speed_range",
+            code="bad_type",
+            value=speed_range,
         ) from None
     lo = check_finite(lo_raw, "speed_range[0]")
     hi = check_finite(hi_raw, "speed_range[1]")
     if lo < 0:
-        raise ValueError(f"speed_range[0]={lo_raw!r} must be >= 0 (a factor of nominal speed)")
+        raise InputError(
+            f"speed_range[0]={lo_raw!r} must be >= 0 (a factor of nominal speed)",
+            field="speed_range[0]",
+            code="below_limit",
+            value=lo_raw,
+        )
     if hi < lo:
-        raise ValueError(
-            f"speed_range[1]={hi_raw!r} is below speed_range[0]={lo_raw!r}; give (min, max)"
+        raise InputError(
+            f"speed_range[1]={hi_raw!r} is below speed_range[0]={lo_raw!r}; give (min, max)",
+            field="speed_range[1]",
+            code="not_increasing",
+            value=hi_raw,
         )
     if hi > 100:
-        raise ValueError(f"speed_range[1]={hi_raw!r} must be <= 100 times nominal speed")
+        raise InputError(
+            f"speed_range[1]={hi_raw!r} must be <= 100 times nominal speed",
+            field="speed_range[1]",
+            code="above_limit",
+            value=hi_raw,
+        )
     return lo, hi
 
 
 def _check_window(window: object) -> str:
     if not isinstance(window, str) or window.lower() not in MAINLOBE_BINS:
-        raise ValueError(f"window={window!r} must be one of {', '.join(MAINLOBE_BINS)}")
+        raise InputError(
+            f"window={window!r} must be one of {', '.join(MAINLOBE_BINS)}",
+            field="window",
+            code="not_allowed",
+            value=window,
+        )
     return window.lower()
 
 
 def _check_tones(tones: object) -> ToneSet:
     if not isinstance(tones, ToneSet):
-        raise ValueError(f"tones must be a ToneSet, got {type(tones).__name__}")
+        raise InputError(
+            f"tones must be a ToneSet, got {type(tones).__name__}", field="tones", code="bad_type"
+        )
     if len(tones) == 0:
-        raise ValueError("tones is empty; give at least one tone to plan against")
+        raise InputError(
+            "tones is empty; give at least one tone to plan against", field="tones", code="empty"
+        )
     if np.any(tones.amplitude[np.isfinite(tones.amplitude)] <= 0):
-        raise ValueError("tones.amplitude must be > 0 where known (NaN where unknown)")
+        raise InputError(
+            "tones.amplitude must be > 0 where known (NaN where unknown)",
+            field="tones.amplitude",
+            code="not_positive",
+        )
     return tones
 
 
 def _find_tone(tones: ToneSet, name: str, what: str) -> int:
     """Index of the tone called ``label`` or ``"source: label"``; must be unique."""
     if not isinstance(name, str) or not name:
-        raise ValueError(f"{what}={name!r} must be a tone label or 'source: label'")
+        raise InputError(
+            f"{what}={name!r} must be a tone label or 'source: label'", field=what, code="bad_type"
+        )
     full = np.array([f"{s}: {lab}" for s, lab in zip(tones.source, tones.label, strict=True)])
     hits = np.flatnonzero((tones.label == name) | (full == name))
     if hits.size == 0:
-        raise ValueError(f"{what}={name!r} matches no tone label (nor 'source: label')")
+        raise InputError(
+            f"{what}={name!r} matches no tone label (nor 'source: label')",
+            field=what,
+            code="not_found",
+        )
     if hits.size > 1:
         options = ", ".join(repr(str(x)) for x in full[hits][:5])
-        raise ValueError(f"{what}={name!r} matches {hits.size} tones; use one of {options}")
+        raise InputError(
+            f"{what}={name!r} matches {hits.size} tones; use one of {options}",
+            field=what,
+            code="ambiguous",
+        )
     return int(hits[0])
 
 
@@ -302,9 +357,18 @@ class FilterOption:
         set_ = object.__setattr__
         fam = self.family
         if fam not in _FAMILY_RANK:
-            raise ValueError(f"family={fam!r} must be one of {', '.join(_FAMILY_RANK)}")
+            raise InputError(
+                f"family={fam!r} must be one of {', '.join(_FAMILY_RANK)}",
+                field="family",
+                code="not_allowed",
+                value=fam,
+            )
         if self.cutoff_hz is not None and self.cutoff_fraction is not None:
-            raise ValueError("give cutoff_hz or cutoff_fraction, not both")
+            raise InputError(
+                "give cutoff_hz or cutoff_fraction, not both",
+                field="cutoff_fraction",
+                code="conflict",
+            )
         if self.cutoff_hz is not None:
             set_(
                 self,
@@ -314,28 +378,56 @@ class FilterOption:
         if self.cutoff_fraction is not None:
             frac = check_positive(self.cutoff_fraction, "cutoff_fraction", separate=True)
             if frac > 0.5:
-                raise ValueError(f"cutoff_fraction={frac!r} must be <= 0.5 (of the sample rate)")
+                raise InputError(
+                    f"cutoff_fraction={frac!r} must be <= 0.5 (of the sample rate)",
+                    field="cutoff_fraction",
+                    code="above_limit",
+                    value=frac,
+                )
             set_(self, "cutoff_fraction", frac)
         if fam in ("none", "table"):
             if self.order not in (0, None):
-                raise ValueError(f"order={self.order!r} does not apply to family {fam!r}; use 0")
+                raise InputError(
+                    f"order={self.order!r} does not apply to family {fam!r}; use 0",
+                    field="order",
+                    code="conflict",
+                    value=self.order,
+                )
             set_(self, "order", 0)
             if fam == "none" and (self.cutoff_hz is not None or self.cutoff_fraction is not None):
-                raise ValueError("family 'none' (no filter) takes no cutoff")
+                raise InputError(
+                    "family 'none' (no filter) takes no cutoff", field="cutoff_hz", code="conflict"
+                )
         if fam == "table":
             if self.table_hz is None or self.table_gain_db is None:
-                raise ValueError("family 'table' needs table_hz and table_gain_db")
+                raise InputError(
+                    "family 'table' needs table_hz and table_gain_db",
+                    field="table_hz",
+                    code="missing",
+                )
             if self.cutoff_hz is not None or self.cutoff_fraction is not None:
-                raise ValueError("a measured table is fixed; it takes no cutoff")
+                raise InputError(
+                    "a measured table is fixed; it takes no cutoff",
+                    field="cutoff_hz",
+                    code="conflict",
+                )
             fx, gy = _flt._check_table(self.table_hz, self.table_gain_db)
             set_(self, "table_hz", tuple(float(v) for v in fx))
             set_(self, "table_gain_db", tuple(float(v) for v in gy))
             return
         if self.table_hz is not None or self.table_gain_db is not None:
-            raise ValueError(f"table_hz/table_gain_db apply only to family 'table', not {fam!r}")
+            raise InputError(
+                f"table_hz/table_gain_db apply only to family 'table', not {fam!r}",
+                field="table_hz",
+                code="conflict",
+            )
         if fam == "none":
             if self.ripple_db is not None or self.stop_atten_db is not None:
-                raise ValueError("family 'none' (no filter) takes no ripple_db or stop_atten_db")
+                raise InputError(
+                    "family 'none' (no filter) takes no ripple_db or stop_atten_db",
+                    field="ripple_db",
+                    code="conflict",
+                )
             return
         set_(self, "order", check_int(self.order, "order", 1, 20, word="a whole number"))
         rp, rs = _flt._check_family(fam, self.ripple_db, self.stop_atten_db)
@@ -452,7 +544,12 @@ def speed_range_from_tolerance(tolerance_pct: float) -> tuple[float, float]:
     """Speed factors ``(1 - p/100, 1 + p/100)`` for a ± tolerance of ``p`` percent (0-99)."""
     p = check_finite(tolerance_pct, "tolerance_pct")
     if not 0 <= p < 100:
-        raise ValueError(f"tolerance_pct={tolerance_pct!r} must be between 0 and 99.99 %")
+        raise InputError(
+            f"tolerance_pct={tolerance_pct!r} must be between 0 and 99.99 %",
+            field="tolerance_pct",
+            code="out_of_range",
+            value=tolerance_pct,
+        )
     return (1.0 - p / 100.0, 1.0 + p / 100.0)
 
 
@@ -555,7 +652,12 @@ def record_length(
     n_avg = check_int(averages, "averages", 1, 100_000, word="a whole number")
     ov = check_finite(overlap_pct, "overlap_pct")
     if not 0 <= ov < 100:
-        raise ValueError(f"overlap_pct={overlap_pct!r} must be >= 0 and < 100")
+        raise InputError(
+            f"overlap_pct={overlap_pct!r} must be >= 0 and < 100",
+            field="overlap_pct",
+            code="below_limit",
+            value=overlap_pct,
+        )
     samples = round(SPAN_DIVISOR * n_lines)
     step = samples - min(round(samples * ov / 100.0), samples - 1)
     total = samples + (n_avg - 1) * step
@@ -853,9 +955,11 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
     s_lo, s_hi = _check_speed_range(req.speed_range)
     n_speeds = check_int(req.n_speeds, "n_speeds", 2, _MAX_SPEEDS, word="a whole number")
     if (req.rejection_db is None) == (req.floor is None):
-        raise ValueError(
+        raise InputError(
             "give exactly one of rejection_db (dB below the strongest in-band "
-            "tone) and floor (absolute level in the amplitude unit)"
+            "tone) and floor (absolute level in the amplitude unit)",
+            field="rejection_db",
+            code="conflict",
         )
     factors = np.linspace(s_lo, s_hi, n_speeds) if s_hi > s_lo else np.array([s_lo])
     f = _true_freq(tones, factors)
@@ -867,21 +971,30 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
     if req.floor is not None:
         floor = check_positive(req.floor, "floor", separate=True)
         if not known.any():
-            raise ValueError(
+            raise InputError(
                 "floor needs tone amplitudes: no tone has one; give amplitudes or use "
-                "rejection_db instead"
+                "rejection_db instead",
+                field="floor",
+                code="missing",
             )
         limit_db = 20.0 * math.log10(floor)
         reference_db = None
     else:
         rej = check_finite(req.rejection_db, "rejection_db")
         if not 0 <= rej <= 300:
-            raise ValueError(f"rejection_db={req.rejection_db!r} must be between 0 and 300 dB")
+            raise InputError(
+                f"rejection_db={req.rejection_db!r} must be between 0 and 300 dB",
+                field="rejection_db",
+                code="out_of_range",
+                value=req.rejection_db,
+            )
         in_band = (fmax >= band[0]) & (fmin <= band[1])
         if not in_band.any():
-            raise ValueError(
+            raise InputError(
                 f"no tone lies in the band {_hz(band[0])} to {_hz(band[1])} over the speed "
-                "range, so rejection_db has no reference; give an absolute floor instead"
+                "range, so rejection_db has no reference; give an absolute floor instead",
+                field="rejection_db",
+                code="no_reference",
             )
         reference_db = 0.0  # all amplitudes unknown: every tone at one common level
     strongest_db = float(20.0 * np.log10(np.max(amp[known]))) if known.any() else 0.0
@@ -906,7 +1019,12 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
     )
     if req.sensor is not None:
         if not isinstance(req.sensor, SensorResonance):
-            raise ValueError(f"sensor={req.sensor!r} must be a SensorResonance or None")
+            raise InputError(
+                f"sensor={req.sensor!r} must be a SensorResonance or None",
+                field="sensor",
+                code="bad_type",
+                value=req.sensor,
+            )
         prob.sensor_grid = _flt._sensor_unchecked(prob.f_grid, req.sensor.natural_hz, req.sensor.q)
     return prob, {"speed_range": (s_lo, s_hi)}
 
@@ -1090,16 +1208,32 @@ def _evaluate(
 def _check_rates(rates_hz: object, series: object) -> FloatArray:
     if rates_hz is None:
         if series not in _RATE_SERIES:
-            raise ValueError(f"rate_series={series!r} must be one of {', '.join(_RATE_SERIES)}")
+            raise InputError(
+                f"rate_series={series!r} must be one of {', '.join(_RATE_SERIES)}",
+                field="rate_series",
+                code="not_allowed",
+                value=series,
+            )
         return np.asarray(_RATE_SERIES[str(series)], dtype=np.float64)
     try:
         vals = list(rates_hz)  # type: ignore[call-overload]
     except TypeError:
-        raise ValueError(f"rates_hz={rates_hz!r} must be a list of sample rates in Hz") from None
+        raise InputError(
+            f"rates_hz={rates_hz!r} must be a list of sample rates in Hz",
+            field="rates_hz",
+            code="bad_type",
+            value=rates_hz,
+        ) from None
     if not vals:
-        raise ValueError("rates_hz is empty; give at least one sample rate (Hz)")
+        raise InputError(
+            "rates_hz is empty; give at least one sample rate (Hz)", field="rates_hz", code="empty"
+        )
     if len(vals) > _MAX_RATES:
-        raise ValueError(f"rates_hz has {len(vals)} entries; at most {_MAX_RATES}")
+        raise InputError(
+            f"rates_hz has {len(vals)} entries; at most {_MAX_RATES}",
+            field="rates_hz",
+            code="above_limit",
+        )
     out = [
         check_positive(v, f"rates_hz[{i}]", unit=" Hz", separate=True) for i, v in enumerate(vals)
     ]
@@ -1112,16 +1246,32 @@ def _check_filters(filters: object) -> tuple[FilterOption, ...]:
     try:
         vals = list(filters)  # type: ignore[call-overload]
     except TypeError:
-        raise ValueError(f"filters={filters!r} must be a list of FilterOption") from None
+        raise InputError(
+            f"filters={filters!r} must be a list of FilterOption",
+            field="filters",
+            code="bad_type",
+            value=filters,
+        ) from None
     if not vals:
-        raise ValueError(
-            "filters is empty; give at least one FilterOption (family 'none' for no filter)"
+        raise InputError(
+            "filters is empty; give at least one FilterOption (family 'none' for no filter)",
+            field="filters",
+            code="empty",
         )
     if len(vals) > _MAX_FILTERS:
-        raise ValueError(f"filters has {len(vals)} entries; at most {_MAX_FILTERS}")
+        raise InputError(
+            f"filters has {len(vals)} entries; at most {_MAX_FILTERS}",
+            field="filters",
+            code="above_limit",
+        )
     for i, v in enumerate(vals):
         if not isinstance(v, FilterOption):
-            raise ValueError(f"filters[{i}]={v!r} must be a FilterOption")
+            raise InputError(
+                f"filters[{i}]={v!r} must be a FilterOption",
+                field=f"filters[{i}]",
+                code="bad_type",
+                value=v,
+            )
     return tuple(sorted(vals, key=lambda o: o.cost()))
 
 
@@ -1129,9 +1279,18 @@ def _check_lines_options(options: object) -> tuple[int, ...]:
     try:
         vals = list(options)  # type: ignore[call-overload]
     except TypeError:
-        raise ValueError(f"lines_options={options!r} must be a list of whole numbers") from None
+        raise InputError(
+            f"lines_options={options!r} must be a list of whole numbers",
+            field="lines_options",
+            code="bad_type",
+            value=options,
+        ) from None
     if not vals:
-        raise ValueError("lines_options is empty; give at least one number of lines")
+        raise InputError(
+            "lines_options is empty; give at least one number of lines",
+            field="lines_options",
+            code="empty",
+        )
     return tuple(
         sorted(
             {
@@ -1153,17 +1312,26 @@ def _required_bin(req: PlanRequest, prob: _Problem, mainlobe: float) -> tuple[fl
         try:
             name_a, name_b = req.resolve
         except (TypeError, ValueError):
-            raise ValueError(f"resolve={req.resolve!r} must be two tone labels") from None
+            raise InputError(
+                f"resolve={req.resolve!r} must be two tone labels",
+                field="resolve",
+                code="bad_type",
+                value=req.resolve,
+            ) from None
         a = _find_tone(prob.tones, name_a, "resolve[0]")
         b = _find_tone(prob.tones, name_b, "resolve[1]")
         if a == b:
-            raise ValueError(f"resolve names the same tone twice ({name_a!r})")
+            raise InputError(
+                f"resolve names the same tone twice ({name_a!r})", field="resolve", code="conflict"
+            )
         f = prob.f_grid.reshape(prob.n_speeds, prob.n_tones)
         diff = f[:, a] - f[:, b]
         if np.any(diff == 0) or np.any(np.sign(diff[:-1]) != np.sign(diff[1:])):
-            raise ValueError(
+            raise InputError(
                 f"the tones {name_a!r} and {name_b!r} meet in frequency within the speed "
-                "range, so no bin width resolves them at every speed"
+                "range, so no bin width resolves them at every speed",
+                field="resolve",
+                code="not_resolvable",
             )
         sep = float(np.min(np.abs(diff)))
         b_need = sep / mainlobe
@@ -1218,7 +1386,12 @@ class _Context:
         record_length(1000.0, 100, req.averages, req.overlap_pct)  # validates both
         self.max_loss = check_finite(req.max_band_loss_db, "max_band_loss_db")
         if self.max_loss < 0:
-            raise ValueError(f"max_band_loss_db={req.max_band_loss_db!r} must be >= 0 dB")
+            raise InputError(
+                f"max_band_loss_db={req.max_band_loss_db!r} must be >= 0 dB",
+                field="max_band_loss_db",
+                code="below_limit",
+                value=req.max_band_loss_db,
+            )
         self.rpm = (
             None
             if req.nominal_rpm is None
@@ -1881,29 +2054,43 @@ def run_up(
     """
     tones = _check_tones(tones)
     if not isinstance(chain, Chain):
-        raise ValueError(f"chain must be a Chain, got {type(chain).__name__}")
+        raise InputError(
+            f"chain must be a Chain, got {type(chain).__name__}", field="chain", code="invalid"
+        )
     n_rpm = (
         None
         if nominal_rpm is None
         else check_positive(nominal_rpm, "nominal_rpm", unit=" rpm", separate=True)
     )
     if (speed_factors is None) == (rpm is None):
-        raise ValueError("give exactly one of speed_factors and rpm")
+        raise InputError("give exactly one of speed_factors and rpm", field="rpm", code="conflict")
     if rpm is not None:
         if n_rpm is None:
-            raise ValueError("an rpm grid needs nominal_rpm (the speed the tones are given at)")
+            raise InputError(
+                "an rpm grid needs nominal_rpm (the speed the tones are given at)",
+                field="nominal_rpm",
+                code="missing",
+            )
         grid = np.asarray(rpm, dtype=np.float64).ravel() / n_rpm
         gname = "rpm"
     else:
         grid = np.asarray(speed_factors, dtype=np.float64).ravel()
         gname = "speed_factors"
     if not 2 <= grid.size <= _MAX_SPEEDS:
-        raise ValueError(f"{gname} has {grid.size} points; give 2 to {_MAX_SPEEDS}")
+        raise InputError(
+            f"{gname} has {grid.size} points; give 2 to {_MAX_SPEEDS}",
+            field=gname,
+            code="out_of_range",
+        )
     if not np.all(np.isfinite(grid)) or np.any(grid < 0):
-        raise ValueError(f"{gname} must be finite and >= 0")
+        raise InputError(f"{gname} must be finite and >= 0", field=gname, code="not_finite")
     if np.any(np.diff(grid) <= 0):
         i = int(np.flatnonzero(np.diff(grid) <= 0)[0]) + 1
-        raise ValueError(f"{gname}[{i}] is not above {gname}[{i - 1}]; the grid must increase")
+        raise InputError(
+            f"{gname}[{i}] is not above {gname}[{i - 1}]; the grid must increase",
+            field=f"{gname}[{i}]",
+            code="not_increasing",
+        )
     fs = chain.final_rate_hz
     band = (0.0, fs / SPAN_DIVISOR) if band_hz is None else _check_band(band_hz)
     n_lines = check_int(lines, "lines", 1, 1_048_576, word="a whole number")
@@ -1923,8 +2110,11 @@ def run_up(
         else:
             order = check_positive(item, f"orders_of_interest[{j}]", separate=True)
             if n_rpm is None:
-                raise ValueError(
-                    f"orders_of_interest[{j}]={item!r} is a numeric order; it needs nominal_rpm"
+                raise InputError(
+                    f"orders_of_interest[{j}]={item!r} is a numeric order; it needs nominal_rpm",
+                    field=f"orders_of_interest[{j}]",
+                    code="missing",
+                    value=item,
                 )
             interest.append(n_t + len(extra))
             extra.append(order)

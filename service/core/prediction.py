@@ -15,6 +15,7 @@ from numpy.typing import NDArray
 
 from .chain import Chain, ChainResponse
 from .checks import check_int, check_range
+from .errors import InputError
 from .folding import fold_intervals
 from .tones import ToneSet
 
@@ -82,7 +83,12 @@ def _check_band(band_hz: tuple[float, float] | None, nyquist: float) -> tuple[fl
         return (0.0, 2.0 * nyquist / SPAN_DIVISOR)
     lo, hi = (float(v) for v in band_hz)
     if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
-        raise ValueError(f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high")
+        raise InputError(
+            f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high",
+            field="band_hz",
+            code="bad_type",
+            value=[lo, hi],
+        )
     return (lo, hi)
 
 
@@ -133,7 +139,12 @@ def predict(
     )
     tol = check_range(speed_tolerance_pct, "speed_tolerance_pct", 0, 50)
     if not np.isfinite(collision_bins) or collision_bins <= 0:
-        raise ValueError(f"collision_bins={collision_bins!r} must be > 0")
+        raise InputError(
+            f"collision_bins={collision_bins!r} must be > 0",
+            field="collision_bins",
+            code="not_positive",
+            value=collision_bins,
+        )
     response = chain.evaluate(tones.freq_hz)
     rate = response.final_rate_hz
     band = _check_band(band_hz, rate / 2.0)

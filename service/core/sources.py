@@ -38,6 +38,7 @@ from numpy.typing import ArrayLike, NDArray
 from service.core.tones import ToneSet
 
 from .checks import check_int, check_positive
+from .errors import InputError
 
 __all__ = [
     "BEARING_DEFECTS",
@@ -94,15 +95,26 @@ def _r(value: object) -> str:
 
 def _check_label(value: object, name: str = "label") -> str:
     if not isinstance(value, str) or not value.strip():
-        raise ValueError(f"{name}={_r(value)} must be a non-empty string")
+        raise InputError(
+            f"{name}={_r(value)} must be a non-empty string",
+            field=name,
+            code="bad_type",
+            value=value,
+        )
     if len(value) > MAX_LABEL_CHARS:
-        raise ValueError(f"{name} has {len(value)} characters; must be at most {MAX_LABEL_CHARS}")
+        raise InputError(
+            f"{name} has {len(value)} characters; must be at most {MAX_LABEL_CHARS}",
+            field=name,
+            code="above_limit",
+        )
     return value
 
 
 def _as_float(value: object, name: str) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
-        raise ValueError(f"{name}={_r(value)} must be a number")
+        raise InputError(
+            f"{name}={_r(value)} must be a number", field=name, code="bad_type", value=value
+        )
     return float(value)
 
 
@@ -114,7 +126,12 @@ def _check_amplitude(value: object, name: str = "amplitude") -> float | None:
     if math.isnan(x):
         return None
     if not math.isfinite(x) or x < 0:
-        raise ValueError(f"{name}={_r(value)} must be a finite number >= 0 (or omitted)")
+        raise InputError(
+            f"{name}={_r(value)} must be a finite number >= 0 (or omitted)",
+            field=name,
+            code="below_limit",
+            value=value,
+        )
     return x
 
 
@@ -126,29 +143,49 @@ def _check_amplitudes(
         return None
     seq = _as_sequence(values, name)
     if exact and len(seq) != max_len:
-        raise ValueError(f"{name} has {len(seq)} entries; expected {max_len}")
+        raise InputError(
+            f"{name} has {len(seq)} entries; expected {max_len}",
+            field=name,
+            code="mismatched_lengths",
+        )
     if len(seq) > max_len:
-        raise ValueError(f"{name} has {len(seq)} entries; must be at most {max_len}")
+        raise InputError(
+            f"{name} has {len(seq)} entries; must be at most {max_len}",
+            field=name,
+            code="above_limit",
+        )
     out = tuple(_as_float(v, f"{name}[{i}]") for i, v in enumerate(seq))
     arr = np.asarray(out, dtype=np.float64)
     bad = np.flatnonzero(np.isinf(arr) | (arr < 0))
     if bad.size:
         i = int(bad[0])
-        raise ValueError(f"{name}[{i}]={out[i]!r} must be a finite number >= 0 (or NaN)")
+        raise InputError(
+            f"{name}[{i}]={out[i]!r} must be a finite number >= 0 (or NaN)",
+            field=f"{name}[{i}]",
+            code="below_limit",
+            value=out[i],
+        )
     return out
 
 
 def _check_one_amplitude_form(amplitude: float | None, harmonic_amplitudes: object) -> None:
     if amplitude is not None and harmonic_amplitudes is not None:
-        raise ValueError(
+        raise InputError(
             "give either amplitude (of the main line) or harmonic_amplitudes (one per "
-            "line of the family), not both"
+            "line of the family), not both",
+            field="harmonic_amplitudes",
+            code="conflict",
         )
 
 
 def _as_sequence(values: object, name: str) -> list[Any]:
     if isinstance(values, str | bytes | Mapping) or not isinstance(values, Sequence | np.ndarray):
-        raise ValueError(f"{name}={_r(values)} must be a list of values")
+        raise InputError(
+            f"{name}={_r(values)} must be a list of values",
+            field=name,
+            code="bad_type",
+            value=values,
+        )
     return list(values)
 
 
@@ -178,10 +215,20 @@ def speed_to_hz(value: float, unit: str) -> float:
     """
     key = unit.lower() if isinstance(unit, str) else unit
     if key not in _SPEED_UNITS:
-        raise ValueError(f"unit={unit!r} must be one of {sorted(_SPEED_UNITS)}")
+        raise InputError(
+            f"unit={unit!r} must be one of {sorted(_SPEED_UNITS)}",
+            field="unit",
+            code="not_allowed",
+            value=unit,
+        )
     x = _as_float(value, "value")
     if not math.isfinite(x) or x < 0:
-        raise ValueError(f"value={_r(value)} must be a finite number >= 0")
+        raise InputError(
+            f"value={_r(value)} must be a finite number >= 0",
+            field="value",
+            code="below_limit",
+            value=value,
+        )
     return x * _SPEED_UNITS[key]
 
 
@@ -276,13 +323,21 @@ def _check_bearing(
     d = check_positive(element_diameter, "element_diameter", cut=80)
     big_d = check_positive(pitch_diameter, "pitch_diameter", cut=80)
     if d >= big_d:
-        raise ValueError(
+        raise InputError(
             f"element_diameter={_r(element_diameter)} must be less than "
-            f"pitch_diameter={_r(pitch_diameter)}"
+            f"pitch_diameter={_r(pitch_diameter)}",
+            field="element_diameter",
+            code="above_limit",
+            value=element_diameter,
         )
     phi = _as_float(angle, "contact_angle_deg")
     if not math.isfinite(phi) or not 0.0 <= phi < 90.0:
-        raise ValueError(f"contact_angle_deg={_r(angle)} must be >= 0 and < 90 degrees")
+        raise InputError(
+            f"contact_angle_deg={_r(angle)} must be >= 0 and < 90 degrees",
+            field="contact_angle_deg",
+            code="below_limit",
+            value=angle,
+        )
     return n, d, big_d, phi
 
 
@@ -306,9 +361,11 @@ class _Expandable:
     ) -> ToneSet:
         n = len(labels)
         if n > MAX_TONES_PER_SOURCE:
-            raise ValueError(
+            raise InputError(
                 f"source {self.label!r} expands to {n} tones; must be at most "
-                f"{MAX_TONES_PER_SOURCE}"
+                f"{MAX_TONES_PER_SOURCE}",
+                field=None,
+                code="too_large",
             )
         return ToneSet(
             label=_objects(labels),
@@ -379,14 +436,20 @@ class Shaft(_Expandable):
         set_(self, "speed_hz", check_positive(self.speed_hz, "speed_hz", cut=80))
         seq = _as_sequence(self.orders, "orders")
         if not 1 <= len(seq) <= MAX_ORDERS:
-            raise ValueError(f"orders has {len(seq)} entries; must have between 1 and {MAX_ORDERS}")
+            raise InputError(
+                f"orders has {len(seq)} entries; must have between 1 and {MAX_ORDERS}",
+                field="orders",
+                code="out_of_range",
+            )
         orders = tuple(
             check_positive(o, f"orders[{i}]", MAX_ORDER, upper_words="at most", cut=80)
             for i, o in enumerate(seq)
         )
         if len(set(orders)) != len(orders):
             dup = next(o for o in orders if orders.count(o) > 1)
-            raise ValueError(f"orders lists {_fmt(dup)} more than once")
+            raise InputError(
+                f"orders lists {_fmt(dup)} more than once", field="orders", code="duplicate"
+            )
         set_(self, "orders", orders)
         set_(self, "amplitude", _check_amplitude(self.amplitude))
         _check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
@@ -641,13 +704,19 @@ class Bearing(_Expandable):
         wanted = [str(x).upper() if isinstance(x, str) else x for x in seq]
         for i, x in enumerate(wanted):
             if x not in BEARING_DEFECTS:
-                raise ValueError(
-                    f"defects[{i}]={_r(seq[i])} must be one of {list(BEARING_DEFECTS)}"
+                raise InputError(
+                    f"defects[{i}]={_r(seq[i])} must be one of {list(BEARING_DEFECTS)}",
+                    field=f"defects[{i}]",
+                    code="not_allowed",
+                    value=seq[i],
                 )
         if not wanted or len(set(wanted)) != len(wanted):
-            raise ValueError(
+            raise InputError(
                 f"defects={_r(seq)} must list each of {list(BEARING_DEFECTS)} at most once, "
-                "and at least one"
+                "and at least one",
+                field="defects",
+                code="duplicate",
+                value=seq,
             )
         set_(self, "defects", tuple(x for x in BEARING_DEFECTS if x in wanted))
         set_(self, "amplitude", _check_amplitude(self.amplitude))
@@ -816,8 +885,10 @@ class LineHarmonics(_Expandable):
         else:
             seq = _as_sequence(self.harmonics, "harmonics")
             if not 1 <= len(seq) <= MAX_HARMONICS:
-                raise ValueError(
-                    f"harmonics has {len(seq)} entries; must have between 1 and {MAX_HARMONICS}"
+                raise InputError(
+                    f"harmonics has {len(seq)} entries; must have between 1 and {MAX_HARMONICS}",
+                    field="harmonics",
+                    code="out_of_range",
                 )
             harm = tuple(
                 check_int(
@@ -833,7 +904,9 @@ class LineHarmonics(_Expandable):
             )
             if len(set(harm)) != len(harm):
                 dup = next(v for v in harm if harm.count(v) > 1)
-                raise ValueError(f"harmonics lists {dup} more than once")
+                raise InputError(
+                    f"harmonics lists {dup} more than once", field="harmonics", code="duplicate"
+                )
         set_(self, "harmonics", harm)
         set_(self, "amplitude", _check_amplitude(self.amplitude))
         _check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
@@ -945,7 +1018,12 @@ class PwmCarrier(_Expandable):
             ),
         )
         if not isinstance(self.line_to_line, bool | np.bool_):
-            raise ValueError(f"line_to_line={_r(self.line_to_line)} must be true or false")
+            raise InputError(
+                f"line_to_line={_r(self.line_to_line)} must be true or false",
+                field="line_to_line",
+                code="bad_type",
+                value=self.line_to_line,
+            )
         set_(self, "line_to_line", bool(self.line_to_line))
         set_(self, "amplitude", _check_amplitude(self.amplitude))
 
@@ -1086,18 +1164,29 @@ class ExplicitTones(_Expandable):
             seq = _as_sequence(self.freq_hz, "freq_hz")
             f = np.asarray([_as_float(v, f"freq_hz[{i}]") for i, v in enumerate(seq)])
         if not 1 <= f.size <= MAX_EXPLICIT_TONES:
-            raise ValueError(
-                f"freq_hz has {f.size} entries; must have between 1 and {MAX_EXPLICIT_TONES}"
+            raise InputError(
+                f"freq_hz has {f.size} entries; must have between 1 and {MAX_EXPLICIT_TONES}",
+                field="freq_hz",
+                code="out_of_range",
             )
         bad = np.flatnonzero(~np.isfinite(f) | (f <= 0))
         if bad.size:
             i = int(bad[0])
-            raise ValueError(f"freq_hz[{i}]={_r(f[i])} must be a finite number > 0")
+            raise InputError(
+                f"freq_hz[{i}]={_r(f[i])} must be a finite number > 0",
+                field=f"freq_hz[{i}]",
+                code="not_positive",
+                value=f[i],
+            )
         set_(self, "freq_hz", tuple(f.tolist()))
         if self.tone_labels is not None:
             labels = _as_sequence(self.tone_labels, "tone_labels")
             if len(labels) != f.size:
-                raise ValueError(f"tone_labels has {len(labels)} entries; expected {f.size}")
+                raise InputError(
+                    f"tone_labels has {len(labels)} entries; expected {f.size}",
+                    field="tone_labels",
+                    code="mismatched_lengths",
+                )
             set_(
                 self,
                 "tone_labels",
@@ -1105,15 +1194,22 @@ class ExplicitTones(_Expandable):
             )
         set_(self, "amplitude", _check_amplitude(self.amplitude))
         if self.amplitude is not None and self.amplitudes is not None:
-            raise ValueError("give either amplitude (for every tone) or amplitudes, not both")
+            raise InputError(
+                "give either amplitude (for every tone) or amplitudes, not both",
+                field="amplitudes",
+                code="conflict",
+            )
         set_(
             self,
             "amplitudes",
             _check_amplitudes(self.amplitudes, "amplitudes", f.size, exact=True),
         )
         if not isinstance(self.scales_with_speed, bool | np.bool_):
-            raise ValueError(
-                f"scales_with_speed={_r(self.scales_with_speed)} must be true or false"
+            raise InputError(
+                f"scales_with_speed={_r(self.scales_with_speed)} must be true or false",
+                field="scales_with_speed",
+                code="bad_type",
+                value=self.scales_with_speed,
             )
         set_(self, "scales_with_speed", bool(self.scales_with_speed))
 
@@ -1175,9 +1271,11 @@ def expand_sources(sources: Sequence[Source]) -> ToneSet:
     parts = []
     for i, s in enumerate(sources):
         if type(s) not in _TYPE_NAMES:
-            raise ValueError(
+            raise InputError(
                 f"sources[{i}] is a {type(s).__name__}; expected one of "
-                f"{[c.__name__ for c in SOURCE_TYPES.values()]}"
+                f"{[c.__name__ for c in SOURCE_TYPES.values()]}",
+                field=f"sources[{i}]",
+                code="invalid",
             )
         parts.append(s.expand())
     return ToneSet.concat(parts)
@@ -1196,14 +1294,18 @@ def _pop_speed(d: dict[str, Any], prefix: str, type_name: str, required: bool) -
             del d[f"{prefix}_{u}"]
     names = [f"{prefix}_{u}" for u in _SPEED_KEYS]
     if len(given) > 1:
-        raise ValueError(
+        raise InputError(
             f"source type {type_name!r} got {', '.join(f'{prefix}_{u}' for u in given)}; "
-            f"give exactly one of {', '.join(names)}"
+            f"give exactly one of {', '.join(names)}",
+            field=None,
+            code="conflict",
         )
     if not given:
         if required:
-            raise ValueError(
-                f"source type {type_name!r} needs a speed: give exactly one of {', '.join(names)}"
+            raise InputError(
+                f"source type {type_name!r} needs a speed: give exactly one of {', '.join(names)}",
+                field=None,
+                code="missing",
             )
         return None
     unit = given[0]
@@ -1232,12 +1334,18 @@ def source_from_dict(d: Mapping[str, Any]) -> Source:
         The validated source object.
     """
     if not isinstance(d, Mapping):
-        raise ValueError(f"a source must be an object with a 'type' key, got {_r(d)}")
+        raise InputError(
+            f"a source must be an object with a 'type' key, got {_r(d)}",
+            field=None,
+            code="bad_type",
+        )
     body = dict(d)
     type_name = body.pop("type", None)
     if not isinstance(type_name, str) or type_name not in SOURCE_TYPES:
-        raise ValueError(
-            f"unknown source type {_r(type_name)}; expected one of {', '.join(SOURCE_TYPES)}"
+        raise InputError(
+            f"unknown source type {_r(type_name)}; expected one of {', '.join(SOURCE_TYPES)}",
+            field="type",
+            code="not_allowed",
         )
     cls = SOURCE_TYPES[type_name]
     fields = {f.name: f for f in dataclasses.fields(cls)}
@@ -1251,28 +1359,36 @@ def source_from_dict(d: Mapping[str, Any]) -> Source:
         pole_pairs = body.pop("pole_pairs", None)
         if shaft_hz is not None or pole_pairs is not None:
             if body.get("fundamental_hz") is not None:
-                raise ValueError(
+                raise InputError(
                     "source type 'pwm' got fundamental_hz and a shaft speed/pole_pairs; "
-                    "give fundamental_hz, or a shaft speed with pole_pairs"
+                    "give fundamental_hz, or a shaft speed with pole_pairs",
+                    field="fundamental_hz",
+                    code="conflict",
                 )
             if shaft_hz is None or pole_pairs is None:
-                raise ValueError(
+                raise InputError(
                     "source type 'pwm' needs both a shaft speed (speed_hz, speed_rpm or "
-                    "speed_cpm) and pole_pairs to derive fundamental_hz"
+                    "speed_cpm) and pole_pairs to derive fundamental_hz",
+                    field="pole_pairs",
+                    code="missing",
                 )
             body["fundamental_hz"] = fundamental_from_shaft(shaft_hz, pole_pairs)
 
     unknown = sorted(k for k in body if k not in fields)
     if unknown:
-        raise ValueError(
+        raise InputError(
             f"unknown field {unknown[0]!r} for source type {type_name!r}; expected "
-            f"fields: {', '.join(fields)}"
+            f"fields: {', '.join(fields)}",
+            field=unknown[0],
+            code="not_allowed",
         )
     kwargs = {k: v for k, v in body.items() if v is not None}
     for name, f in fields.items():
         required = f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING
         if required and name not in kwargs:
-            raise ValueError(f"source type {type_name!r} needs field {name!r}")
+            raise InputError(
+                f"source type {type_name!r} needs field {name!r}", field=name, code="missing"
+            )
     for k, v in kwargs.items():
         if isinstance(v, list):
             kwargs[k] = tuple(v)
@@ -1286,7 +1402,9 @@ def source_to_dict(source: Source) -> dict[str, Any]:
     ``source_from_dict(source_to_dict(s)) == s`` for every source ``s``.
     """
     if type(source) not in _TYPE_NAMES:
-        raise ValueError(f"{type(source).__name__} is not a source type")
+        raise InputError(
+            f"{type(source).__name__} is not a source type", field=None, code="bad_type"
+        )
     out: dict[str, Any] = {"type": _TYPE_NAMES[type(source)]}
     for f in dataclasses.fields(source):
         v = getattr(source, f.name)

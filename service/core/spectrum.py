@@ -35,6 +35,7 @@ import scipy.signal
 from numpy.typing import ArrayLike, NDArray
 
 from .checks import check_finite_array, check_int, check_one_of, check_positive, check_range
+from .errors import InputError
 
 __all__ = [
     "USUAL_LINES",
@@ -170,7 +171,12 @@ def _kernel_tables(name: str) -> tuple[FloatArray, FloatArray, FloatArray]:
     a, b, c = g(1.0 + d), g(d), g(1.0 - d)
     q = (c - a) / (a + b + c)
     if not np.all(np.diff(q) > 0):  # pragma: no cover - holds for every window in WINDOWS
-        raise ValueError(f"window={name!r}: three-bin statistic is not monotonic")
+        raise InputError(
+            f"window={name!r}: three-bin statistic is not monotonic",
+            field="window",
+            code="invalid",
+            value=name,
+        )
     for arr in (d, q, b):
         arr.flags.writeable = False
     return d, q, b
@@ -287,7 +293,9 @@ def amplitude_spectrum(
     """
     x = np.asarray(samples)
     if x.ndim != 1:
-        raise ValueError(f"samples must be 1-D; got shape {x.shape}")
+        raise InputError(
+            f"samples must be 1-D; got shape {x.shape}", field="samples", code="bad_type"
+        )
     if x.dtype not in (np.float32, np.float64):
         x = x.astype(np.float64)
     fs = check_positive(sample_rate_hz, "sample_rate_hz", unit=" Hz")
@@ -309,9 +317,11 @@ def amplitude_spectrum(
             and _count_blocks(n, int(nf), int(nf) - _noverlap(int(nf), overlap_pct)) >= 1
         ]
         if not fits:
-            raise ValueError(
+            raise InputError(
                 f"samples has {n} values; at least {int(_LINES_PER_NFFT * USUAL_LINES[0])} "
-                "are needed for the smallest block"
+                "are needed for the smallest block",
+                field="samples",
+                code="empty",
             )
         enough = [
             (ln, nf)
@@ -325,23 +335,32 @@ def amplitude_spectrum(
         )
         nfft = _nfft_for_lines(lines_req)
         if nfft > n:
-            raise ValueError(
-                f"lines={lines_req} needs blocks of {nfft} samples; the record has only {n}"
+            raise InputError(
+                f"lines={lines_req} needs blocks of {nfft} samples; the record has only {n}",
+                field="lines",
+                code="invalid",
             )
     noverlap = _noverlap(nfft, overlap_pct)
     step = nfft - noverlap
     available = _count_blocks(n, nfft, step)
     if averages is not None and averages > available:
-        raise ValueError(
+        raise InputError(
             f"averages={averages} needs {nfft + (averages - 1) * step} samples with "
             f"nfft={nfft} and {overlap_pct:g} % overlap; the record has {n} "
-            f"(at most {available} averages)"
+            f"(at most {available} averages)",
+            field="averages",
+            code="above_limit",
         )
     n_avg = averages if averages is not None else available
     x = x[: nfft + (n_avg - 1) * step]
     if not np.all(np.isfinite(x)):
         i = int(np.argmax(~np.isfinite(x)))
-        raise ValueError(f"samples[{i}]={float(x[i])!r}; every sample must be finite")
+        raise InputError(
+            f"samples[{i}]={float(x[i])!r}; every sample must be finite",
+            field=f"samples[{i}]",
+            code="not_finite",
+            value=float(x[i]),
+        )
 
     w64 = _window(window, nfft)
     w = w64.astype(x.dtype)
@@ -405,7 +424,12 @@ def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArr
     amp = check_finite_array(amplitude, "amplitude")
     if np.any(amp < 0):
         i = int(np.argmax(amp < 0))
-        raise ValueError(f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0")
+        raise InputError(
+            f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0",
+            field=f"amplitude[{i}]",
+            code="below_limit",
+            value=float(amp[i]),
+        )
     n = amp.size
     if width_bins is None:
         width = n if n < 31 else int(np.clip(n // 64, 31, 1025))
@@ -527,16 +551,28 @@ def find_peaks(
     f = check_finite_array(freq_hz, "freq_hz", min_len=3)
     amp = check_finite_array(amplitude, "amplitude", min_len=3)
     if amp.size != f.size:
-        raise ValueError(f"amplitude has {amp.size} values but freq_hz has {f.size}")
+        raise InputError(
+            f"amplitude has {amp.size} values but freq_hz has {f.size}",
+            field="amplitude",
+            code="mismatched_lengths",
+        )
     if np.any(amp < 0):
         i = int(np.argmax(amp < 0))
-        raise ValueError(f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0")
+        raise InputError(
+            f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0",
+            field=f"amplitude[{i}]",
+            code="below_limit",
+            value=float(amp[i]),
+        )
     steps = np.diff(f)
     if np.any(steps <= 0):
         i = int(np.argmax(steps <= 0)) + 1
-        raise ValueError(
+        raise InputError(
             f"freq_hz[{i}]={float(f[i])!r} does not exceed freq_hz[{i - 1}]={float(f[i - 1])!r}; "
-            "frequencies must increase"
+            "frequencies must increase",
+            field=f"freq_hz[{i}]",
+            code="above_limit",
+            value=float(f[i]),
         )
     threshold_db = check_range(threshold_db, "threshold_db", 0.0, 200.0, unit=" dB")
     prominence_db = check_range(prominence_db, "prominence_db", 0.0, 200.0, unit=" dB")
@@ -552,10 +588,19 @@ def find_peaks(
             "floor",
         )
         if fl.size != amp.size:
-            raise ValueError(f"floor has {fl.size} values but amplitude has {amp.size}")
+            raise InputError(
+                f"floor has {fl.size} values but amplitude has {amp.size}",
+                field="floor",
+                code="mismatched_lengths",
+            )
         if np.any(fl <= 0):
             i = int(np.argmax(fl <= 0))
-            raise ValueError(f"floor[{i}]={float(fl[i])!r}; the floor must be > 0")
+            raise InputError(
+                f"floor[{i}]={float(fl[i])!r}; the floor must be > 0",
+                field=f"floor[{i}]",
+                code="not_positive",
+                value=float(fl[i]),
+            )
 
     tiny = _tiny(amp)
     db = _db(amp, tiny)
@@ -661,9 +706,14 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     if u == "linear":
         if np.any(v < 0):
             i = int(np.argmax(v < 0))
-            raise ValueError(
+            raise InputError(
                 f"values[{i}]={float(v[i])!r} is negative; a linear amplitude must be >= 0 "
-                "(are the values in dB?)"
+                "(are the values in dB?)",
+                field=f"values[{i}]",
+                code="below_limit",
+                value=float(v[i]),
             )
         return v.copy()
-    raise ValueError(f"unit={unit!r} must be 'linear' or 'db'")
+    raise InputError(
+        f"unit={unit!r} must be 'linear' or 'db'", field="unit", code="invalid", value=unit
+    )
