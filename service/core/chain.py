@@ -30,6 +30,7 @@ from typing import Any, ClassVar
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from service.core import digital as _dig
 from service.core import filters as _flt
 from service.core.checks import bad, check_finite, check_freqs, check_int, show
 from service.core.folding import _fold_unchecked, _zone_unchecked, check_fold_range
@@ -218,7 +219,7 @@ class AnalogLowpass:
                 )
             fx = _as_floats(self.table_hz, "table_hz")
             gy = _as_floats(self.table_gain_db, "table_gain_db")
-            _flt._check_table(fx, gy)
+            _flt.check_table(fx, gy)
             set_(self, "table_hz", fx)
             set_(self, "table_gain_db", gy)
             return
@@ -229,7 +230,7 @@ class AnalogLowpass:
                 field=None,
                 code="missing",
             )
-        rp, rs = _flt._check_family(self.family, self.ripple_db, self.stop_atten_db)
+        rp, rs = _flt.check_family(self.family, self.ripple_db, self.stop_atten_db)
         set_(self, "order", check_int(self.order, "order", 1, 20))
         set_(self, "cutoff_hz", _check_number(self.cutoff_hz, "cutoff_hz"))
         set_(self, "ripple_db", rp)
@@ -259,16 +260,14 @@ class AnalogLowpass:
         """Attenuation, dB, at true frequencies ``f``, Hz (checked by the caller)."""
         if self.table_hz is not None:
             assert self.table_gain_db is not None
-            att = _flt._table_unchecked(
-                f, np.asarray(self.table_hz), np.asarray(self.table_gain_db)
-            )
+            att = _flt.table_unchecked(f, np.asarray(self.table_hz), np.asarray(self.table_gain_db))
             if out is not None:
                 out[...] = att
                 return out
             return att
         assert self.family is not None and self.order is not None
         assert self.cutoff_hz is not None
-        return _flt._analog_unchecked(
+        return _flt.analog_unchecked(
             f, self.family, self.order, self.cutoff_hz, self.ripple_db, self.stop_atten_db, out
         )
 
@@ -340,8 +339,8 @@ class DigitalLowpass:
                 )
             b = _as_floats(self.b, "b")
             a = _as_floats(self.a if self.a is not None else (1.0,), "a")
-            _flt._check_coefficients(b, "b")
-            _flt._check_coefficients(a, "a")
+            _flt.check_coefficients(b, "b")
+            _flt.check_coefficients(a, "a")
             if a[0] == 0:
                 raise InputError(
                     f"a[0]={a[0]!r} must be non-zero", field="a[0]", code="invalid", value=a[0]
@@ -390,7 +389,7 @@ class DigitalLowpass:
             return np.asarray(self.b), np.asarray(self.a)
         assert self.passband_hz is not None and self.stopband_hz is not None
         assert self.atten_db is not None
-        taps = _flt.design_lowpass_fir(rate_hz, self.passband_hz, self.stopband_hz, self.atten_db)
+        taps = _dig.design_lowpass_fir(rate_hz, self.passband_hz, self.stopband_hz, self.atten_db)
         return taps, np.ones(1)
 
     def name(self, rate_hz: float) -> str:
@@ -441,7 +440,7 @@ class Decimate:
     def coefficients(self) -> tuple[FloatArray, FloatArray] | None:
         if self.filter == "none":
             return None
-        return _flt.decimation_filter(self.factor, self.filter)
+        return _dig.decimation_filter(self.factor, self.filter)
 
     def name(self) -> str:
         if self.filter == "none":
@@ -652,7 +651,7 @@ class Chain:
         for i, st in enumerate(self.stages):
             rate = plan.input_rates[i]
             if isinstance(st, SensorResonance):
-                rows[i] = _flt._sensor_unchecked(f, st.natural_hz, st.q)
+                rows[i] = _flt.sensor_unchecked(f, st.natural_hz, st.q)
                 active.append(i)
             elif isinstance(st, AnalogLowpass):
                 st.attenuation_db(f, out=rows[i])
@@ -741,15 +740,15 @@ def _digital(
 ) -> None:
     """Digital response at folded frequencies; grid positions are shared per rate."""
     b, a = coef
-    if _flt._use_exact(folded.size, b, a):
-        _flt._digital_exact(folded, rate, b, a, out)
+    if _dig.exact_is_cheaper(folded.size, b, a):
+        _dig.digital_exact(folded, rate, b, a, out)
         return
-    lo, step = _flt._grid_table(b.tobytes(), a.tobytes())
+    lo, step = _dig.grid_table(b.tobytes(), a.tobytes())
     key = (rate, lo.size)
     if key not in positions:
-        positions[key] = _flt._grid_position(folded, rate, lo.size - 1)
+        positions[key] = _dig.grid_position(folded, rate, lo.size - 1)
     i, frac = positions[key]
-    _flt._grid_lookup(lo, step, i, frac, out)
+    _dig.grid_lookup(lo, step, i, frac, out)
 
 
 # A test cell asks about the same few chains again and again; the stages are immutable

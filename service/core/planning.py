@@ -411,7 +411,7 @@ class FilterOption:
                     field="cutoff_hz",
                     code="conflict",
                 )
-            fx, gy = _flt._check_table(self.table_hz, self.table_gain_db)
+            fx, gy = _flt.check_table(self.table_hz, self.table_gain_db)
             set_(self, "table_hz", tuple(float(v) for v in fx))
             set_(self, "table_gain_db", tuple(float(v) for v in gy))
             return
@@ -430,7 +430,7 @@ class FilterOption:
                 )
             return
         set_(self, "order", check_int(self.order, "order", 1, 20, word="a whole number"))
-        rp, rs = _flt._check_family(fam, self.ripple_db, self.stop_atten_db)
+        rp, rs = _flt.check_family(fam, self.ripple_db, self.stop_atten_db)
         set_(self, "ripple_db", rp)
         set_(self, "stop_atten_db", rs)
 
@@ -497,10 +497,10 @@ class FilterOption:
             return np.zeros_like(f)
         if self.family == "table":
             assert self.table_hz is not None and self.table_gain_db is not None
-            return _flt._table_unchecked(
+            return _flt.table_unchecked(
                 f, np.asarray(self.table_hz), np.asarray(self.table_gain_db)
             )
-        return _flt._analog_unchecked(
+        return _flt.analog_unchecked(
             np.array(f, dtype=np.float64),
             self.family,
             self.order,
@@ -516,9 +516,9 @@ def _cheby2_3db_ratio(order: int, stop_atten_db: float) -> float:
     def loss(x: float) -> float:
         return (
             float(
-                _flt._analog_unchecked(
-                    np.array([x]), "chebyshev2", order, 1.0, None, stop_atten_db
-                )[0]
+                _flt.analog_unchecked(np.array([x]), "chebyshev2", order, 1.0, None, stop_atten_db)[
+                    0
+                ]
             )
             - 3.0103
         )
@@ -1025,7 +1025,7 @@ def _prepare(req: PlanRequest) -> tuple[_Problem, dict[str, object]]:
                 code="bad_type",
                 value=req.sensor,
             )
-        prob.sensor_grid = _flt._sensor_unchecked(prob.f_grid, req.sensor.natural_hz, req.sensor.q)
+        prob.sensor_grid = _flt.sensor_unchecked(prob.f_grid, req.sensor.natural_hz, req.sensor.q)
     return prob, {"speed_range": (s_lo, s_hi)}
 
 
@@ -1133,8 +1133,8 @@ def _evaluate(
             loss[:, k] = att[grid.size + r_n * t_n :].max()
     if prob.sensor is not None:
         s = prob.sensor
-        att_crit += _flt._sensor_unchecked(crit_f, s.natural_hz, s.q)[None]
-        loss += float(np.max(_flt._sensor_unchecked(band_pts, s.natural_hz, s.q)))
+        att_crit += _flt.sensor_unchecked(crit_f, s.natural_hz, s.q)[None]
+        loss += float(np.max(_flt.sensor_unchecked(band_pts, s.natural_hz, s.q)))
 
     code = np.zeros((r_n, k_n), dtype=np.int8)
     excess = np.full((r_n, k_n), -np.inf)

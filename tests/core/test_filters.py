@@ -1,4 +1,4 @@
-"""Tests for service.core.filters: analog, table, sensor and digital responses."""
+"""Tests for service.core.filters (analog, table, sensor) and service.core.digital."""
 
 from __future__ import annotations
 
@@ -8,12 +8,10 @@ import numpy as np
 import pytest
 import scipy.signal as sig
 
+from service.core.digital import decimation_filter, design_lowpass_fir, digital_attenuation_db
 from service.core.filters import (
     MAX_ATTENUATION_DB,
     analog_attenuation_db,
-    decimation_filter,
-    design_lowpass_fir,
-    digital_attenuation_db,
     sensor_attenuation_db,
     table_attenuation_db,
 )
