@@ -28,11 +28,24 @@ from .checks import check_finite, check_int, check_positive
 from .errors import InputError
 from .filter_catalogue import FilterOption
 from .plan_common import MAX_SPEEDS, check_band, check_speed_range, check_tones, fmt_hz, true_freq
-from .plan_model import PlanRequest
+from .plan_model import (
+    ALIAS_ABOVE_LIMIT,
+    BAND_LOSS_TOO_HIGH,
+    PASSES,
+    REJECTION_CODES,
+    RESOLUTION_NOT_MET,
+    SPAN_TOO_SHORT,
+    PlanRequest,
+)
 
 __all__ = [
+    "ALIAS",
+    "BAND_LOSS",
     "BAND_LOSS_POINTS",
     "EXCESS_TOL_DB",
+    "PASS",
+    "RESOLUTION",
+    "SPAN",
     "SearchOutcome",
     "SearchProblem",
     "critical_freqs",
@@ -45,6 +58,13 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
+
+#: Integers of the rejection codes in the search grid (see ``REJECTION_CODES``).
+PASS = REJECTION_CODES.index(PASSES)
+SPAN = REJECTION_CODES.index(SPAN_TOO_SHORT)
+RESOLUTION = REJECTION_CODES.index(RESOLUTION_NOT_MET)
+BAND_LOSS = REJECTION_CODES.index(BAND_LOSS_TOO_HIGH)
+ALIAS = REJECTION_CODES.index(ALIAS_ABOVE_LIMIT)
 IntArray = NDArray[np.int64]
 BoolArray = NDArray[np.bool_]
 
@@ -82,7 +102,7 @@ class SearchOutcome:
     rates: FloatArray
     filters: tuple[FilterOption, ...]
     cutoffs: list[list[float | None]]
-    code: NDArray[np.int8]  # 0 pass, 1 span, 2 resolution, 3 band loss, 4 alias
+    code: NDArray[np.int8]  # (R, K) index into REJECTION_CODES
     excess: FloatArray  # (R, K) worst level minus limit, dB (-inf: no alias in band)
     tone: IntArray  # (R, K) tone of the worst alias (-1 none)
     true_hz: FloatArray  # (R, K)
@@ -286,7 +306,7 @@ def evaluate_setups(
         att_crit += _flt.sensor_unchecked(crit_f, s.natural_hz, s.q)[None]
         loss += float(np.max(_flt.sensor_unchecked(band_pts, s.natural_hz, s.q)))
 
-    code = np.zeros((r_n, k_n), dtype=np.int8)
+    code = np.full((r_n, k_n), PASS, dtype=np.int8)
     excess = np.full((r_n, k_n), -np.inf)
     tone = np.full((r_n, k_n), -1, dtype=np.int64)
     true_hz = np.full((r_n, k_n), np.nan)
@@ -297,11 +317,11 @@ def evaluate_setups(
         fs = float(rates[r])
         evaluated[r] = True
         if fs / SPAN_DIVISOR < hi * (1 - 1e-12):
-            code[r] = 1
+            code[r] = SPAN
             continue
         lines[r] = lines_for(fs, required_bin, lines_options)
         if lines[r] == 0:
-            code[r] = 2
+            code[r] = RESOLUTION
             continue
         # Grid points whose alias lands in the band at this rate.
         app = np.abs(grid - fs * np.rint(grid / fs))
@@ -333,10 +353,10 @@ def evaluate_setups(
                     true_hz[r, k] = crit[r, c_t[j]]
             excess[r, k] = best - prob.limit_db
             if loss[r, k] > max_band_loss_db:
-                code[r, k] = 3
+                code[r, k] = BAND_LOSS
             elif excess[r, k] > EXCESS_TOL_DB:
-                code[r, k] = 4
-        if stop_at_first and np.any(code[r] == 0):
+                code[r, k] = ALIAS
+        if stop_at_first and np.any(code[r] == PASS):
             break
     return SearchOutcome(
         rates=rates,

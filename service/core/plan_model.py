@@ -19,7 +19,14 @@ from .analysis_lines import STANDARD_LINES, RecordLength
 from .filter_catalogue import FilterOption
 
 __all__ = [
+    "ALIAS_ABOVE_LIMIT",
+    "API_FAILURE",
+    "BAND_LOSS_TOO_HIGH",
     "DEFAULT_MAX_BAND_LOSS_DB",
+    "PASSES",
+    "REJECTION_CODES",
+    "RESOLUTION_NOT_MET",
+    "SPAN_TOO_SHORT",
     "Plan",
     "PlanRequest",
     "RejectedOption",
@@ -153,6 +160,35 @@ class ToneAlias:
     amplitude_assumed: bool
 
 
+# Why a (sample rate, filter) pair fails, as named codes. The search stores them in an
+# int8 grid, one cell per pair, by their position in REJECTION_CODES.
+#: The pair meets every requirement.
+PASSES = "passes"
+#: The span fs/2.56 does not reach the band edge.
+SPAN_TOO_SHORT = "span_too_short"
+#: No offered line count gives bins narrow enough.
+RESOLUTION_NOT_MET = "resolution_not_met"
+#: The filter takes more than the allowed loss off the band.
+BAND_LOSS_TOO_HIGH = "band_loss_too_high"
+#: An alias lands in the band above the limit.
+ALIAS_ABOVE_LIMIT = "alias_above_limit"
+#: Every code, in the order of its integer in the search grid (0 = passes).
+REJECTION_CODES: tuple[str, ...] = (
+    PASSES,
+    SPAN_TOO_SHORT,
+    RESOLUTION_NOT_MET,
+    BAND_LOSS_TOO_HIGH,
+    ALIAS_ABOVE_LIMIT,
+)
+#: The word the published API's ``rejected[].failure`` field uses for each code.
+API_FAILURE: dict[str, str] = {
+    SPAN_TOO_SHORT: "span",
+    RESOLUTION_NOT_MET: "resolution",
+    BAND_LOSS_TOO_HIGH: "band_loss",
+    ALIAS_ABOVE_LIMIT: "alias",
+}
+
+
 @dataclass(frozen=True)
 class RejectedOption:
     """A cheaper setup than the chosen one, and why it fails.
@@ -165,8 +201,9 @@ class RejectedOption:
         The filter option.
     cutoff_hz : float, optional
         Its cutoff at this rate, Hz.
-    failure : {"span", "resolution", "band_loss", "alias"}
-        What failed.
+    code : str
+        What failed: one of :data:`REJECTION_CODES` other than ``PASSES``
+        (:attr:`failure` gives the API's word for it).
     reason : str
         One sentence for a person.
     tone_index : int, optional
@@ -182,12 +219,17 @@ class RejectedOption:
     sample_rate_hz: float
     filter: FilterOption
     cutoff_hz: float | None
-    failure: str
+    code: str
     reason: str
     tone_index: int | None = None
     speed_factor: float = math.nan
     apparent_hz: float = math.nan
     excess_db: float = math.nan
+
+    @property
+    def failure(self) -> str:
+        """The API's word for :attr:`code` (``span``, ``resolution``, ``band_loss``, ``alias``)."""
+        return API_FAILURE[self.code]
 
 
 @dataclass(frozen=True)

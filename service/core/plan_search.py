@@ -41,6 +41,11 @@ from .plan_common import (
     fmt_rate,
 )
 from .plan_engine import (
+    ALIAS,
+    BAND_LOSS,
+    PASS,
+    RESOLUTION,
+    SPAN,
     SearchOutcome,
     SearchProblem,
     critical_freqs,
@@ -49,7 +54,16 @@ from .plan_engine import (
     speed_at,
     speed_of_alias,
 )
-from .plan_model import Plan, PlanRequest, RejectedOption, ToneAlias
+from .plan_model import (
+    ALIAS_ABOVE_LIMIT,
+    BAND_LOSS_TOO_HIGH,
+    RESOLUTION_NOT_MET,
+    SPAN_TOO_SHORT,
+    Plan,
+    PlanRequest,
+    RejectedOption,
+    ToneAlias,
+)
 
 __all__ = [
     "plan",
@@ -285,26 +299,26 @@ class _Context:
         cut = out.cutoffs[r][k]
         code = int(out.code[r, k])
         hi = self.prob.band[1]
-        if code == 1:
+        if code == SPAN:
             text = (
                 f"at {fmt_rate(fs)} the span fs/2.56 = {fmt_hz(fs / SPAN_DIVISOR)} does not "
                 f"reach the band edge {fmt_hz(hi)}"
             )
-            return RejectedOption(fs, opt, cut, "span", text)
-        if code == 2:
+            return RejectedOption(fs, opt, cut, SPAN_TOO_SHORT, text)
+        if code == RESOLUTION:
             n = max(self.lines_options)
             text = (
                 f"at {fmt_rate(fs)} even {n:,} lines give {fmt_hz(fs / (SPAN_DIVISOR * n))} "
                 f"bins, wider than the {fmt_hz(self.required_bin or 0.0)} needed for "
                 f"{self.bin_why}"
             )
-            return RejectedOption(fs, opt, cut, "resolution", text)
-        if code == 3:
+            return RejectedOption(fs, opt, cut, RESOLUTION_NOT_MET, text)
+        if code == BAND_LOSS:
             text = (
                 f"at {fmt_rate(fs)} {opt.describe(cut)} takes {out.band_loss[r, k]:.1f} dB "
                 f"off the band, more than the {fmt_num(self.max_loss)} dB allowed"
             )
-            return RejectedOption(fs, opt, cut, "band_loss", text)
+            return RejectedOption(fs, opt, cut, BAND_LOSS_TOO_HIGH, text)
         i = int(out.tone[r, k])
         f_true = float(out.true_hz[r, k])
         app = float(np.abs(f_true - fs * np.rint(f_true / fs)))
@@ -318,7 +332,7 @@ class _Context:
             f"{_speed_phrase(self.prob, i, f_true, self.s_range, self.rpm)}"
         )
         s = speed_of_alias(self.prob, i, f_true, *self.s_range)
-        return RejectedOption(fs, opt, cut, "alias", text, i, s, app, ex)
+        return RejectedOption(fs, opt, cut, ALIAS_ABOVE_LIMIT, text, i, s, app, ex)
 
 
 def plan(request: PlanRequest) -> Plan:
@@ -366,7 +380,7 @@ def plan(request: PlanRequest) -> Plan:
     """
     ctx = _Context(request)
     out = ctx.run(ctx.rates, ctx.filters, stop=True)
-    passing = np.argwhere(out.code == 0)
+    passing = np.argwhere(out.code == PASS)
     if passing.size == 0:
         raise _impossible(ctx, out)
     order = np.argsort(out.rates, kind="stable")
@@ -377,7 +391,7 @@ def plan(request: PlanRequest) -> Plan:
     for r in order:
         if rank[r] > rank[r_win]:
             break
-        if out.code[r, 0] in (1, 2):
+        if out.code[r, 0] in (SPAN, RESOLUTION):
             rejected.append(ctx.reason(out, int(r), 0))
             continue
         for k in range(len(ctx.filters)):
@@ -503,7 +517,7 @@ def _impossible(ctx: _Context, out: SearchOutcome) -> PlanImpossible:
     rates = out.rates
     fs_max = float(rates.max())
     codes = out.code
-    span_ok = codes[:, 0] != 1
+    span_ok = codes[:, 0] != SPAN
     if not span_ok.any():
         need = SPAN_DIVISOR * hi
         return PlanImpossible(
@@ -515,7 +529,7 @@ def _impossible(ctx: _Context, out: SearchOutcome) -> PlanImpossible:
                 f"or narrow the band to {fmt_hz(lo)} to {fmt_hz(fs_max / SPAN_DIVISOR)}",
             ],
         )
-    usable = span_ok & (codes[:, 0] != 2)
+    usable = span_ok & (codes[:, 0] != RESOLUTION)
     if not usable.any():
         fs = float(rates[span_ok].min())
         n = max(ctx.lines_options)
@@ -534,7 +548,7 @@ def _impossible(ctx: _Context, out: SearchOutcome) -> PlanImpossible:
                 "or narrow the band so that a lower rate covers it",
             ],
         )
-    alias = usable[:, None] & (codes == 4)
+    alias = usable[:, None] & (codes == ALIAS)
     if not alias.any():
         loss = float(out.band_loss[usable].min())
         return PlanImpossible(
@@ -574,7 +588,7 @@ def _suggestions(ctx: _Context, out: SearchOutcome, r: int, k: int, excess: floa
         | {fs_max * 2.0**n for n in range(1, 7)}
     )
     more = ctx.run(np.asarray(higher), ctx.filters, stop=True)
-    ok = np.argwhere(more.code == 0)
+    ok = np.argwhere(more.code == PASS)
     if ok.size:
         rr, kk = min(((int(a), int(b)) for a, b in ok), key=lambda p: (more.rates[p[0]], p[1]))
         tips.append(
@@ -597,7 +611,7 @@ def _suggestions(ctx: _Context, out: SearchOutcome, r: int, k: int, excess: floa
     )
     if steeper:
         st = ctx.run(rates[r : r + 1], steeper, stop=True)
-        good = np.flatnonzero(st.code[0] == 0)
+        good = np.flatnonzero(st.code[0] == PASS)
         if good.size:
             g = int(good[0])
             what = steeper[g].describe(st.cutoffs[0][g])
@@ -615,7 +629,7 @@ def _suggestions(ctx: _Context, out: SearchOutcome, r: int, k: int, excess: floa
     def passes(h: float) -> bool:
         sub = SearchProblem(**{**prob.__dict__, "band": (lo, h)})
         res = ctx.run(one_rate, one_filter, stop=True, prob=sub)
-        return bool(res.code[0, 0] == 0)
+        return bool(res.code[0, 0] == PASS)
 
     h_low = lo + 0.01 * (hi - lo)
     if passes(h_low):

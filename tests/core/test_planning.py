@@ -194,6 +194,8 @@ class TestPlan:
         )
         assert p.sample_rate_hz == 51200.0
         assert p.rejected[0].failure == "span"
+        # The named code behind the API word: 40 960 / 2.56 = 16 000 Hz < 20 000 Hz.
+        assert p.rejected[0].code == "span_too_short"
         assert p.record.span_hz == pytest.approx(20000.0)
         # No alias anywhere: the cheapest filter is no filter at all.
         assert p.filter.family == "none"
@@ -362,6 +364,7 @@ class TestFilterOption:
         )
         assert p.sample_rate_hz == 8192.0
         assert [r.failure for r in p.rejected] == ["band_loss", "band_loss"]
+        assert {r.code for r in p.rejected} == {"band_loss_too_high"}
         # Reference: Butterworth |H|² = 1/(1+(f/fc)^(2N)) at the band edge.
         assert p.band_loss_db == pytest.approx(10 * np.log10(1 + (2000 / 2048) ** 16), abs=1e-9)
 
