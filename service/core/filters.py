@@ -295,17 +295,18 @@ def analog_unchecked(
     stop_atten_db: float | None,
     out: FloatArray | None = None,
 ) -> FloatArray:
-    w2 = np.multiply(f, 1.0 / cutoff_hz)
+    with np.errstate(over="ignore"):  # a tiny cutoff gives inf here, clipped next
+        w2 = np.multiply(f, 1.0 / cutoff_hz)
+    # Beyond f/fc = 1e15 every response is at its high-frequency asymptote or capped at
+    # MAX_ATTENUATION_DB (order 1: 20·log10(1e15) = 300 dB), so the clip changes no
+    # result and keeps the square finite.
+    np.minimum(w2, 1e15, out=w2)
     np.square(w2, out=w2)
     if out is None:
         out = np.empty_like(w2)
     if family == "butterworth":
         return _butterworth(w2, order, out)
     z, p, k = _analog_prototype(family, order, ripple_db, stop_atten_db)
-    # Beyond f/fc = 1e15 every prototype is either at its constant high-frequency
-    # asymptote (as many zeros as poles) or more than 300 dB down, so clipping there
-    # changes no result and keeps every product finite.
-    np.minimum(w2, 1e30, out=w2)
     # |H|^2 = k^2 prod|jw - z|^2 / prod|jw - p|^2, so A = 10 log10(P / Z) - 20 log10 k;
     # the logarithm is taken in base 2, which numpy computes about twice as fast.
     _log2_gain_sq_inv(w2, p, z, out)

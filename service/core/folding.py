@@ -131,8 +131,9 @@ def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]
 
 
 def _zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
+    # f / fs first, then the exact doubling: fs / 2 underflows for the smallest rates.
     # The clip keeps the cast to int64 defined for unchecked callers (2**62 < int64 max).
-    zone = np.ceil(np.minimum(f / (fs / 2.0), 2.0**62))
+    zone = np.ceil(np.minimum((f / fs) * 2.0, 2.0**62))
     # Guard against round-off putting an exact multiple of fs/2 one zone high: the fold
     # formula is the arbiter, so zone and apparent frequency always agree.
     return np.maximum(zone, 1).astype(np.int64)

@@ -7,6 +7,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from service.core.errors import InputError
 from service.core.folding import fold, fold_intervals, is_inverted, nyquist_zone
 
 
@@ -148,3 +149,43 @@ class TestFoldProperties:
         # fold(fs − f) = fold(f) for 0 <= f <= fs.
         f = x * fs
         assert abs(float(fold(fs - f, fs)) - float(fold(f, fs))) <= 1e-9 * fs
+
+
+# Every finite double, from subnormals to the largest: the core must either answer or
+# refuse with InputError, never fail with another exception or a numpy warning (warnings
+# are errors in this suite).
+any_finite = st.floats(allow_nan=False, allow_infinity=False)
+any_positive = st.floats(min_value=0.0, exclude_min=True, allow_nan=False, allow_infinity=False)
+
+
+class TestFiniteInputs:
+    @settings(max_examples=400, deadline=None)
+    @given(any_finite, any_finite)
+    def test_fold_and_zone_answer_or_refuse(self, f: float, fs: float) -> None:
+        try:
+            a = float(fold(f, fs))
+            z = int(nyquist_zone(f, fs)[()])
+            inv = bool(is_inverted(f, fs)[()])
+        except InputError:
+            return
+        assert 0.0 <= a <= fs / 2 * (1 + 1e-9) + 5e-324
+        assert z >= 1
+        assert inv == (z % 2 == 0)
+
+    @settings(max_examples=300, deadline=None)
+    @given(any_finite, any_finite, any_finite)
+    def test_fold_intervals_answer_or_refuse(self, lo: float, hi: float, fs: float) -> None:
+        try:
+            a_lo, a_hi = fold_intervals(lo, hi, fs)
+        except InputError:
+            return
+        assert float(a_lo[0]) <= float(a_hi[0])
+
+    def test_huge_ratio_is_refused_with_its_limit(self) -> None:
+        # The case schema fuzzing found (an IndexError before): a tone at 1e10 Hz with
+        # fs = 1e-10 Hz is 1e20 times the rate. Limit: 1e9 × 1e-10 Hz = 0.1 Hz (by hand).
+        with pytest.raises(InputError) as info:
+            fold(1e10, 1e-10)
+        assert info.value.field == "freq_hz"
+        assert info.value.code == "above_limit"
+        assert info.value.limit == pytest.approx(0.1)
