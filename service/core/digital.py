@@ -253,7 +253,11 @@ def exact_is_cheaper(n: int, b: FloatArray, a: FloatArray) -> bool:
 def digital_exact(
     f: FloatArray, rate: float, b: FloatArray, a: FloatArray, out: FloatArray | None = None
 ) -> FloatArray:
-    _, h = sig.freqz(b, a, worN=np.ravel(f), fs=rate)
+    if rate > 1e300:
+        # In radians per sample, f / rate first: 2π·f overflows near the float limit.
+        _, h = sig.freqz(b, a, worN=np.ravel(f) / rate * (2.0 * np.pi))
+    else:
+        _, h = sig.freqz(b, a, worN=np.ravel(f), fs=rate)
     att = magnitude_to_attenuation(np.abs(h).reshape(f.shape))
     if out is None:
         return att

@@ -98,6 +98,11 @@ def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
 
 
 def _fold_unchecked(f: FloatArray, fs: float) -> FloatArray:
+    if fs > 1e290:
+        # fs·round(f/fs) may pass the largest double (~1.8e308): work in units of fs.
+        r = f / fs
+        big: FloatArray = np.abs(r - np.rint(r)) * fs
+        return big
     out: FloatArray = np.abs(f - fs * np.rint(f / fs))
     return out
 

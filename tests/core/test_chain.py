@@ -273,8 +273,9 @@ class TestEvaluate:
         chain = Chain.shorthand(10000)
         r = chain.evaluate([7300.0, 13200.0, 1000.0])
         assert isinstance(r, ChainResponse)
-        # Source: DESIGN.md §5 (fs = 10 kHz: 7.3 kHz -> 2.7 kHz in zone 2, inverted;
-        # 13.2 kHz -> 3.2 kHz in zone 3).
+        # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2; zones: Lyons 2011,
+        # sec. 2.3), by hand at
+        # fs = 10 kHz: 7.3 kHz -> 2.7 kHz in zone 2, inverted; 13.2 kHz -> 3.2 kHz in zone 3.
         np.testing.assert_allclose(r.apparent_hz, [2700.0, 3200.0, 1000.0])
         assert r.zone.tolist() == [2, 3, 1]
         assert r.inverted.tolist() == [True, False, False]

@@ -9,6 +9,7 @@ from hypothesis import strategies as st
 
 from service.core.errors import InputError
 from service.core.folding import fold, fold_intervals, is_inverted, nyquist_zone
+from service.core.spectrum import amplitude_spectrum
 
 
 def _fft_peak_hz(freq_hz: float, fs: float, n: int, phase: float) -> float:
@@ -25,7 +26,9 @@ def _fft_peak_hz(freq_hz: float, fs: float, n: int, phase: float) -> float:
 
 class TestFold:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5 worked values (fs = 10 kHz): 7.3 kHz → 2.7 kHz, 13.2 kHz → 3.2 kHz.
+        # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2), by hand at fs = 10
+        # kHz:
+        # 10 − 7.3 = 2.7 kHz, 13.2 − 10 = 3.2 kHz.
         np.testing.assert_allclose(fold([7300.0, 13200.0], 10_000.0), [2700.0, 3200.0])
 
     def test_against_sampling_simulation(self) -> None:
@@ -46,11 +49,19 @@ class TestFold:
         f = 3000.0
         assert fold(f, 4.0 / 3.0 * f) == pytest.approx(f / 3.0)
         # Common practice: sampled exactly twice per cycle at its zero crossings a sine
-        # reads as a flat line: the samples themselves are all zero.
+        # reads as a flat line. The fold puts it at fs/2, and the project's spectrum of
+        # those samples shows nothing there, while the same tone sampled at its crests
+        # shows a line at fs/2.
         fs = 2 * f
-        x = np.sin(2 * np.pi * f * np.arange(64) / fs)
-        assert np.max(np.abs(x)) < 1e-9
         assert fold(f, fs) == pytest.approx(fs / 2)
+        k = np.arange(8192)
+        at_zeros = amplitude_spectrum(np.sin(np.pi * k), fs, lines=800)
+        at_crests = amplitude_spectrum(np.cos(np.pi * k), fs, lines=800)
+        assert np.max(at_zeros.amplitude) < 1e-9
+        top = int(np.argmax(at_crests.amplitude))
+        # Within Hann's main-lobe half-width of 2 bins (Harris 1978, Table 1).
+        assert abs(at_crests.freq_hz[top] - fs / 2) <= 2 * at_crests.bin_width_hz
+        assert at_crests.amplitude[top] > 0.1
 
     def test_edges(self) -> None:
         fs = 10_000.0
@@ -72,7 +83,8 @@ class TestFold:
 
 class TestNyquistZone:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5: 7.3 kHz at 10 kHz is zone 2 (inverted), 13.2 kHz zone 3.
+        # Source: zone k covers ((k−1)·fs/2, k·fs/2], even zones inverted (Lyons 2011, sec. 2.3):
+        # 7.3 kHz at 10 kHz is zone 2 (5..10 kHz), 13.2 kHz zone 3 (10..15 kHz).
         np.testing.assert_array_equal(nyquist_zone([7300.0, 13200.0], 10_000.0), [2, 3])
         np.testing.assert_array_equal(is_inverted([7300.0, 13200.0], 10_000.0), [True, False])
 

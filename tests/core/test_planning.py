@@ -32,7 +32,7 @@ FILTERS = (
 
 
 def drive_unit_tones() -> ToneSet:
-    """Invented electric drive unit (DESIGN.md §6): motor orders, first mesh, inverter."""
+    """Invented electric drive unit (service/demo.py): motor orders, first mesh, inverter."""
     return ToneSet(
         label=[
             "1×",
@@ -202,7 +202,8 @@ class TestPlan:
         assert p.worst_margin_db == np.inf
 
     def test_fixed_tone_exactly_at_band_edge(self) -> None:
-        # 7.3 kHz at 10 kS/s folds to 2.7 kHz (DESIGN.md §5); band edge 2.7 kHz exactly.
+        # 7.3 kHz at 10 kS/s folds to 10 − 7.3 = 2.7 kHz (Oppenheim & Schafer 2010, sec. 4.2); band
+        # edge 2.7 kHz exactly.
         tones = ToneSet.explicit([1000.0, 7300.0], ["direct", "alias"], amplitude=[1, 1])
         opt = P.FilterOption("butterworth", 4)
         with pytest.raises(P.PlanImpossible):
