@@ -32,7 +32,7 @@ from numpy.typing import ArrayLike, NDArray
 from .chain import Chain, ChainResponse
 from .checks import check_one_of, check_positive, check_range
 from .errors import InputError
-from .folding import fold_intervals
+from .folding import fold_intervals, fold_unchecked
 from .harmonics import (
     MAX_SOURCE_EXCESS_DB,
     SIGMA_MULTIPLE,
@@ -564,7 +564,7 @@ def attribute(
         pk = np.array([m.peak for m in fam.members], dtype=np.int64)
         k = np.array([m.harmonic for m in fam.members], dtype=np.float64)
         true = np.array([m.true_hz for m in fam.members], dtype=np.float64)
-        folded = np.abs(k * fam.fundamental_hz - rate * np.rint(k * fam.fundamental_hz / rate))
+        folded = fold_unchecked(k * fam.fundamental_hz, rate)
         dist = np.abs(folded - freq[pk])
         tol_k = tol + SIGMA_MULTIPLE * k * fam.uncertainty_hz
         resp_f = chain.evaluate(true)

@@ -33,7 +33,7 @@ from numpy.typing import ArrayLike, NDArray
 from service.core import digital as _dig
 from service.core import filters as _flt
 from service.core.checks import bad, check_finite, check_freqs, check_int, show
-from service.core.folding import _fold_unchecked, _zone_unchecked, check_fold_range
+from service.core.folding import check_fold_range, fold_unchecked, zone_unchecked
 
 from .errors import InputError
 
@@ -658,7 +658,7 @@ class Chain:
                 active.append(i)
             elif isinstance(st, Sample):
                 rows[i] = 0.0
-                folded = _fold_unchecked(f, st.rate_hz)
+                folded = fold_unchecked(f, st.rate_hz)
             else:
                 assert rate is not None
                 coef = plan.coefficients[i]
@@ -670,9 +670,9 @@ class Chain:
                 if isinstance(st, Decimate) and st.factor > 1:
                     new_rate = rate / st.factor
                     # fold(fold(f, fs), fs/M) == fold(f, fs/M): fold the true frequency.
-                    folded = _fold_unchecked(f, new_rate)
+                    folded = fold_unchecked(f, new_rate)
         final = plan.final_rate_hz
-        zone = _zone_unchecked(f, final)
+        zone = zone_unchecked(f, final)
         fold_stage = _fold_stages(f, zone, plan.fold_thresholds, plan.fold_table)
         if not active:
             total = np.zeros(n)

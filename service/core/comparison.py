@@ -23,6 +23,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .checks import check_positive
 from .errors import InputError
+from .folding import fold_offset, fold_unchecked
 from .harmonics import _check_peaks, format_hz
 
 __all__ = [
@@ -229,7 +230,7 @@ def _moves(
     valid = (true >= 0) & (true <= max_true)
     # f = p itself (m = 0) is the "stays" hypothesis unless p is above y's Nyquist.
     valid[:, 0] &= x.freq > y.rate / 2.0
-    a_y = np.abs(true - y.rate * np.rint(true / y.rate))
+    a_y = fold_unchecked(true, y.rate)
     j = y.order[_nearest(y.freq[y.order], a_y.ravel())].reshape(true.shape)
     err = a_y - y.freq[j]
     valid &= np.abs(err) <= tol
@@ -239,7 +240,7 @@ def _moves(
     t = true[rows, cols]
     jj = j[rows, cols]
     e = err[rows, cols]
-    r = t - y.rate * np.rint(t / y.rate)
+    r = fold_offset(t, y.rate)
     direction = np.where(r >= 0, 1.0, -1.0)
     t_est = t - 0.5 * direction * e  # mean of x's and y's unfoldings
     dlev = y.db[jj] - x.db[peak[rows, cols]]

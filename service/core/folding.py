@@ -22,8 +22,11 @@ __all__ = [
     "check_fold_range",
     "fold",
     "fold_intervals",
+    "fold_offset",
+    "fold_unchecked",
     "is_inverted",
     "nyquist_zone",
+    "zone_unchecked",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -94,16 +97,46 @@ def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
     fs = check_positive(sample_rate_hz, "sample_rate_hz")
     f = check_freqs(freq_hz)
     check_fold_range(f, fs)
-    return _fold_unchecked(f, fs)
+    return fold_unchecked(f, fs)
 
 
-def _fold_unchecked(f: FloatArray, fs: float) -> FloatArray:
-    if fs > 1e290:
+def fold_offset(f: FloatArray, fs: float | FloatArray) -> FloatArray:
+    """Signed offset ``f - fs·round(f/fs)`` of each frequency from its nearest multiple of fs.
+
+    The one home of the fold formula: :func:`fold` is its absolute value. Its sign says
+    which way the fold runs there: >= 0 where a rising true frequency gives a rising
+    apparent one, < 0 where it falls. Inputs are not checked (arrays of finite
+    frequencies >= 0, ``fs > 0``; see :func:`check_fold_range`).
+
+    Parameters
+    ----------
+    f : ndarray
+        True frequencies, Hz.
+    fs : float or ndarray
+        Sample rate(s), Hz, broadcast against ``f``.
+
+    Returns
+    -------
+    ndarray
+        Offsets, Hz, in ``[-fs/2, fs/2]``.
+
+    References
+    ----------
+    .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.2.
+    """
+    huge = fs > 1e290 if isinstance(fs, float) else bool(np.any(fs > 1e290))
+    if huge:
         # fs·round(f/fs) may pass the largest double (~1.8e308): work in units of fs.
         r = f / fs
-        big: FloatArray = np.abs(r - np.rint(r)) * fs
+        big: FloatArray = (r - np.rint(r)) * fs
         return big
-    out: FloatArray = np.abs(f - fs * np.rint(f / fs))
+    out: FloatArray = f - fs * np.rint(f / fs)
+    return out
+
+
+def fold_unchecked(f: FloatArray, fs: float | FloatArray) -> FloatArray:
+    """:func:`fold` without the input checks, for callers that checked already."""
+    out: FloatArray = np.abs(fold_offset(f, fs))
     return out
 
 
@@ -132,10 +165,11 @@ def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]
     fs = check_positive(sample_rate_hz, "sample_rate_hz")
     f = check_freqs(freq_hz)
     check_fold_range(f, fs)
-    return _zone_unchecked(f, fs)
+    return zone_unchecked(f, fs)
 
 
-def _zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
+def zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
+    """:func:`nyquist_zone` without the input checks."""
     # f / fs first, then the exact doubling: fs / 2 underflows for the smallest rates.
     # The clip keeps the cast to int64 defined for unchecked callers (2**62 < int64 max).
     zone = np.ceil(np.minimum((f / fs) * 2.0, 2.0**62))
@@ -203,10 +237,10 @@ def fold_intervals(
             limit=float(lo[i]),
         )
     nyq = fs / 2.0
-    a_lo = _fold_unchecked(lo, fs)
-    a_hi = _fold_unchecked(hi, fs)
-    z_lo = _zone_unchecked(lo, fs)
-    z_hi = _zone_unchecked(hi, fs)
+    a_lo = fold_unchecked(lo, fs)
+    a_hi = fold_unchecked(hi, fs)
+    z_lo = zone_unchecked(lo, fs)
+    z_hi = zone_unchecked(hi, fs)
     # A low end exactly on a zone's upper edge: the interval runs into the next zone.
     on_edge = (hi > lo) & (lo > 0) & (lo == z_lo * nyq)
     z_lo = np.where(on_edge, z_lo + 1, z_lo)

@@ -31,6 +31,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from .checks import check_int, check_positive
 from .errors import InputError
+from .folding import fold_offset, fold_unchecked
 
 __all__ = [
     "BLIND_MAX_P_VALUE",
@@ -257,11 +258,6 @@ def _check_peaks(
 # --------------------------------------------------------------------------- search
 
 
-def _fold(x: FloatArray, fs: float) -> FloatArray:
-    out: FloatArray = np.abs(x - fs * np.rint(x / fs))
-    return out
-
-
 @dataclass
 class _Match:
     """Harmonics of C candidate fundamentals matched to peaks (all arrays C × K)."""
@@ -289,7 +285,7 @@ def _match(
     x = f0[:, None] * k[None, :]
     tried = (x <= ctx.max_true) & (x > 0)
     tol = tol_base + k[None, :] * k_err[:, None]
-    a = _fold(x, ctx.fs)
+    a = fold_unchecked(x, ctx.fs)
     p = ctx.freq
     n = p.size
     j = np.searchsorted(p, a)
@@ -300,7 +296,7 @@ def _match(
     hit = tried & (np.abs(err) <= tol)
     # Unfold the matched peak next to k·f0: move x by the apparent error, in the
     # direction the fold runs there (rising in odd zones, falling in even zones).
-    r = x - ctx.fs * np.rint(x / ctx.fs)
+    r = fold_offset(x, ctx.fs)
     direction = np.where(r >= 0, 1.0, -1.0)
     true = x - direction * err
     if ctx.attenuation is not None and np.any(hit):

@@ -27,6 +27,7 @@ from .analysis_lines import SPAN_DIVISOR
 from .checks import check_finite, check_int, check_positive
 from .errors import InputError
 from .filter_catalogue import FilterOption
+from .folding import fold_unchecked
 from .plan_common import MAX_SPEEDS, check_band, check_speed_range, check_tones, fmt_hz, true_freq
 from .plan_model import (
     ALIAS_ABOVE_LIMIT,
@@ -212,7 +213,7 @@ def critical_freqs(prob: SearchProblem, rates: FloatArray) -> FloatArray:
     fs = rates[:, None]
     fmin = prob.fmin[None, :]
     fmax = prob.fmax[None, :]
-    app = np.abs(fmin - fs * np.rint(fmin / fs))
+    app = fold_unchecked(fmin, fs)
     inside = (fmin > fs / 2) & (app >= lo) & (app <= hi)
     k_a = np.maximum(np.ceil((fmin + hi) / fs), 1.0)
     k_b = np.maximum(np.ceil((fmin - lo) / fs), 1.0)
@@ -324,7 +325,7 @@ def evaluate_setups(
             code[r] = RESOLUTION
             continue
         # Grid points whose alias lands in the band at this rate.
-        app = np.abs(grid - fs * np.rint(grid / fs))
+        app = fold_unchecked(grid, fs)
         idx = np.flatnonzero((grid > fs / 2) & (app >= lo) & (app <= hi))
         t_idx = tone_of[idx]
         base = prob.amp_db[t_idx]

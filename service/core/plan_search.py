@@ -29,6 +29,7 @@ from .analysis_lines import MAINLOBE_BINS, SPAN_DIVISOR, check_analysis_window, 
 from .checks import check_finite, check_int, check_positive
 from .errors import InputError
 from .filter_catalogue import DEFAULT_FILTERS, FilterOption
+from .folding import fold_unchecked
 from .plan_common import (
     ANALYSER_RATES_HZ,
     CONVERTER_RATES_HZ,
@@ -321,7 +322,7 @@ class _Context:
             return RejectedOption(fs, opt, cut, BAND_LOSS_TOO_HIGH, text)
         i = int(out.tone[r, k])
         f_true = float(out.true_hz[r, k])
-        app = float(np.abs(f_true - fs * np.rint(f_true / fs)))
+        app = float(fold_unchecked(np.asarray(f_true), fs))
         ex = float(out.excess[r, k])
         level_db = ex + self.prob.limit_db
         limit = "limit" if self.prob.reference_db is not None else "floor"
