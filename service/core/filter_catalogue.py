@@ -19,7 +19,7 @@ from numpy.typing import NDArray
 from scipy.optimize import brentq
 
 from service.core import filters as _flt
-from service.core.chain import AnalogLowpass
+from service.core.stages import AnalogLowpass
 
 from .checks import check_int, check_positive
 from .errors import InputError

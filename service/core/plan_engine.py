@@ -20,7 +20,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from service.core import filters as _flt
-from service.core.chain import SensorResonance
+from service.core.stages import SensorResonance
 from service.core.tones import ToneSet
 
 from .analysis_lines import SPAN_DIVISOR

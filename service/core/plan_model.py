@@ -12,7 +12,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from service.core.chain import Chain, SensorResonance
+from service.core.chain import Chain
+from service.core.stages import SensorResonance
 from service.core.tones import ToneSet
 
 from .analysis_lines import STANDARD_LINES, RecordLength

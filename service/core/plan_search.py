@@ -22,7 +22,8 @@ import math
 import numpy as np
 from numpy.typing import NDArray
 
-from service.core.chain import Chain, Sample, Stage
+from service.core.chain import Chain
+from service.core.stages import Sample, Stage
 from service.core.tones import ToneSet
 
 from .analysis_lines import MAINLOBE_BINS, SPAN_DIVISOR, check_analysis_window, record_length
