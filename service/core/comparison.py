@@ -24,7 +24,7 @@ from numpy.typing import ArrayLike, NDArray
 from .checks import check_positive
 from .errors import InputError
 from .folding import fold_offset, fold_unchecked
-from .harmonics import _check_peaks, format_hz
+from .harmonics import check_peaks, format_hz
 
 __all__ = [
     "MATCH_BINS",
@@ -420,11 +420,11 @@ def compare_rates(
         10.0 * max(ra, rb) if max_true_hz is None else check_positive(max_true_hz, "max_true_hz")
     )
     try:
-        fa, aa, _ = _check_peaks(peaks_a_hz, amp_a, 1.0, ra / 2.0)
+        fa, aa, _ = check_peaks(peaks_a_hz, amp_a, 1.0, ra / 2.0)
     except InputError as exc:
         raise _in_capture(exc, "A", "peaks_a_hz", "amp_a") from None
     try:
-        fb, ab, _ = _check_peaks(peaks_b_hz, amp_b, 1.0, rb / 2.0)
+        fb, ab, _ = check_peaks(peaks_b_hz, amp_b, 1.0, rb / 2.0)
     except InputError as exc:
         raise _in_capture(exc, "B", "peaks_b_hz", "amp_b") from None
     # Every peak is unfolded at every multiple of the lower rate up to max_true: bound the

@@ -37,6 +37,7 @@ __all__ = [
     "BLIND_MAX_P_VALUE",
     "Family",
     "FamilyMember",
+    "check_peaks",
     "find_families",
     "format_db",
     "format_hz",
@@ -198,7 +199,7 @@ class Family:
 # --------------------------------------------------------------------------- checks
 
 
-def _check_peaks(
+def check_peaks(
     freq: ArrayLike, amp: ArrayLike, floor: ArrayLike, nyquist: float
 ) -> tuple[FloatArray, FloatArray, FloatArray]:
     f = np.atleast_1d(np.asarray(freq, dtype=np.float64))
@@ -565,7 +566,7 @@ def find_families(
     """
     fs = check_positive(sample_rate_hz, "sample_rate_hz")
     bw = check_positive(bin_width_hz, "bin_width_hz")
-    f, a, _fl = _check_peaks(peaks_freq_hz, peaks_amplitude, floor, fs / 2.0)
+    f, a, _fl = check_peaks(peaks_freq_hz, peaks_amplitude, floor, fs / 2.0)
     kmax = check_int(
         max_harmonic,
         "max_harmonic",
