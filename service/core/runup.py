@@ -338,13 +338,61 @@ def run_up(
     tones = check_tones(tones)
     if not isinstance(chain, Chain):
         raise InputError(
-            f"chain must be a Chain, got {type(chain).__name__}", field="chain", code="invalid"
+            f"chain must be a Chain, got {type(chain).__name__}", field="chain", code="bad_type"
         )
     n_rpm = (
         None
         if nominal_rpm is None
         else check_positive(nominal_rpm, "nominal_rpm", unit=" rpm", separate=True)
     )
+    grid = _speed_grid(speed_factors, rpm, n_rpm)
+    fs = chain.final_rate_hz
+    band = (0.0, fs / SPAN_DIVISOR) if band_hz is None else check_band(band_hz)
+    n_lines = check_int(lines, "lines", 1, 1_048_576, word="a whole number")
+    tol = (
+        fs / (SPAN_DIVISOR * n_lines)
+        if tolerance_hz is None
+        else check_positive(tolerance_hz, "tolerance_hz", unit=" Hz", separate=True)
+    )
+    all_lines, interest = _lines_of_interest(tones, orders_of_interest, n_rpm)
+    n_t = len(tones)
+
+    f = true_freq(all_lines, grid)  # (S, L)
+    resp = chain.evaluate(f.ravel())
+    app = resp.apparent_hz.reshape(f.shape)
+    zone = resp.zone.reshape(f.shape)
+    att = resp.attenuation_db.reshape(f.shape)
+    level = all_lines.amplitude[None, :] * 10.0 ** (-att / 20.0)
+    aliased = zone > 1
+
+    alias_idx = np.flatnonzero(aliased[:, :n_t].any(axis=0))
+    target = np.unique(np.asarray(interest, dtype=np.int64)) if interest else np.arange(n_t)
+    target = target[(~aliased[:, target]).any(axis=0)]
+    found = _crossings(grid, app, aliased, f, level, alias_idx, target, band, tol)
+    return RunUp(
+        speed_factor=grid,
+        rpm=None if n_rpm is None else grid * n_rpm,
+        label=tuple(str(x) for x in all_lines.label),
+        source=tuple(str(x) for x in all_lines.source),
+        true_hz=f,
+        apparent_hz=app,
+        zone=zone,
+        attenuation_db=att,
+        level=level,
+        in_band=(app >= band[0]) & (app <= band[1]),
+        interest=target if interest else np.arange(n_t),
+        band_hz=band,
+        final_rate_hz=fs,
+        tolerance_hz=tol,
+        fold_lines=_fold_lines(all_lines, float(grid[0]), float(grid[-1]), fs, n_rpm),
+        crossings=_keep_crossings(found, n_rpm),
+    )
+
+
+def _speed_grid(
+    speed_factors: ArrayLike | None, rpm: ArrayLike | None, n_rpm: float | None
+) -> FloatArray:
+    """The checked speed grid as factors of nominal speed (from factors or rpm)."""
     if (speed_factors is None) == (rpm is None):
         raise InputError("give exactly one of speed_factors and rpm", field="rpm", code="conflict")
     if rpm is not None:
@@ -374,16 +422,13 @@ def run_up(
             field=f"{gname}[{i}]",
             code="not_increasing",
         )
-    fs = chain.final_rate_hz
-    band = (0.0, fs / SPAN_DIVISOR) if band_hz is None else check_band(band_hz)
-    n_lines = check_int(lines, "lines", 1, 1_048_576, word="a whole number")
-    tol = (
-        fs / (SPAN_DIVISOR * n_lines)
-        if tolerance_hz is None
-        else check_positive(tolerance_hz, "tolerance_hz", unit=" Hz", separate=True)
-    )
+    return grid
 
-    # Lines: the tones, then numeric orders of interest.
+
+def _lines_of_interest(
+    tones: ToneSet, orders_of_interest: Sequence[str | float] | None, n_rpm: float | None
+) -> tuple[ToneSet, list[int]]:
+    """The tones plus any numeric orders of interest, and the indices of interest."""
     n_t = len(tones)
     interest: list[int] = []
     extra: list[float] = []
@@ -401,42 +446,29 @@ def run_up(
                 )
             interest.append(n_t + len(extra))
             extra.append(order)
-    all_lines = tones
-    if extra:
-        assert n_rpm is not None
-        o = np.asarray(extra)
-        all_lines = ToneSet.concat(
-            [
-                tones,
-                ToneSet(
-                    label=np.array([f"order {fmt_num(x, 6)}" for x in extra], dtype=object),
-                    source=np.array(["orders of interest"] * o.size, dtype=object),
-                    kind=np.array(["shaft"] * o.size, dtype=object),
-                    fixed_hz=np.zeros(o.size),
-                    speed_hz=o * n_rpm / 60.0,
-                    amplitude=np.full(o.size, np.nan),
-                ),
-            ]
-        )
-    f = true_freq(all_lines, grid)  # (S, L)
-    resp = chain.evaluate(f.ravel())
-    shape = f.shape
-    app = resp.apparent_hz.reshape(shape)
-    zone = resp.zone.reshape(shape)
-    att = resp.attenuation_db.reshape(shape)
-    level = all_lines.amplitude[None, :] * 10.0 ** (-att / 20.0)
-    in_band = (app >= band[0]) & (app <= band[1])
-    aliased = zone > 1
-
-    alias_idx = np.flatnonzero(aliased[:, :n_t].any(axis=0))
-    target = np.unique(np.asarray(interest, dtype=np.int64)) if interest else np.arange(n_t)
-    target = target[(~aliased[:, target]).any(axis=0)]
-    sp, ap, ai, ti, la, lt, touch = _crossings(
-        grid, app, aliased, f, level, alias_idx, target, band, tol
+    if not extra:
+        return tones, interest
+    assert n_rpm is not None
+    o = np.asarray(extra)
+    orders = ToneSet(
+        label=np.array([f"order {fmt_num(x, 6)}" for x in extra], dtype=object),
+        source=np.array(["orders of interest"] * o.size, dtype=object),
+        kind=np.array(["shaft"] * o.size, dtype=object),
+        fixed_hz=np.zeros(o.size),
+        speed_hz=o * n_rpm / 60.0,
+        amplitude=np.full(o.size, np.nan),
     )
-    total = int(sp.size)
+    return ToneSet.concat([tones, orders]), interest
+
+
+def _keep_crossings(
+    found: tuple[FloatArray, FloatArray, IntArray, IntArray, FloatArray, FloatArray, BoolArray],
+    n_rpm: float | None,
+) -> Crossings:
+    """The first ``_MAX_CROSSINGS`` crossings, with the total found."""
+    sp, ap, ai, ti, la, lt, touch = found
     keep = slice(0, _MAX_CROSSINGS)
-    crossings = Crossings(
+    return Crossings(
         speed_factor=sp[keep],
         rpm=None if n_rpm is None else sp[keep] * n_rpm,
         apparent_hz=ap[keep],
@@ -445,23 +477,5 @@ def run_up(
         alias_level=la[keep],
         crossed_level=lt[keep],
         touching=touch[keep],
-        total=total,
-    )
-    return RunUp(
-        speed_factor=grid,
-        rpm=None if n_rpm is None else grid * n_rpm,
-        label=tuple(str(x) for x in all_lines.label),
-        source=tuple(str(x) for x in all_lines.source),
-        true_hz=f,
-        apparent_hz=app,
-        zone=zone,
-        attenuation_db=att,
-        level=level,
-        in_band=in_band,
-        interest=target if interest else np.arange(n_t),
-        band_hz=band,
-        final_rate_hz=fs,
-        tolerance_hz=tol,
-        fold_lines=_fold_lines(all_lines, float(grid[0]), float(grid[-1]), fs, n_rpm),
-        crossings=crossings,
+        total=int(sp.size),
     )
