@@ -43,8 +43,8 @@ from service.core.harmonics import (
     format_hz,
 )
 from service.core.prediction import SPAN_DIVISOR
-from service.core.spectrum import WINDOWS, window_figures
 from service.core.tones import ToneSet
+from service.core.windows import WINDOWS, window_figures
 
 from .attribution_model import (
     BELOW_FLOOR_DB,

@@ -1,4 +1,7 @@
-"""Windows, averaged amplitude spectra, robust noise floor and peak finding.
+"""Averaged amplitude spectra, robust noise floor and peak finding.
+
+The windows themselves live in :mod:`service.core.windows` (``WINDOWS`` and
+:func:`window_figures` are re-exported here).
 
 Everything here is vectorised: arrays in, arrays out, no Python loop over bins. The only
 loop is over blocks of frames in :func:`amplitude_spectrum`, which bounds memory.
@@ -26,7 +29,6 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 import scipy.fft
@@ -34,8 +36,16 @@ import scipy.ndimage
 import scipy.signal
 from numpy.typing import ArrayLike, NDArray
 
-from .checks import check_finite_array, check_int, check_one_of, check_positive, check_range
-from .errors import InputError
+from service.core.checks import (
+    check_finite_array,
+    check_int,
+    check_one_of,
+    check_positive,
+    check_range,
+)
+from service.core.errors import InputError
+
+from .windows import WINDOWS, kernel_tables, window_figures, window_samples
 
 __all__ = [
     "USUAL_LINES",
@@ -52,29 +62,21 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-#: Window names accepted everywhere in this module.
-WINDOWS: frozenset[str] = frozenset({"hann", "flattop", "rectangular", "hamming", "blackmanharris"})
-
-_SCIPY_NAME = {
-    "hann": "hann",
-    "flattop": "flattop",
-    "rectangular": "boxcar",
-    "hamming": "hamming",
-    "blackmanharris": "blackmanharris",
-}
 
 #: The usual numbers of analysis lines, 25·2**k; for these nfft = 2.56·lines exactly.
 USUAL_LINES: tuple[int, ...] = tuple(25 * 2**k for k in range(19))  # 25 ... 6,553,600
 
+
 _LINES_PER_NFFT = 2.56
+
+
 _MAX_NFFT = 2**24
+
+
 _DEFAULT_MIN_AVERAGES = 8
+
+
 _CHUNK_SAMPLES = 2**21  # samples per block of frames handed to the FFT at once
-_TABLE_SIZE = 512  # window length used for the refinement tables
-_TABLE_PAD = 512  # zero padding: table resolution 1/512 bin
-
-
-# --------------------------------------------------------------------------- checks
 
 
 def _tiny(amplitude: FloatArray) -> float:
@@ -86,103 +88,6 @@ def _tiny(amplitude: FloatArray) -> float:
 def _db(amplitude: FloatArray, tiny: float) -> FloatArray:
     out: FloatArray = 20.0 * np.log10(np.maximum(amplitude, tiny))
     return out
-
-
-# --------------------------------------------------------------------------- windows
-
-
-def _window(name: str, n: int) -> FloatArray:
-    """Periodic (DFT-even) window of length ``n`` as recommended by Harris [1]_."""
-    w: FloatArray = np.asarray(
-        scipy.signal.get_window(_SCIPY_NAME[name], n, fftbins=True), dtype=np.float64
-    )
-    return w
-
-
-def window_figures(name: str, n: int = 4096) -> dict[str, float]:
-    """Figures of merit of a window, computed numerically from its samples.
-
-    Parameters
-    ----------
-    name : str
-        Window name, one of :data:`WINDOWS`.
-    n : int
-        Window length, samples (16 to 1,048,576).
-
-    Returns
-    -------
-    dict
-        ``coherent_gain`` (sum(w)/n, linear), ``enbw_bins`` (equivalent noise bandwidth,
-        bins), ``scalloping_loss_db`` (loss for a tone half a bin off, dB, positive),
-        ``highest_sidelobe_db`` (highest side lobe relative to the main-lobe peak, dB,
-        negative) and ``mainlobe_half_width_bins`` (DC to the first null, bins).
-
-    Notes
-    -----
-    ENBW = n·Σw² / (Σw)²; scalloping loss = −20·log10(|W(½ bin)| / |W(0)|) with
-    W the window's DTFT, both as defined by Harris [1]_. The side-lobe level comes from
-    a 16× zero-padded FFT: the main lobe ends at the first local minimum of |W| below
-    −20 dB and the highest side lobe is the largest |W| beyond it.
-
-    References
-    ----------
-    .. [1] Harris, *Proc. IEEE* 66(1), 1978, sec. IV and Table 1.
-    """
-    name = check_one_of(name, "name", sorted(WINDOWS))
-    n = check_int(n, "n", 16, 2**20, type_text="a whole number", integral_floats=True)
-    w = _window(name, n)
-    s1 = float(np.sum(w))
-    s2 = float(np.sum(w * w))
-    pad = 16
-    mag = np.abs(np.fft.rfft(w, n * pad))
-    mag = mag / mag[0]
-    rising = np.flatnonzero((np.diff(mag) > 0) & (mag[:-1] < 0.1))
-    edge = int(rising[0]) if rising.size else mag.size - 1
-    half_bin = np.abs(np.sum(w * np.exp(-1j * np.pi * np.arange(n) / n))) / s1
-    return {
-        "coherent_gain": s1 / n,
-        "enbw_bins": n * s2 / s1**2,
-        "scalloping_loss_db": float(-20.0 * np.log10(half_bin)),
-        "highest_sidelobe_db": float(20.0 * np.log10(np.max(mag[edge:]))),
-        "mainlobe_half_width_bins": edge / pad,
-    }
-
-
-@lru_cache(maxsize=8)
-def _kernel_tables(name: str) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """Tables for peak refinement: offset grid, three-bin statistic, relative gain.
-
-    For a tone at ``k + d`` bins (``|d| <= 0.5``) the bins ``k-1, k, k+1`` read
-    ``A·g(1+d), A·g(d), A·g(1-d)`` with ``g = |W(ν)| / |W(0)|``; the statistic
-    ``q = (c - a) / (a + b + c)`` is odd and increasing in ``d`` and is inverted by
-    table look-up. The DTFT comes from a zero-padded FFT of the periodic window.
-    """
-    w = _window(name, _TABLE_SIZE)
-    mag = np.abs(np.fft.fft(w, _TABLE_SIZE * _TABLE_PAD))
-    mag = mag / mag[0]
-    step = 1.0 / _TABLE_PAD
-    d: FloatArray = np.arange(-_TABLE_PAD // 2, _TABLE_PAD // 2 + 1, dtype=np.float64) * step
-
-    def g(nu: FloatArray) -> FloatArray:
-        idx = np.rint(nu / step).astype(np.int64) % mag.size
-        out: FloatArray = mag[idx]
-        return out
-
-    a, b, c = g(1.0 + d), g(d), g(1.0 - d)
-    q = (c - a) / (a + b + c)
-    if not np.all(np.diff(q) > 0):  # pragma: no cover - holds for every window in WINDOWS
-        raise InputError(
-            f"window={name!r}: three-bin statistic is not monotonic",
-            field="window",
-            code="invalid",
-            value=name,
-        )
-    for arr in (d, q, b):
-        arr.flags.writeable = False
-    return d, q, b
-
-
-# --------------------------------------------------------------------------- spectrum
 
 
 @dataclass(frozen=True, eq=False)
@@ -362,7 +267,7 @@ def amplitude_spectrum(
             value=float(x[i]),
         )
 
-    w64 = _window(window, nfft)
+    w64 = window_samples(window, nfft)
     w = w64.astype(x.dtype)
     frames = np.lib.stride_tricks.sliding_window_view(x, nfft)[::step]
     per_chunk = max(1, _CHUNK_SAMPLES // nfft)
@@ -390,9 +295,6 @@ def amplitude_spectrum(
         nfft=int(nfft),
         overlap_pct=100.0 * noverlap / nfft,
     )
-
-
-# --------------------------------------------------------------------------- floor
 
 
 def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArray:
@@ -446,9 +348,6 @@ def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArr
         floor_db = scipy.ndimage.median_filter(db, size=width, mode="mirror")
     out: FloatArray = 10.0 ** (floor_db / 20.0)
     return out
-
-
-# --------------------------------------------------------------------------- peaks
 
 
 @dataclass(frozen=True, eq=False)
@@ -622,7 +521,7 @@ def find_peaks(
         d = np.clip(d, -0.5, 0.5)
         peak_amp = b.copy()
     else:
-        grid, q_table, gain = _kernel_tables(window)
+        grid, q_table, gain = kernel_tables(window)
         total = a + b + c
         q = np.where(total > 0, (c - a) / np.where(total > 0, total, 1.0), 0.0)
         d = np.interp(q, q_table, grid)
@@ -639,9 +538,6 @@ def find_peaks(
         bin=idx.astype(np.int64),
         snr_db=snr.astype(np.float64),
     )
-
-
-# --------------------------------------------------------------------------- units
 
 
 def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
