@@ -30,8 +30,9 @@ from functools import lru_cache
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from service.core.analysis_lines import SPAN_DIVISOR
 from service.core.chain import Chain, ChainResponse
-from service.core.checks import check_one_of, check_positive, check_range
+from service.core.checks import check_band_hz, check_one_of, check_positive, check_range
 from service.core.errors import InputError
 from service.core.folding import fold_intervals, fold_unchecked
 from service.core.harmonics import (
@@ -42,7 +43,6 @@ from service.core.harmonics import (
     format_db,
     format_hz,
 )
-from service.core.prediction import SPAN_DIVISOR
 from service.core.tones import ToneSet
 from service.core.windows import WINDOWS, window_figures
 
@@ -116,28 +116,6 @@ def frequency_tolerance_hz(bin_width_hz: float, window: str = "hann") -> float:
     w = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
     refine = REFINE_ERROR_UNKNOWN_BINS if w == "unknown" else REFINE_ERROR_BINS
     return bw * (_half_width_bins(w) + refine)
-
-
-def _check_band(band_hz: tuple[float, float] | None, edge: float) -> tuple[float, float]:
-    if band_hz is None:
-        return (0.0, edge)
-    try:
-        lo, hi = (float(v) for v in band_hz)
-    except (TypeError, ValueError):
-        raise InputError(
-            f"band_hz={band_hz!r} must be two numbers (low, high) in Hz",
-            field="band_hz",
-            code="bad_type",
-            value=band_hz,
-        ) from None
-    if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
-        raise InputError(
-            f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high",
-            field="band_hz",
-            code="bad_type",
-            value=[lo, hi],
-        )
-    return (lo, hi)
 
 
 def _tone_intervals(
@@ -371,7 +349,7 @@ def attribute(
     )
     edge = rate / SPAN_DIVISOR
     notes: tuple[str, ...] = tuple(chain.validate())
-    band = _check_band(band_hz, edge)
+    band = check_band_hz(band_hz, (0.0, edge))
 
     rows = _Rows(*([] for _ in range(11)))
     if tones is not None and len(tones):

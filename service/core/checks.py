@@ -27,6 +27,7 @@ from .errors import InputError
 
 __all__ = [
     "bad",
+    "check_band_hz",
     "check_finite",
     "check_finite_array",
     "check_freqs",
@@ -306,3 +307,35 @@ def check_finite_array(values: ArrayLike, name: str, min_len: int = 1) -> FloatA
             value=float(a[i]),
         )
     return a
+
+
+def check_band_hz(
+    band_hz: tuple[float, float] | None, default: tuple[float, float]
+) -> tuple[float, float]:
+    """A band of interest ``(low, high)`` in Hz with ``0 <= low < high``, or ``default``.
+
+    Raises
+    ------
+    InputError
+        ``bad_type`` (not two numbers) or ``out_of_range`` (not finite, negative or empty),
+        field ``band_hz``.
+    """
+    if band_hz is None:
+        return default
+    try:
+        lo, hi = (float(v) for v in band_hz)
+    except (TypeError, ValueError):
+        raise bad(
+            f"band_hz={show(band_hz)} must be two numbers (low, high) in Hz",
+            "band_hz",
+            "bad_type",
+            value=band_hz,
+        ) from None
+    if not (math.isfinite(lo) and math.isfinite(hi)) or lo < 0 or hi <= lo:
+        raise bad(
+            f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high",
+            "band_hz",
+            "out_of_range",
+            value=[lo, hi],
+        )
+    return (lo, hi)

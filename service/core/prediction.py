@@ -13,8 +13,9 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from .analysis_lines import SPAN_DIVISOR
 from .chain import Chain, ChainResponse
-from .checks import check_int, check_range
+from .checks import check_band_hz, check_int, check_range
 from .errors import InputError
 from .folding import fold_intervals
 from .tones import ToneSet
@@ -25,7 +26,6 @@ FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]
 
 #: Common practice: an analyser shows DC to fs/2.56 as its alias-protected span.
-SPAN_DIVISOR = 2.56
 #: Analysis lines assumed for bin numbers and collision tolerance when none are given.
 DEFAULT_LINES = 3200
 #: How close (in bins) a predicted alias may come to another line before it can mask it.
@@ -76,20 +76,6 @@ class Prediction:
     @property
     def nyquist_hz(self) -> float:
         return self.response.final_rate_hz / 2.0
-
-
-def _check_band(band_hz: tuple[float, float] | None, nyquist: float) -> tuple[float, float]:
-    if band_hz is None:
-        return (0.0, 2.0 * nyquist / SPAN_DIVISOR)
-    lo, hi = (float(v) for v in band_hz)
-    if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
-        raise InputError(
-            f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high",
-            field="band_hz",
-            code="bad_type",
-            value=[lo, hi],
-        )
-    return (lo, hi)
 
 
 def predict(
@@ -147,7 +133,7 @@ def predict(
         )
     response = chain.evaluate(tones.freq_hz)
     rate = response.final_rate_hz
-    band = _check_band(band_hz, rate / 2.0)
+    band = check_band_hz(band_hz, (0.0, rate / SPAN_DIVISOR))
     bin_width = rate / (SPAN_DIVISOR * n_lines)
 
     if tol > 0:

@@ -45,6 +45,7 @@ from service.core.checks import (
 )
 from service.core.errors import InputError
 
+from .analysis_lines import SPAN_DIVISOR
 from .windows import WINDOWS, kernel_tables, window_figures, window_samples
 
 __all__ = [
@@ -65,9 +66,6 @@ FloatArray = NDArray[np.float64]
 
 #: The usual numbers of analysis lines, 25·2**k; for these nfft = 2.56·lines exactly.
 USUAL_LINES: tuple[int, ...] = tuple(25 * 2**k for k in range(19))  # 25 ... 6,553,600
-
-
-_LINES_PER_NFFT = 2.56
 
 
 _MAX_NFFT = 2**24
@@ -133,7 +131,7 @@ class Spectrum:
 
 
 def _nfft_for_lines(lines: int) -> int:
-    target = _LINES_PER_NFFT * lines
+    target = SPAN_DIVISOR * lines
     nfft = 1 << max(0, int(np.ceil(np.log2(target - 1e-9))))
     return nfft
 
@@ -214,7 +212,7 @@ def amplitude_spectrum(
     want = averages if averages is not None else _DEFAULT_MIN_AVERAGES
 
     if lines is None:
-        candidates = [(ln, _LINES_PER_NFFT * ln) for ln in USUAL_LINES]
+        candidates = [(ln, SPAN_DIVISOR * ln) for ln in USUAL_LINES]
         fits = [
             (ln, int(nf))
             for ln, nf in candidates
@@ -223,7 +221,7 @@ def amplitude_spectrum(
         ]
         if not fits:
             raise InputError(
-                f"samples has {n} values; at least {int(_LINES_PER_NFFT * USUAL_LINES[0])} "
+                f"samples has {n} values; at least {int(SPAN_DIVISOR * USUAL_LINES[0])} "
                 "are needed for the smallest block",
                 field="samples",
                 code="empty",
@@ -288,8 +286,8 @@ def amplitude_spectrum(
         amplitude=amp,
         sample_rate_hz=fs,
         bin_width_hz=fs / nfft,
-        lines=int(nfft / _LINES_PER_NFFT),
-        span_hz=fs / _LINES_PER_NFFT,
+        lines=int(nfft / SPAN_DIVISOR),
+        span_hz=fs / SPAN_DIVISOR,
         window=window,
         averages=int(n_avg),
         nfft=int(nfft),
