@@ -96,7 +96,7 @@ def check_family(
             raise InputError(
                 f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)",
                 field="ripple_db",
-                code="empty",
+                code="missing",
             )
         rp = check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
     elif ripple_db is not None:
@@ -111,7 +111,7 @@ def check_family(
             raise InputError(
                 f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)",
                 field="stop_atten_db",
-                code="empty",
+                code="missing",
             )
         rs = check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
         if rp is not None and rs <= rp:

@@ -100,7 +100,7 @@ def check_label(value: object, name: str = "label") -> str:
         raise InputError(
             f"{name}={short_repr(value)} must be a non-empty string",
             field=name,
-            code="bad_type",
+            code="empty",
             value=value,
         )
     if len(value) > MAX_LABEL_CHARS:
