@@ -64,6 +64,7 @@ MAINLOBE_BINS: dict[str, float] = {
 
 
 def check_analysis_window(window: object) -> str:
+    """The window name, lower-cased, when :data:`MAINLOBE_BINS` knows it (code ``not_allowed``)."""
     if not isinstance(window, str) or window.lower() not in MAINLOBE_BINS:
         raise InputError(
             f"window={window!r} must be one of {', '.join(MAINLOBE_BINS)}",

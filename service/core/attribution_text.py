@@ -48,6 +48,8 @@ ObjArray = NDArray[np.object_]
 
 @dataclass(frozen=True)
 class SentenceContext:
+    """Formatted peak values and the inputs every sentence of one attribution needs."""
+
     freq: dict[int, str]  # formatted peak frequency
     seen_db: dict[int, str]  # formatted peak level
     floor_db: list[float]
@@ -80,6 +82,7 @@ def explanation_for(
     predicted: float,
     error: float,
 ) -> Explanation:
+    """One kept candidate row as an :class:`Explanation` with its sentence."""
     label: str | None
     source: str | None
     if tone >= 0:
@@ -179,6 +182,7 @@ def assemble(
     notes: tuple[str, ...],
     ctx: SentenceContext,
 ) -> Attribution:
+    """Verdict, confidence and sentences per peak, assembled into an :class:`Attribution`."""
     n = freq.size
     verdict = np.empty(n, dtype=object)
     source = np.empty(n, dtype=object)

@@ -239,6 +239,10 @@ def digital_attenuation_db(
 def digital_unchecked(
     f: FloatArray, rate: float, b: FloatArray, a: FloatArray, out: FloatArray | None = None
 ) -> FloatArray:
+    """Attenuation, dB, of ``b, a`` at folded frequencies ``f`` (Hz) at ``rate`` (Hz).
+
+    No input checks: for callers that checked already.
+    """
     if exact_is_cheaper(f.size, b, a):
         return digital_exact(f, rate, b, a, out)
     lo, step = grid_table(b.tobytes(), a.tobytes())
@@ -247,12 +251,14 @@ def digital_unchecked(
 
 
 def exact_is_cheaper(n: int, b: FloatArray, a: FloatArray) -> bool:
+    """Whether ``n`` frequencies are evaluated exactly (below the work limit) rather than on the grid."""
     return n * (b.size + a.size - 1) < _EXACT_WORK_LIMIT
 
 
 def digital_exact(
     f: FloatArray, rate: float, b: FloatArray, a: FloatArray, out: FloatArray | None = None
 ) -> FloatArray:
+    """Exact attenuation, dB, from scipy.signal.freqz at frequencies ``f`` (Hz)."""
     if rate > 1e300:
         # In radians per sample, f / rate first: 2π·f overflows near the float limit.
         _, h = sig.freqz(b, a, worN=np.ravel(f) / rate * (2.0 * np.pi))

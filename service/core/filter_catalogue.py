@@ -230,7 +230,12 @@ class FilterOption:
             stop_atten_db=self.stop_atten_db,
         )
 
-    def _attenuation(self, f: FloatArray, cutoff_hz: float) -> FloatArray:
+    def attenuation_db(self, f: FloatArray, cutoff_hz: float) -> FloatArray:
+        """Attenuation, dB, at checked frequencies ``f`` (Hz) for a cutoff in Hz.
+
+        No input checks: the plan search calls it on its own grids. A cutoff that
+        follows the rate is passed as ``cutoff_hz``; ``none`` gives 0 dB.
+        """
         if self.family == "none":
             return np.zeros_like(f)
         if self.family == "table":

@@ -80,6 +80,7 @@ _MAG_FLOOR = 10.0 ** (-MAX_ATTENUATION_DB / 20.0)
 def check_family(
     family: str, ripple_db: float | None, stop_atten_db: float | None
 ) -> tuple[float | None, float | None]:
+    """Checked ``(ripple_db, stop_atten_db)`` for an analog family (each dB or None)."""
     if family not in ANALOG_FAMILIES:
         names = ", ".join(ANALOG_FAMILIES)
         raise InputError(
@@ -132,6 +133,7 @@ def check_family(
 
 
 def check_table(table_hz: ArrayLike, table_gain_db: ArrayLike) -> tuple[FloatArray, FloatArray]:
+    """A measured response table as arrays: frequencies (Hz, > 0, increasing) and gains (dB)."""
     fx = np.asarray(table_hz, dtype=np.float64).ravel()
     gy = np.asarray(table_gain_db, dtype=np.float64).ravel()
     if fx.size < 2:
@@ -170,6 +172,7 @@ def check_table(table_hz: ArrayLike, table_gain_db: ArrayLike) -> tuple[FloatArr
 
 
 def check_coefficients(values: ArrayLike, name: str) -> FloatArray:
+    """Filter coefficients as a non-empty 1-D array of finite values."""
     c = np.atleast_1d(np.asarray(values, dtype=np.float64))
     if c.ndim != 1 or c.size == 0:
         raise InputError(
@@ -295,6 +298,7 @@ def analog_unchecked(
     stop_atten_db: float | None,
     out: FloatArray | None = None,
 ) -> FloatArray:
+    """Attenuation, dB, of an analog design at frequencies ``f`` (Hz); inputs already checked."""
     with np.errstate(over="ignore"):  # a tiny cutoff gives inf here, clipped next
         w2 = np.multiply(f, 1.0 / cutoff_hz)
     # Beyond f/fc = 1e15 every response is at its high-frequency asymptote or capped at
@@ -435,6 +439,7 @@ def table_attenuation_db(
 
 
 def table_unchecked(f: FloatArray, fx: FloatArray, gy: FloatArray) -> FloatArray:
+    """Attenuation, dB, from a measured table, interpolated on log-frequency; no checks."""
     lx = np.log10(fx)
     lf = np.log10(np.maximum(f, fx[0]))
     att = -np.interp(lf, lx, gy)
@@ -480,6 +485,7 @@ def sensor_attenuation_db(freq_hz: ArrayLike, natural_hz: float, q: float) -> Fl
 
 
 def sensor_unchecked(f: FloatArray, fn: float, q: float) -> FloatArray:
+    """Attenuation, dB (negative near resonance), of a sensor resonance; no checks."""
     with np.errstate(over="ignore"):  # r far above 1e77 only: the attenuation caps anyway
         r2 = np.square(f / fn)
         den = np.square(1.0 - r2)

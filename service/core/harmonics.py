@@ -202,6 +202,7 @@ class Family:
 def check_peaks(
     freq: ArrayLike, amp: ArrayLike, floor: ArrayLike, nyquist: float
 ) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Peak frequencies (Hz, 0 to Nyquist), amplitudes and floor as checked equal-length arrays."""
     f = np.atleast_1d(np.asarray(freq, dtype=np.float64))
     a = np.atleast_1d(np.asarray(amp, dtype=np.float64))
     if f.ndim != 1:

@@ -90,6 +90,7 @@ class PlanImpossible(ValueError):
 
 
 def check_band(band_hz: object) -> tuple[float, float]:
+    """The band of interest ``(low, high)``, Hz, with 0 <= low < high."""
     try:
         lo_raw, hi_raw = list(band_hz)  # type: ignore[call-overload]
     except (TypeError, ValueError):
@@ -119,6 +120,7 @@ def check_band(band_hz: object) -> tuple[float, float]:
 
 
 def check_speed_range(speed_range: object) -> tuple[float, float]:
+    """The speed range ``(min, max)`` as factors of nominal speed (0 to 100)."""
     try:
         lo_raw, hi_raw = list(speed_range)  # type: ignore[call-overload]
     except (TypeError, ValueError):
@@ -155,6 +157,7 @@ def check_speed_range(speed_range: object) -> tuple[float, float]:
 
 
 def check_tones(tones: object) -> ToneSet:
+    """A non-empty ToneSet whose known amplitudes are > 0."""
     if not isinstance(tones, ToneSet):
         raise InputError(
             f"tones must be a ToneSet, got {type(tones).__name__}", field="tones", code="bad_type"
@@ -209,6 +212,7 @@ def fmt_num(x: float, digits: int = 3) -> str:
 
 
 def fmt_hz(x: float, unit: str = "Hz") -> str:
+    """A frequency for a sentence, in Hz or kHz."""
     for scale, prefix in ((1e6, "M"), (1e3, "k")):
         if abs(x) >= scale:
             return f"{fmt_num(x / scale, 4)} {prefix}{unit}"
@@ -216,14 +220,17 @@ def fmt_hz(x: float, unit: str = "Hz") -> str:
 
 
 def fmt_rate(x: float) -> str:
+    """A sample rate for a sentence (S/s, kS/s)."""
     return fmt_hz(x, "S/s")
 
 
 def fmt_db(x: float) -> str:
+    """A level for a sentence, dB."""
     return f"{x:.0f}".replace("-", MINUS) + " dB"
 
 
 def ordinal(n: int) -> str:
+    """1st, 2nd, 3rd, 4th ..."""
     suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
     return f"{n}{suffix}"
 
@@ -242,5 +249,9 @@ def speed_range_from_tolerance(tolerance_pct: float) -> tuple[float, float]:
 
 
 def true_freq(tones: ToneSet, factors: FloatArray) -> FloatArray:
+    """True frequencies ``|fixed + s·speed|``, Hz, of every tone at every speed factor.
+
+    Shape (S, T) for S speed factors and T tones.
+    """
     out: FloatArray = np.abs(tones.at_speed(factors))
     return out

@@ -113,6 +113,7 @@ class SearchOutcome:
 
 
 def freq_range(tones: ToneSet, lo: float, hi: float) -> tuple[FloatArray, FloatArray]:
+    """Lowest and highest true frequency, Hz, of each tone over the speed range."""
     g1 = tones.fixed_hz + lo * tones.speed_hz
     g2 = tones.fixed_hz + hi * tones.speed_hz
     fmax = np.maximum(np.abs(g1), np.abs(g2))
@@ -121,6 +122,7 @@ def freq_range(tones: ToneSet, lo: float, hi: float) -> tuple[FloatArray, FloatA
 
 
 def prepare_problem(req: PlanRequest) -> tuple[SearchProblem, dict[str, object]]:
+    """Checked request turned into the arrays every candidate setup is evaluated on."""
     tones = check_tones(req.tones)
     band = check_band(req.band_hz)
     s_lo, s_hi = check_speed_range(req.speed_range)
@@ -250,6 +252,7 @@ def speed_of_alias(prob: SearchProblem, i: int, f: float, s_lo: float, s_hi: flo
 
 
 def lines_for(fs: float, required_bin: float | None, options: Sequence[int]) -> int:
+    """Fewest offered lines whose bin width (Hz) meets ``required_bin``; 0 when none does."""
     opts = sorted(options)
     if required_bin is None:
         return 3200 if 3200 in opts else opts[0]
@@ -292,13 +295,13 @@ def evaluate_setups(
             both = np.concatenate(
                 [(crit_f / c[:, None]).ravel(), (band_pts[None, :] / c[:, None]).ravel()]
             )
-            att = opt._attenuation(both, 1.0)
+            att = opt.attenuation_db(both, 1.0)
             att_crit[k] = att[: r_n * t_n].reshape(r_n, t_n)
             loss[:, k] = att[r_n * t_n :].reshape(r_n, -1).max(axis=1)
         else:
             cut = opt.cutoff_for(float(rates[0]), prob.band) or 1.0
             both = np.concatenate([grid, crit_f.ravel(), band_pts])
-            att = opt._attenuation(both, cut)
+            att = opt.attenuation_db(both, cut)
             att_grid.append(att[: grid.size])
             att_crit[k] = att[grid.size : grid.size + r_n * t_n].reshape(r_n, t_n)
             loss[:, k] = att[grid.size + r_n * t_n :].max()
@@ -336,7 +339,7 @@ def evaluate_setups(
             g_att = att_grid[k]
             if g_att is None:  # cutoff follows the rate: only the in-band aliases
                 cut = float(opt.cutoff_fraction * fs)  # type: ignore[operator]
-                lev = base - opt._attenuation(grid[idx], cut)
+                lev = base - opt.attenuation_db(grid[idx], cut)
             else:
                 lev = base - g_att[idx]
             c_lev = prob.amp_db[c_t] - att_crit[k, r, c_t]

@@ -96,6 +96,7 @@ def short_repr(value: object) -> str:
 
 
 def check_label(value: object, name: str = "label") -> str:
+    """A non-empty label of at most ``MAX_LABEL_CHARS`` characters."""
     if not isinstance(value, str) or not value.strip():
         raise InputError(
             f"{name}={short_repr(value)} must be a non-empty string",
@@ -113,6 +114,7 @@ def check_label(value: object, name: str = "label") -> str:
 
 
 def as_float(value: object, name: str) -> float:
+    """A number (not bool, not text) as float (code ``not_a_number``)."""
     if isinstance(value, bool) or not isinstance(value, int | float | np.integer | np.floating):
         raise InputError(
             f"{name}={short_repr(value)} must be a number", field=name, code="bad_type", value=value
@@ -171,6 +173,7 @@ def check_amplitudes(
 
 
 def check_one_amplitude_form(amplitude: float | None, harmonic_amplitudes: object) -> None:
+    """Refuse ``amplitude`` and ``harmonic_amplitudes`` together."""
     if amplitude is not None and harmonic_amplitudes is not None:
         raise InputError(
             "give either amplitude (of the main line) or harmonic_amplitudes (one per "
@@ -181,6 +184,7 @@ def check_one_amplitude_form(amplitude: float | None, harmonic_amplitudes: objec
 
 
 def as_sequence(values: object, name: str) -> list[Any]:
+    """A list or array of values (not text, not a mapping) as a list."""
     if isinstance(values, str | bytes | Mapping) or not isinstance(values, Sequence | np.ndarray):
         raise InputError(
             f"{name}={short_repr(values)} must be a list of values",
@@ -267,6 +271,7 @@ class Expandable:
 
 
 def object_array(values: Sequence[str]) -> NDArray[np.object_]:
+    """Strings as a 1-D object array."""
     out = np.empty(len(values), dtype=object)
     out[:] = list(values)
     return out

@@ -59,6 +59,7 @@ DECIMATE_FILTERS = ("fir", "iir", "none")
 def check_number(
     value: Any, name: str, *, low: float = 0.0, high: float | None = None, strict: bool = True
 ) -> float:
+    """A finite number above ``low`` (or at least, with ``strict=False``) and at most ``high``."""
     v = check_finite(value, name)
     if (strict and v <= low) or (not strict and v < low):
         raise bad(
@@ -76,6 +77,7 @@ def check_number(
 
 
 def as_floats(values: Any, name: str) -> tuple[float, ...]:
+    """A flat sequence of numbers as a tuple of floats."""
     try:
         arr = np.atleast_1d(np.asarray(values, dtype=np.float64))
     except (TypeError, ValueError):
@@ -95,6 +97,7 @@ def as_floats(values: Any, name: str) -> tuple[float, ...]:
 
 
 def fmt_number(x: float) -> str:
+    """A number for a stage name (``:g`` style)."""
     return f"{x:.4g}"
 
 
@@ -116,6 +119,7 @@ def fmt_range(lo: float, hi: float) -> str:
 
 
 def ordinal(n: int) -> str:
+    """1st, 2nd, 3rd, 4th ..."""
     if 10 <= n % 100 <= 20:
         suffix = "th"
     else:
