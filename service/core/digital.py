@@ -251,7 +251,7 @@ def digital_unchecked(
 
 
 def exact_is_cheaper(n: int, b: FloatArray, a: FloatArray) -> bool:
-    """Whether ``n`` frequencies are evaluated exactly (below the work limit) rather than on the grid."""
+    """Whether ``n`` frequencies are evaluated exactly (below the work limit), not on the grid."""
     return n * (b.size + a.size - 1) < _EXACT_WORK_LIMIT
 
 
