@@ -4,7 +4,9 @@ Each peak gets ranked explanations, each with a confidence in [0, 1] and one pla
 sentence: ``direct`` (an in-band tone), ``family`` (a harmonic of a known family, in
 band), ``alias`` (a tone, or a member of a blind harmonic family, from a Nyquist zone
 above the first), ``mirror`` (the image of energy just above the Nyquist frequency that
-the anti-alias filtering let through) or, when nothing fits, ``unexplained``.
+the anti-alias filtering let through) or, when nothing fits, ``unexplained``. The
+results and constants live in :mod:`service.core.attribution_model` and the sentences in
+:mod:`service.core.attribution_text` (both re-exported or used here).
 
 Confidence = frequency score × level score, capped at :data:`MAX_CONFIDENCE`: no
 explanation is ever certain. An alias verdict is a hypothesis about the measurement,
@@ -21,7 +23,6 @@ References
 
 from __future__ import annotations
 
-import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from functools import lru_cache
@@ -29,19 +30,44 @@ from functools import lru_cache
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .chain import Chain, ChainResponse
-from .folding import fold_intervals
-from .harmonics import (
+from service.core.analysis_lines import SPAN_DIVISOR
+from service.core.chain import Chain, ChainResponse
+from service.core.checks import check_band_hz, check_one_of, check_positive, check_range
+from service.core.errors import InputError
+from service.core.folding import fold_intervals, fold_unchecked
+from service.core.harmonics import (
     MAX_SOURCE_EXCESS_DB,
     SIGMA_MULTIPLE,
     Family,
-    _check_peaks,
+    check_peaks,
     format_db,
     format_hz,
 )
-from .prediction import SPAN_DIVISOR
-from .spectrum import WINDOWS, window_figures
-from .tones import ToneSet
+from service.core.tones import ToneSet
+from service.core.windows import WINDOWS, window_figures
+
+from .attribution_model import (
+    BELOW_FLOOR_DB,
+    BELOW_FLOOR_FACTOR,
+    FAMILY_FACTOR_LOW,
+    FAMILY_FACTOR_PER_DECADE,
+    KIND_ALIAS,
+    KIND_DIRECT,
+    KIND_FAMILY,
+    KIND_MIRROR,
+    KINDS,
+    MAX_CONFIDENCE,
+    MIN_CONFIDENCE,
+    MIRROR_CONFIDENCE,
+    REFINE_ERROR_BINS,
+    REFINE_ERROR_UNKNOWN_BINS,
+    SIGMA_FRACTION,
+    TIE_RATIO,
+    UNKNOWN_LEVEL_SCORE,
+    Attribution,
+    Explanation,
+)
+from .attribution_text import SentenceContext, assemble, explanation_for
 
 __all__ = [
     "BELOW_FLOOR_DB",
@@ -59,172 +85,6 @@ FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]
 BoolArray = NDArray[np.bool_]
 ObjArray = NDArray[np.object_]
-
-#: Explanation kinds, in the order preferred when confidences are equal.
-KINDS: tuple[str, ...] = ("direct", "family", "alias", "mirror", "unexplained")
-#: A peak's verdict is its best explanation's kind only from this confidence up.
-MIN_CONFIDENCE = 0.3
-#: No explanation is ever certain.
-MAX_CONFIDENCE = 0.95
-#: A second explanation at least this fraction as confident as the best is named too.
-TIE_RATIO = 0.9
-#: Level score when the tone's amplitude is unknown (a level that cannot be checked is
-#: weaker evidence than one that agrees).
-UNKNOWN_LEVEL_SCORE = 0.8
-#: An explanation predicted more than this far below the floor is implausible, dB.
-BELOW_FLOOR_DB = 6.0
-#: ... and its level score is multiplied by this factor.
-BELOW_FLOOR_FACTOR = 0.02
-#: Assumed error of the refined peak frequency, bins, for a known window and for
-#: ``window="unknown"`` (parabolic interpolation is worse).
-REFINE_ERROR_BINS = 0.05
-REFINE_ERROR_UNKNOWN_BINS = 0.1
-#: The frequency score is a Gaussian of the distance outside the tone's apparent
-#: interval with σ = tolerance × this fraction (so it is ~0.01 at the tolerance).
-SIGMA_FRACTION = 1.0 / 3.0
-#: Mirror confidence rises linearly from the protected band edge to fs/2.
-MIRROR_CONFIDENCE = (0.25, 0.5)
-#: Blind family member confidence factor: from this value at the reporting threshold ...
-FAMILY_FACTOR_LOW = 0.5
-#: ... plus this much per decade of chance probability below 1e-4.
-FAMILY_FACTOR_PER_DECADE = 0.05
-
-_KIND_CODE = {k: i for i, k in enumerate(KINDS)}
-_DIRECT, _FAMILY, _ALIAS, _MIRROR = (_KIND_CODE[k] for k in ("direct", "family", "alias", "mirror"))
-
-
-# --------------------------------------------------------------------------- results
-
-
-@dataclass(frozen=True)
-class Explanation:
-    """One way to explain a peak.
-
-    Attributes
-    ----------
-    kind : str
-        ``"direct"``, ``"family"``, ``"alias"`` or ``"mirror"``.
-    confidence : float
-        0 to :data:`MAX_CONFIDENCE`.
-    tone_index : int
-        Index of the tone in the ToneSet; -1 for a blind family member or a mirror.
-    label : str or None
-        Tone label (``"carrier 1×"``), ``"7×"`` for a blind family member, None for a
-        mirror.
-    source : str or None
-        Source label (``"inverter"``) or the blind family's label; None for a mirror.
-    true_hz : float
-        True frequency of the explaining tone (the image ``fs − f`` for a mirror), Hz.
-    zone : int
-        Nyquist zone of ``true_hz`` at the final rate (1 = in band).
-    inverted : bool
-        The tone lands mirrored (even zone).
-    attenuation_db : float
-        The chain's attenuation at ``true_hz``, dB.
-    predicted_amplitude : float
-        Tone amplitude × chain gain, unit of the spectrum; NaN where unknown.
-    sentence : str
-        One plain sentence.
-    freq_error_hz : float
-        Distance of the peak outside the tone's apparent interval, Hz.
-    harmonic : float
-        Harmonic number within the tone's family; NaN if none.
-    family_index : int
-        Index of the blind family (in the list given), -1 otherwise.
-    """
-
-    kind: str
-    confidence: float
-    tone_index: int
-    label: str | None
-    source: str | None
-    true_hz: float
-    zone: int
-    inverted: bool
-    attenuation_db: float
-    predicted_amplitude: float
-    sentence: str
-    freq_error_hz: float = 0.0
-    harmonic: float = float("nan")
-    family_index: int = -1
-
-
-@dataclass(frozen=True, eq=False)
-class Attribution:
-    """Verdicts for every peak (arrays of the peaks' length) and ranked alternatives.
-
-    Attributes
-    ----------
-    freq_hz, amplitude : ndarray
-        The peaks as given (Hz; linear amplitude).
-    verdict : ndarray of str
-        Kind of the best explanation if its confidence >= :data:`MIN_CONFIDENCE`, else
-        ``"unexplained"``.
-    confidence : ndarray
-        Confidence of the best explanation (below :data:`MIN_CONFIDENCE` for an
-        ``"unexplained"`` peak; 0 if there is no candidate at all).
-    source, tone_label : ndarray of str or None
-        Of the verdict's explanation; None for ``"unexplained"`` and ``"mirror"``.
-    true_hz : ndarray
-        True frequency of the verdict's explanation, Hz; NaN if none.
-    zone : ndarray of int
-        Its Nyquist zone; 0 if none.
-    inverted : ndarray of bool
-    explanation : ndarray of str
-        One sentence per peak (naming a second explanation when it is about as good).
-    unprotected : ndarray of bool
-        The peak lies above the alias-protected band edge (final rate / 2.56).
-    in_band : ndarray of bool
-        The peak lies inside the band of interest.
-    alternatives : list of list of Explanation
-        Per peak, up to ``max_alternatives`` explanations, best first.
-    tolerance_hz : float
-        Frequency tolerance used (window main-lobe half-width + refinement error), Hz.
-    protected_edge_hz : float
-        Upper edge of the alias-protected band, Hz.
-    band_hz : (float, float)
-        Band of interest, Hz.
-    notes : tuple of str
-        The chain's warnings.
-    """
-
-    freq_hz: FloatArray
-    amplitude: FloatArray
-    verdict: ObjArray
-    confidence: FloatArray
-    source: ObjArray
-    tone_label: ObjArray
-    true_hz: FloatArray
-    zone: IntArray
-    inverted: BoolArray
-    explanation: ObjArray
-    unprotected: BoolArray
-    in_band: BoolArray
-    alternatives: list[list[Explanation]]
-    tolerance_hz: float
-    protected_edge_hz: float
-    band_hz: tuple[float, float]
-    notes: tuple[str, ...]
-
-    def __len__(self) -> int:
-        return int(self.freq_hz.size)
-
-
-# --------------------------------------------------------------------------- checks
-
-
-def _check_positive(value: float, name: str, unit: str = "") -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0{unit}")
-    return v
-
-
-def _check_window(window: str) -> str:
-    allowed = [*sorted(WINDOWS), "unknown"]
-    if not isinstance(window, str) or window.lower() not in allowed:
-        raise ValueError(f"window={window!r} must be one of {', '.join(allowed)}")
-    return window.lower()
 
 
 @lru_cache(maxsize=8)
@@ -252,29 +112,10 @@ def frequency_tolerance_hz(bin_width_hz: float, window: str = "hann") -> float:
         tones closer than the main-lobe half-width merge into one peak [1]_, and the
         refined frequency carries a small error on top.
     """
-    bw = _check_positive(bin_width_hz, "bin_width_hz", " Hz")
-    w = _check_window(window)
+    bw = check_positive(bin_width_hz, "bin_width_hz", unit=" Hz")
+    w = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
     refine = REFINE_ERROR_UNKNOWN_BINS if w == "unknown" else REFINE_ERROR_BINS
     return bw * (_half_width_bins(w) + refine)
-
-
-def _check_band(band_hz: tuple[float, float] | None, edge: float) -> tuple[float, float]:
-    if band_hz is None:
-        return (0.0, edge)
-    try:
-        lo, hi = (float(v) for v in band_hz)
-    except (TypeError, ValueError):
-        raise ValueError(f"band_hz={band_hz!r} must be two numbers (low, high) in Hz") from None
-    if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
-        raise ValueError(f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high")
-    return (lo, hi)
-
-
-def _check_speed_tolerance(pct: float) -> float:
-    p = float(pct)
-    if not np.isfinite(p) or not 0 <= p <= 50:
-        raise ValueError(f"speed_tolerance_pct={pct!r} must be between 0 and 50")
-    return p
 
 
 def _tone_intervals(
@@ -295,9 +136,6 @@ def _tone_intervals(
         lo = hi = resp.apparent_hz
     level: FloatArray = tones.amplitude * 10.0 ** (-resp.attenuation_db / 20.0)
     return resp, lo, hi, level
-
-
-# --------------------------------------------------------------------------- scores
 
 
 def _db(x: FloatArray) -> FloatArray:
@@ -352,9 +190,6 @@ def _excess_penalty(
 def _family_factor(p_value: float) -> float:
     decades = -np.log10(max(p_value, 1e-300)) - 4.0
     return float(np.clip(FAMILY_FACTOR_LOW + FAMILY_FACTOR_PER_DECADE * decades, 0.3, 1.0))
-
-
-# --------------------------------------------------------------------------- matching
 
 
 def _interval_pairs(
@@ -420,9 +255,6 @@ class _Rows:
         if not parts:
             return np.empty(0, dtype=dtype)
         return np.concatenate(parts).astype(dtype)
-
-
-# --------------------------------------------------------------------------- main
 
 
 def attribute(
@@ -498,109 +330,204 @@ def attribute(
     """
     rate = chain.final_rate_hz
     nyq = rate / 2.0
-    freq, amp, fl = _check_peaks(peaks_freq_hz, peaks_amplitude, floor, nyq)
-    bw = _check_positive(bin_width_hz, "bin_width_hz", " Hz")
-    window = _check_window(window)
-    lvl_tol = _check_positive(level_tolerance_db, "level_tolerance_db", " dB")
+    freq, amp, fl = check_peaks(peaks_freq_hz, peaks_amplitude, floor, nyq)
+    bw = check_positive(bin_width_hz, "bin_width_hz", unit=" Hz")
+    window = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
+    lvl_tol = check_positive(level_tolerance_db, "level_tolerance_db", unit=" dB")
+    n_alt = _check_max_alternatives(max_alternatives)
+    _check_tones(tones)
+    fams = _check_families(families, freq.size)
+    speed_tol = check_range(speed_tolerance_pct, "speed_tolerance_pct", 0, 50)
+
+    peaks = _Peaks(
+        freq=freq,
+        seen_db=_db(amp),
+        floor_db=_db(fl),
+        top_db=float(np.max(_db(amp))) if amp.size else 0.0,
+        tol=frequency_tolerance_hz(bw, window),
+        lvl_tol=lvl_tol,
+    )
+    edge = rate / SPAN_DIVISOR
+    notes: tuple[str, ...] = tuple(chain.validate())
+    band = check_band_hz(band_hz, (0.0, edge))
+
+    rows = _Rows(*([] for _ in range(11)))
+    if tones is not None and len(tones):
+        _add_known_tones(rows, peaks, tones, chain, speed_tol)
+    for fi, fam in enumerate(fams):  # a few families, each vectorised over its members
+        _add_family(rows, peaks, fi, fam, chain)
+    unprotected = freq > edge
+    _add_mirrors(rows, peaks, np.flatnonzero(unprotected), chain, edge)
+
+    kept, r_peak, r_kind, r_zone, r_conf = _rank(rows, freq.size, n_alt)
+    ctx = SentenceContext(
+        freq={int(i): format_hz(freq[i]) for i in np.unique(r_peak[kept])},
+        seen_db={int(i): format_db(peaks.seen_db[i]) for i in np.unique(r_peak[kept])},
+        floor_db=peaks.floor_db.tolist(),
+        tones=tones, families=fams, edge=edge, nyq=nyq, rate=rate,
+    )  # fmt: skip
+    alternatives = _sentences(ctx, rows, kept, r_peak, r_kind, r_zone, r_conf, freq.size)
+    return assemble(freq, amp, alternatives, unprotected, band, peaks.tol, edge, notes, ctx)
+
+
+def _check_max_alternatives(max_alternatives: int) -> int:
     if (
         isinstance(max_alternatives, bool)
         or int(max_alternatives) != max_alternatives
         or not (1 <= int(max_alternatives) <= 20)
     ):
-        raise ValueError(f"max_alternatives={max_alternatives!r} must be between 1 and 20")
-    n_alt = int(max_alternatives)
+        raise InputError(
+            f"max_alternatives={max_alternatives!r} must be between 1 and 20",
+            field="max_alternatives",
+            code="out_of_range",
+            value=max_alternatives,
+        )
+    return int(max_alternatives)
+
+
+def _check_tones(tones: object) -> None:
     if tones is not None and not isinstance(tones, ToneSet):
-        raise ValueError(f"tones must be a ToneSet or None, got {type(tones).__name__}")
+        raise InputError(
+            f"tones must be a ToneSet or None, got {type(tones).__name__}",
+            field="tones",
+            code="bad_type",
+        )
+
+
+def _check_families(families: Sequence[Family] | None, n_peaks: int) -> list[Family]:
     fams = list(families or [])
     for i, fam in enumerate(fams):
         if not isinstance(fam, Family):
-            raise ValueError(f"families[{i}] is a {type(fam).__name__}; expected a Family")
-        bad = [m.peak for m in fam.members if not 0 <= m.peak < freq.size]
+            raise InputError(
+                f"families[{i}] is a {type(fam).__name__}; expected a Family",
+                field=f"families[{i}]",
+                code="bad_type",
+            )
+        bad = [m.peak for m in fam.members if not 0 <= m.peak < n_peaks]
         if bad:
-            raise ValueError(f"families[{i}] refers to peak {bad[0]}; there are {freq.size} peaks")
+            raise InputError(
+                f"families[{i}] refers to peak {bad[0]}; there are {n_peaks} peaks",
+                field=f"families[{i}]",
+                code="out_of_range",
+            )
+    return fams
 
-    speed_tol = _check_speed_tolerance(speed_tolerance_pct)
-    tol = frequency_tolerance_hz(bw, window)
-    edge = rate / SPAN_DIVISOR
-    seen_db = _db(amp)
-    floor_db = _db(fl)
-    top_db = float(np.max(seen_db)) if amp.size else 0.0
-    rows = _Rows(*([] for _ in range(11)))
-    notes: tuple[str, ...] = tuple(chain.validate())
-    band = _check_band(band_hz, edge)
 
-    # ---- known tones: pairs within tolerance of each tone's folded interval
-    if tones is not None and len(tones):
-        resp, lo, hi, level = _tone_intervals(tones, chain, speed_tol)
-        pk, tn = _interval_pairs(freq, lo, hi, tol)
-        dist = np.maximum(np.maximum(lo[tn] - freq[pk], freq[pk] - hi[tn]), 0.0)
-        zone = resp.zone[tn]
-        harm = tones.harmonic[tn]
-        has_family = (tones.family[tn] != "") & np.isfinite(harm)
-        kind = np.where(zone > 1, _ALIAS, np.where(has_family & (harm != 1.0), _FAMILY, _DIRECT))
-        atten = resp.attenuation_db[tn]
-        predicted = level[tn]
-        conf = _freq_score(dist, tol) * _level_score(
-            seen_db[pk], predicted, floor_db[pk], atten, top_db, lvl_tol
-        )
-        rows.add(
-            peak=pk, kind=kind, tone=tn, family=np.int64(-1), harmonic=harm,
-            true_hz=resp.freq_hz[tn], zone=zone, atten=atten, predicted=predicted,
-            error=dist, conf=conf,
-        )  # fmt: skip
+@dataclass(frozen=True)
+class _Peaks:
+    """The checked peaks and the tolerances every candidate is scored with."""
 
-    # ---- blind families: each member is a candidate explanation of its peak
-    for fi, fam in enumerate(fams):  # a few families, each vectorised over its members
-        if not fam.members:
-            continue
-        pk = np.array([m.peak for m in fam.members], dtype=np.int64)
-        k = np.array([m.harmonic for m in fam.members], dtype=np.float64)
-        true = np.array([m.true_hz for m in fam.members], dtype=np.float64)
-        folded = np.abs(k * fam.fundamental_hz - rate * np.rint(k * fam.fundamental_hz / rate))
-        dist = np.abs(folded - freq[pk])
-        tol_k = tol + SIGMA_MULTIPLE * k * fam.uncertainty_hz
-        resp_f = chain.evaluate(true)
-        zone = resp_f.zone
-        kind = np.where(zone > 1, _ALIAS, _FAMILY)
-        atten = resp_f.attenuation_db
-        level = UNKNOWN_LEVEL_SCORE * _excess_penalty(seen_db[pk], atten, top_db, lvl_tol)
-        conf = _freq_score(dist, tol_k) * level * _family_factor(fam.p_value)
-        conf = np.where(dist <= tol_k, conf, 0.0)
-        rows.add(
-            peak=pk, kind=kind, tone=np.int64(-1), family=np.int64(fi), harmonic=k,
-            true_hz=true, zone=zone, atten=atten, predicted=np.float64(np.nan),
-            error=dist, conf=conf,
-        )  # fmt: skip
+    freq: FloatArray  # Hz
+    seen_db: FloatArray  # dB re one unit
+    floor_db: FloatArray  # dB re one unit
+    top_db: float  # strongest peak, dB
+    tol: float  # frequency tolerance, Hz
+    lvl_tol: float  # level tolerance, dB
 
-    # ---- transition-band mirror for peaks above the protected edge
-    unprotected = freq > edge
-    up = np.flatnonzero(unprotected)
-    if up.size:
-        image = rate - freq[up]
-        resp_m = chain.evaluate(image)
-        position = (freq[up] - edge) / max(nyq - edge, 1e-300)
-        low, high = MIRROR_CONFIDENCE
-        conf = (low + (high - low) * np.clip(position, 0.0, 1.0)) * _excess_penalty(
-            seen_db[up], resp_m.attenuation_db, top_db, lvl_tol
-        )
-        rows.add(
-            peak=up, kind=np.int64(_MIRROR), tone=np.int64(-1), family=np.int64(-1),
-            harmonic=np.float64(np.nan), true_hz=image, zone=resp_m.zone,
-            atten=resp_m.attenuation_db, predicted=np.float64(np.nan),
-            error=np.zeros(up.size), conf=conf,
-        )  # fmt: skip
 
-    r_peak = rows.cat("peak", np.int64)
-    r_kind = rows.cat("kind", np.int64)
-    r_zone = rows.cat("zone", np.int64)
-    r_conf = np.minimum(rows.cat("conf", np.float64), MAX_CONFIDENCE)
-    # Best first per peak; on equal confidence prefer the simpler kind, then lower zone.
+def _add_known_tones(
+    rows: _Rows, peaks: _Peaks, tones: ToneSet, chain: Chain, speed_tol: float
+) -> None:
+    """Candidates from known tones: pairs within tolerance of each folded interval."""
+    freq = peaks.freq
+    resp, lo, hi, level = _tone_intervals(tones, chain, speed_tol)
+    pk, tn = _interval_pairs(freq, lo, hi, peaks.tol)
+    dist = np.maximum(np.maximum(lo[tn] - freq[pk], freq[pk] - hi[tn]), 0.0)
+    zone = resp.zone[tn]
+    harm = tones.harmonic[tn]
+    has_family = (tones.family[tn] != "") & np.isfinite(harm)
+    kind = np.where(
+        zone > 1, KIND_ALIAS, np.where(has_family & (harm != 1.0), KIND_FAMILY, KIND_DIRECT)
+    )
+    atten = resp.attenuation_db[tn]
+    predicted = level[tn]
+    conf = _freq_score(dist, peaks.tol) * _level_score(
+        peaks.seen_db[pk], predicted, peaks.floor_db[pk], atten, peaks.top_db, peaks.lvl_tol
+    )
+    rows.add(
+        peak=pk, kind=kind, tone=tn, family=np.int64(-1), harmonic=harm,
+        true_hz=resp.freq_hz[tn], zone=zone, atten=atten, predicted=predicted,
+        error=dist, conf=conf,
+    )  # fmt: skip
+
+
+def _add_family(rows: _Rows, peaks: _Peaks, fi: int, fam: Family, chain: Chain) -> None:
+    """Candidates from one blind family: each member explains its own peak."""
+    if not fam.members:
+        return
+    pk = np.array([m.peak for m in fam.members], dtype=np.int64)
+    k = np.array([m.harmonic for m in fam.members], dtype=np.float64)
+    true = np.array([m.true_hz for m in fam.members], dtype=np.float64)
+    folded = fold_unchecked(k * fam.fundamental_hz, chain.final_rate_hz)
+    dist = np.abs(folded - peaks.freq[pk])
+    tol_k = peaks.tol + SIGMA_MULTIPLE * k * fam.uncertainty_hz
+    resp_f = chain.evaluate(true)
+    zone = resp_f.zone
+    kind = np.where(zone > 1, KIND_ALIAS, KIND_FAMILY)
+    atten = resp_f.attenuation_db
+    level = UNKNOWN_LEVEL_SCORE * _excess_penalty(
+        peaks.seen_db[pk], atten, peaks.top_db, peaks.lvl_tol
+    )
+    conf = _freq_score(dist, tol_k) * level * _family_factor(fam.p_value)
+    conf = np.where(dist <= tol_k, conf, 0.0)
+    rows.add(
+        peak=pk, kind=kind, tone=np.int64(-1), family=np.int64(fi), harmonic=k,
+        true_hz=true, zone=zone, atten=atten, predicted=np.float64(np.nan),
+        error=dist, conf=conf,
+    )  # fmt: skip
+
+
+def _add_mirrors(rows: _Rows, peaks: _Peaks, up: IntArray, chain: Chain, edge: float) -> None:
+    """Transition-band mirror candidates for the peaks above the protected edge."""
+    if not up.size:
+        return
+    rate = chain.final_rate_hz
+    nyq = rate / 2.0
+    image = rate - peaks.freq[up]
+    resp_m = chain.evaluate(image)
+    position = (peaks.freq[up] - edge) / max(nyq - edge, 1e-300)
+    low, high = MIRROR_CONFIDENCE
+    conf = (low + (high - low) * np.clip(position, 0.0, 1.0)) * _excess_penalty(
+        peaks.seen_db[up], resp_m.attenuation_db, peaks.top_db, peaks.lvl_tol
+    )
+    rows.add(
+        peak=up, kind=np.int64(KIND_MIRROR), tone=np.int64(-1), family=np.int64(-1),
+        harmonic=np.float64(np.nan), true_hz=image, zone=resp_m.zone,
+        atten=resp_m.attenuation_db, predicted=np.float64(np.nan),
+        error=np.zeros(up.size), conf=conf,
+    )  # fmt: skip
+
+
+def _rank(
+    rows: _Rows, n_peaks: int, n_alt: int
+) -> tuple[IntArray, IntArray, IntArray, IntArray, FloatArray]:
+    """Rows kept (best ``n_alt`` per peak) and the peak, kind, zone, confidence columns.
+
+    Best first per peak; on equal confidence the simpler kind, then the lower zone.
+    """
+    r_peak: IntArray = rows.cat("peak", np.int64).astype(np.int64)
+    r_kind: IntArray = rows.cat("kind", np.int64).astype(np.int64)
+    r_zone: IntArray = rows.cat("zone", np.int64).astype(np.int64)
+    r_conf: FloatArray = np.minimum(rows.cat("conf", np.float64).astype(np.float64), MAX_CONFIDENCE)
     order = np.lexsort((r_zone, r_kind, -r_conf, r_peak))
     s_peak = r_peak[order]
-    starts = np.searchsorted(s_peak, np.arange(freq.size), side="left")
+    starts = np.searchsorted(s_peak, np.arange(n_peaks), side="left")
     rank = np.arange(order.size) - starts[s_peak] if order.size else np.empty(0, np.int64)
-    kept = order[rank < n_alt]
+    kept: IntArray = order[rank < n_alt].astype(np.int64)
+    return kept, r_peak, r_kind, r_zone, r_conf
 
+
+def _sentences(
+    ctx: SentenceContext,
+    rows: _Rows,
+    kept: IntArray,
+    r_peak: IntArray,
+    r_kind: IntArray,
+    r_zone: IntArray,
+    r_conf: FloatArray,
+    n_peaks: int,
+) -> list[list[Explanation]]:
+    """Only the kept rows become explanations with sentences, as Python scalars."""
     table = {
         name: rows.cat(name, dt)
         for name, dt in (
@@ -609,14 +536,7 @@ def attribute(
             ("error", np.float64),
         )
     }  # fmt: skip
-    peaks_with_rows = np.unique(r_peak[kept])
-    p_text = {int(i): format_hz(freq[i]) for i in peaks_with_rows}
-    seen_text = {int(i): format_db(seen_db[i]) for i in peaks_with_rows}
-    ctx = _SentenceContext(
-        freq=p_text, seen_db=seen_text, floor_db=floor_db.tolist(),
-        tones=tones, families=fams, edge=edge, nyq=nyq, rate=rate,
-    )  # fmt: skip
-    alternatives: list[list[Explanation]] = [[] for _ in range(freq.size)]
+    alternatives: list[list[Explanation]] = [[] for _ in range(n_peaks)]
     cols = [
         r_peak[kept].tolist(), r_kind[kept].tolist(), r_conf[kept].tolist(),
         *(table[name][kept].tolist() for name in (
@@ -624,199 +544,6 @@ def attribute(
         r_zone[kept].tolist(),
         *(table[name][kept].tolist() for name in ("atten", "predicted", "error")),
     ]  # fmt: skip
-    for args in zip(*cols, strict=True):  # only the kept explanations, as Python scalars
-        alternatives[args[0]].append(_explanation(ctx, *args))
-    return _assemble(freq, amp, alternatives, unprotected, band, tol, edge, notes, ctx)
-
-
-# --------------------------------------------------------------------------- sentences
-
-
-@dataclass(frozen=True)
-class _SentenceContext:
-    freq: dict[int, str]  # formatted peak frequency
-    seen_db: dict[int, str]  # formatted peak level
-    floor_db: list[float]
-    tones: ToneSet | None
-    families: list[Family]
-    edge: float
-    nyq: float
-    rate: float
-
-
-def _hedge(conf: float) -> str:
-    if conf >= 0.7:
-        return "is probably"
-    if conf >= MIN_CONFIDENCE:
-        return "may be"
-    return "is unlikely to be"
-
-
-def _explanation(
-    ctx: _SentenceContext,
-    peak: int,
-    kind: int,
-    conf: float,
-    tone: int,
-    family: int,
-    harmonic: float,
-    true_hz: float,
-    zone: int,
-    atten: float,
-    predicted: float,
-    error: float,
-) -> Explanation:
-    label: str | None
-    source: str | None
-    if tone >= 0:
-        assert ctx.tones is not None
-        label, source = str(ctx.tones.label[tone]), str(ctx.tones.source[tone])
-        what = f"{label} of '{source}'"
-    elif family >= 0:
-        fam = ctx.families[family]
-        label, source = f"{int(harmonic)}×", fam.label
-        what = (
-            f"harmonic {int(harmonic)}× of a {format_hz(fam.fundamental_hz, 4)} harmonic "
-            "family found without sources"
-        )
-    else:
-        label = source = None
-        what = ""
-    inverted = zone % 2 == 0
-    p = ctx.freq[peak]
-    hedge = _hedge(conf)
-    seen = ctx.seen_db[peak]
-    if math.isfinite(predicted):
-        pred_db = 20.0 * math.log10(max(predicted, 1e-300))
-        level = f"; expected {format_db(pred_db)}, seen {seen}"
-        if pred_db < ctx.floor_db[peak] - BELOW_FLOOR_DB:
-            level += f", but that is far below the floor ({format_db(ctx.floor_db[peak])})"
-    else:
-        level = f"; seen {seen}" if tone < 0 else f"; its level is not given, seen {seen}"
-    kind_name = KINDS[kind]
-    if kind == _MIRROR:
-        sentence = (
-            f"{p} lies in the unprotected band above {format_hz(ctx.edge)} and {hedge} the "
-            f"image of energy at {format_hz(true_hz)}, just above the Nyquist frequency "
-            f"{format_hz(ctx.nyq)}, that the filter's transition band let through; the "
-            f"chain takes {format_db(atten)} off {format_hz(true_hz)}"
-        )
-    elif kind == _ALIAS:
-        flip = " (inverted)" if inverted else ""
-        sentence = (
-            f"{p} {hedge} {'the ' if tone >= 0 else ''}{what} at {format_hz(true_hz, 4)} "
-            f"folded from zone {zone}"
-            f"{flip}; the chain takes {format_db(atten)} off it{level}"
-        )
-    elif kind == _FAMILY and tone >= 0:
-        assert ctx.tones is not None
-        fam_name = str(ctx.tones.family[tone])
-        sentence = (
-            f"{p} {hedge} harmonic {_fmt_harmonic(harmonic)}× of {fam_name} ({label}, "
-            f"at {format_hz(true_hz, 4)}, in band){level}"
-        )
-    elif kind == _FAMILY:
-        sentence = f"{p} {hedge} {what} (at {format_hz(true_hz, 4)}, in band){level}"
-    else:
-        sentence = f"{p} {hedge} {what} (at {format_hz(true_hz, 4)}, in band){level}"
-    return Explanation(
-        kind=kind_name,
-        confidence=conf,
-        tone_index=tone,
-        label=label,
-        source=source,
-        true_hz=true_hz,
-        zone=zone,
-        inverted=bool(inverted),
-        attenuation_db=atten,
-        predicted_amplitude=predicted,
-        sentence=sentence,
-        freq_error_hz=error,
-        harmonic=harmonic,
-        family_index=family,
-    )
-
-
-def _fmt_harmonic(h: float) -> str:
-    return f"{int(h)}" if float(h).is_integer() else f"{h:g}"
-
-
-def _short(e: Explanation) -> str:
-    """A short phrase naming an alternative explanation."""
-    if e.kind == "mirror":
-        return f"the image of energy at {format_hz(e.true_hz)} (mirror)"
-    if e.tone_index >= 0:
-        what = f"the {e.label} of '{e.source}'"
-    else:
-        what = f"harmonic {e.label} of the {e.source}"
-    if e.kind == "alias":
-        return f"{what} folded from zone {e.zone} (true {format_hz(e.true_hz, 4)})"
-    return f"{what} (in band)"
-
-
-def _assemble(
-    freq: FloatArray,
-    amp: FloatArray,
-    alternatives: list[list[Explanation]],
-    unprotected: BoolArray,
-    band: tuple[float, float],
-    tol: float,
-    edge: float,
-    notes: tuple[str, ...],
-    ctx: _SentenceContext,
-) -> Attribution:
-    n = freq.size
-    verdict = np.empty(n, dtype=object)
-    source = np.empty(n, dtype=object)
-    label = np.empty(n, dtype=object)
-    sentence = np.empty(n, dtype=object)
-    conf = np.zeros(n)
-    true = np.full(n, np.nan)
-    zone = np.zeros(n, dtype=np.int64)
-    inverted = np.zeros(n, dtype=bool)
-    for i, alts in enumerate(alternatives):  # one sentence per peak
-        best = alts[0] if alts else None
-        if best is None or best.confidence < MIN_CONFIDENCE:
-            verdict[i] = "unexplained"
-            conf[i] = best.confidence if best is not None else 0.0
-            text = f"no known tone, family or mirror convincingly explains {format_hz(freq[i])}"
-            if best is not None:
-                text += f"; the closest is {_short(best)}, confidence {best.confidence:.2f}"
-            if unprotected[i]:
-                text += f"; it lies in the unprotected band above {format_hz(edge)}"
-            # Say what would settle it: the engineer's next step, not only the verdict.
-            text += (
-                "; to settle it, name the machine's sources or capture again at a second "
-                "sample rate"
-            )
-            sentence[i] = text
-            continue
-        verdict[i] = best.kind
-        conf[i] = best.confidence
-        if best.kind != "mirror":
-            source[i], label[i] = best.source, best.label
-        true[i], zone[i], inverted[i] = best.true_hz, best.zone, best.inverted
-        text = best.sentence
-        if len(alts) > 1 and alts[1].confidence >= TIE_RATIO * best.confidence:
-            text += f"; or, about as likely, {_short(alts[1])}"
-        sentence[i] = text
-    in_band = (freq >= band[0]) & (freq <= band[1])
-    return Attribution(
-        freq_hz=freq,
-        amplitude=amp,
-        verdict=verdict,
-        confidence=conf,
-        source=source,
-        tone_label=label,
-        true_hz=true,
-        zone=zone,
-        inverted=inverted,
-        explanation=sentence,
-        unprotected=unprotected,
-        in_band=in_band,
-        alternatives=alternatives,
-        tolerance_hz=tol,
-        protected_edge_hz=edge,
-        band_hz=band,
-        notes=notes,
-    )
+    for args in zip(*cols, strict=True):
+        alternatives[args[0]].append(explanation_for(ctx, *args))
+    return alternatives

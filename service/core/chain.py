@@ -4,7 +4,8 @@ A chain is an ordered tuple of stages: optional sensor resonance and analog low-
 filters (acting on the true frequency), one converter (``Sample``), then digital
 low-pass filters and decimators (acting on the frequency as folded at the rate in
 force at that point). ``Chain.evaluate`` pushes an array of tone frequencies through
-all of them at once.
+all of them at once. The stages themselves live in :mod:`service.core.stages`
+(re-exported here).
 
 With integer decimation the apparent frequency after the whole chain is
 ``fold(f, final_rate)``, because ``fold(fold(f, fs), fs/M) = fold(f, fs/M)`` for integer
@@ -24,16 +25,29 @@ from __future__ import annotations
 
 import dataclasses
 import functools
-import math
 from dataclasses import dataclass, field
-from typing import Any, ClassVar
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from service.core import digital as _dig
 from service.core import filters as _flt
-from service.core.filters import _show
-from service.core.folding import _fold_unchecked, _zone_unchecked
+from service.core.checks import check_freqs
+from service.core.errors import InputError
+from service.core.folding import check_fold_range, fold_unchecked, zone_unchecked
+
+from .stages import (
+    STAGE_TYPES,
+    AnalogLowpass,
+    Decimate,
+    DigitalLowpass,
+    Sample,
+    SensorResonance,
+    Stage,
+    fmt_hz,
+    fmt_range,
+)
 
 __all__ = [
     "AnalogLowpass",
@@ -49,375 +63,8 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]
 
-_MAX_DECIMATION = 4096
+
 _MIN_FINAL_RATE_HZ = 1.0
-_DECIMATE_FILTERS = ("fir", "iir", "none")
-
-
-# --------------------------------------------------------------------------- helpers
-
-
-def _check_number(
-    value: Any, name: str, *, low: float = 0.0, high: float | None = None, strict: bool = True
-) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}={_show(value)!r} must be a number") from None
-    if isinstance(value, bool) or not math.isfinite(v):
-        raise ValueError(f"{name}={_show(value)!r} must be a finite number")
-    if (strict and v <= low) or (not strict and v < low):
-        raise ValueError(f"{name}={_show(value)!r} must be {'>' if strict else '>='} {low:g}")
-    if high is not None and v > high:
-        raise ValueError(f"{name}={_show(value)!r} must be <= {high:g}")
-    return v
-
-
-_check_int = _flt._check_int
-
-
-def _as_floats(values: Any, name: str) -> tuple[float, ...]:
-    try:
-        arr = np.atleast_1d(np.asarray(values, dtype=np.float64))
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}={values!r} must be a sequence of numbers") from None
-    if arr.ndim != 1:
-        raise ValueError(f"{name} must be a flat sequence of numbers, got shape {arr.shape}")
-    return tuple(float(v) for v in arr)
-
-
-def _fmt_number(x: float) -> str:
-    return f"{x:.4g}"
-
-
-def _fmt_hz(x: float, unit: str = "Hz") -> str:
-    """'6.4 kHz', '512 Hz', '1.2 MHz' (up to four significant digits)."""
-    for scale, prefix in ((1e9, "G"), (1e6, "M"), (1e3, "k")):
-        if abs(x) >= scale:
-            return f"{_fmt_number(x / scale)} {prefix}{unit}"
-    return f"{_fmt_number(x)} {unit}"
-
-
-def _fmt_range(lo: float, hi: float) -> str:
-    """'1.6 and 6.4 kHz' when both share a unit, else '800 Hz and 1.6 kHz'."""
-    a, b = _fmt_hz(lo), _fmt_hz(hi)
-    unit_a, unit_b = a.split(" ")[1], b.split(" ")[1]
-    if unit_a == unit_b:
-        return f"{a.split(' ')[0]} and {b}"
-    return f"{a} and {b}"
-
-
-def _ordinal(n: int) -> str:
-    if 10 <= n % 100 <= 20:
-        suffix = "th"
-    else:
-        suffix = {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
-    return f"{n}{suffix}"
-
-
-_FAMILY_NAMES = {
-    "butterworth": "butterworth",
-    "chebyshev1": "chebyshev I",
-    "chebyshev2": "chebyshev II",
-    "elliptic": "elliptic",
-    "bessel": "bessel",
-}
-
-
-# --------------------------------------------------------------------------- stages
-
-
-@dataclass(frozen=True)
-class SensorResonance:
-    """Mounted resonance of the sensor, a second-order peak at the true frequency.
-
-    Attributes
-    ----------
-    natural_hz : float
-        Mounted resonance frequency, Hz, > 0.
-    q : float
-        Quality factor (gain at resonance), > 0 and <= 1000.
-    """
-
-    natural_hz: float
-    q: float
-    kind: ClassVar[str] = "sensor"
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "natural_hz", _check_number(self.natural_hz, "natural_hz"))
-        object.__setattr__(self, "q", _check_number(self.q, "q", high=1000.0))
-
-    def name(self) -> str:
-        return f"sensor resonance {_fmt_hz(self.natural_hz)}, Q {_fmt_number(self.q)}"
-
-
-@dataclass(frozen=True)
-class AnalogLowpass:
-    """Analog low-pass filter ahead of the converter: a family design or a measured table.
-
-    Attributes
-    ----------
-    family : str, optional
-        ``"butterworth"``, ``"chebyshev1"``, ``"chebyshev2"``, ``"elliptic"`` or
-        ``"bessel"``; see :func:`service.core.filters.analog_attenuation_db` for what
-        ``cutoff_hz`` means in each.
-    order : int, optional
-        Filter order, 1 to 20 (with ``family``).
-    cutoff_hz : float, optional
-        Cutoff frequency, Hz (with ``family``).
-    ripple_db : float, optional
-        Passband ripple, dB (Chebyshev I, elliptic).
-    stop_atten_db : float, optional
-        Stopband attenuation, dB (Chebyshev II, elliptic).
-    table_hz : tuple of float, optional
-        Measured response frequencies, Hz, strictly increasing (instead of ``family``).
-    table_gain_db : tuple of float, optional
-        Measured gain at each ``table_hz``, dB (negative = loss).
-    """
-
-    family: str | None = None
-    order: int | None = None
-    cutoff_hz: float | None = None
-    ripple_db: float | None = None
-    stop_atten_db: float | None = None
-    table_hz: tuple[float, ...] | None = None
-    table_gain_db: tuple[float, ...] | None = None
-    kind: ClassVar[str] = "analog_lowpass"
-
-    def __post_init__(self) -> None:
-        set_ = object.__setattr__
-        design = [
-            n
-            for n in ("family", "order", "cutoff_hz", "ripple_db", "stop_atten_db")
-            if getattr(self, n) is not None
-        ]
-        table = [n for n in ("table_hz", "table_gain_db") if getattr(self, n) is not None]
-        if design and table:
-            raise ValueError(
-                f"give either a filter design (family, order, cutoff_hz) or a measured "
-                f"table (table_hz, table_gain_db), not both: got {', '.join(design + table)}"
-            )
-        if table:
-            if len(table) != 2:
-                raise ValueError("a measured table needs both table_hz and table_gain_db")
-            fx = _as_floats(self.table_hz, "table_hz")
-            gy = _as_floats(self.table_gain_db, "table_gain_db")
-            _flt._check_table(fx, gy)
-            set_(self, "table_hz", fx)
-            set_(self, "table_gain_db", gy)
-            return
-        if self.family is None or self.order is None or self.cutoff_hz is None:
-            raise ValueError(
-                "an analog low-pass needs family, order and cutoff_hz (or a measured "
-                "table_hz + table_gain_db)"
-            )
-        rp, rs = _flt._check_family(self.family, self.ripple_db, self.stop_atten_db)
-        set_(self, "order", _check_int(self.order, "order", 1, 20))
-        set_(self, "cutoff_hz", _check_number(self.cutoff_hz, "cutoff_hz"))
-        set_(self, "ripple_db", rp)
-        set_(self, "stop_atten_db", rs)
-
-    @property
-    def is_table(self) -> bool:
-        return self.table_hz is not None
-
-    def name(self) -> str:
-        if self.table_hz is not None:
-            return f"analog measured response ({len(self.table_hz)} points)"
-        assert self.family is not None and self.order is not None
-        assert self.cutoff_hz is not None
-        text = (
-            f"analog {_FAMILY_NAMES[self.family]} {_ordinal(self.order)} order, "
-            f"{_fmt_hz(self.cutoff_hz)}"
-        )
-        extras = []
-        if self.ripple_db is not None:
-            extras.append(f"{_fmt_number(self.ripple_db)} dB ripple")
-        if self.stop_atten_db is not None:
-            extras.append(f"{_fmt_number(self.stop_atten_db)} dB stopband")
-        return text + (f" ({', '.join(extras)})" if extras else "")
-
-    def attenuation_db(self, f: FloatArray, out: FloatArray | None = None) -> FloatArray:
-        """Attenuation, dB, at true frequencies ``f``, Hz (checked by the caller)."""
-        if self.table_hz is not None:
-            assert self.table_gain_db is not None
-            att = _flt._table_unchecked(
-                f, np.asarray(self.table_hz), np.asarray(self.table_gain_db)
-            )
-            if out is not None:
-                out[...] = att
-                return out
-            return att
-        assert self.family is not None and self.order is not None
-        assert self.cutoff_hz is not None
-        return _flt._analog_unchecked(
-            f, self.family, self.order, self.cutoff_hz, self.ripple_db, self.stop_atten_db, out
-        )
-
-
-@dataclass(frozen=True)
-class Sample:
-    """The converter: samples the (filtered) analog signal at ``rate_hz``.
-
-    Attributes
-    ----------
-    rate_hz : float
-        Sample rate, Hz (samples per second), > 0. For a sigma-delta converter, the
-        modulator rate, followed by its digital filter and decimation stages.
-    """
-
-    rate_hz: float
-    kind: ClassVar[str] = "sample"
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "rate_hz", _check_number(self.rate_hz, "rate_hz"))
-
-    def name(self) -> str:
-        return f"sample {_fmt_hz(self.rate_hz, 'S/s')}"
-
-
-@dataclass(frozen=True)
-class DigitalLowpass:
-    """Digital low-pass filter at the current rate: a spec or explicit coefficients.
-
-    Attributes
-    ----------
-    passband_hz, stopband_hz : float, optional
-        Passband and stopband edges, Hz; a spec is designed as a Kaiser-window FIR at
-        the rate in force where the stage sits
-        (:func:`service.core.filters.design_lowpass_fir`).
-    atten_db : float, optional
-        Stopband attenuation of the spec, dB, 10 to 200.
-    b, a : tuple of float, optional
-        Explicit numerator and denominator coefficients (``a`` defaults to ``(1.0,)``,
-        an FIR). An IIR must be stable.
-    """
-
-    passband_hz: float | None = None
-    stopband_hz: float | None = None
-    atten_db: float | None = None
-    b: tuple[float, ...] | None = None
-    a: tuple[float, ...] | None = None
-    kind: ClassVar[str] = "digital_lowpass"
-
-    def __post_init__(self) -> None:
-        set_ = object.__setattr__
-        spec = [
-            n for n in ("passband_hz", "stopband_hz", "atten_db") if getattr(self, n) is not None
-        ]
-        coef = [n for n in ("b", "a") if getattr(self, n) is not None]
-        if spec and coef:
-            raise ValueError(
-                "give either a spec (passband_hz, stopband_hz, atten_db) or coefficients "
-                f"(b, a), not both: got {', '.join(spec + coef)}"
-            )
-        if coef:
-            if self.b is None:
-                raise ValueError("explicit coefficients need b (a defaults to (1.0,))")
-            b = _as_floats(self.b, "b")
-            a = _as_floats(self.a if self.a is not None else (1.0,), "a")
-            _flt._check_coefficients(b, "b")
-            _flt._check_coefficients(a, "a")
-            if a[0] == 0:
-                raise ValueError(f"a[0]={a[0]!r} must be non-zero")
-            if len(a) > 1:
-                radius = float(np.max(np.abs(np.roots(a))))
-                if radius >= 1.0:
-                    raise ValueError(
-                        f"a={a!r} has a pole at radius {radius:.6g}; an IIR filter must be "
-                        "stable (all poles inside the unit circle, radius < 1)"
-                    )
-            set_(self, "b", b)
-            set_(self, "a", a)
-            return
-        if len(spec) != 3:
-            raise ValueError(
-                "a digital low-pass needs passband_hz, stopband_hz and atten_db (or "
-                "explicit coefficients b, a)"
-            )
-        fp = _check_number(self.passband_hz, "passband_hz")
-        fstop = _check_number(self.stopband_hz, "stopband_hz")
-        att = _check_number(self.atten_db, "atten_db", low=10.0, strict=False, high=200.0)
-        if fp >= fstop:
-            raise ValueError(
-                f"passband_hz={self.passband_hz!r} must be below stopband_hz={self.stopband_hz!r}"
-            )
-        set_(self, "passband_hz", fp)
-        set_(self, "stopband_hz", fstop)
-        set_(self, "atten_db", att)
-
-    @property
-    def is_spec(self) -> bool:
-        return self.b is None
-
-    def coefficients(self, rate_hz: float) -> tuple[FloatArray, FloatArray]:
-        """Numerator and denominator at ``rate_hz`` (a spec is designed there)."""
-        if self.b is not None:
-            assert self.a is not None
-            return np.asarray(self.b), np.asarray(self.a)
-        assert self.passband_hz is not None and self.stopband_hz is not None
-        assert self.atten_db is not None
-        taps = _flt.design_lowpass_fir(rate_hz, self.passband_hz, self.stopband_hz, self.atten_db)
-        return taps, np.ones(1)
-
-    def name(self, rate_hz: float) -> str:
-        b, a = self.coefficients(rate_hz)
-        if self.is_spec:
-            assert self.passband_hz is not None and self.stopband_hz is not None
-            assert self.atten_db is not None
-            return (
-                f"digital low-pass {_fmt_hz(self.passband_hz)} to "
-                f"{_fmt_hz(self.stopband_hz)}, {_fmt_number(self.atten_db)} dB "
-                f"(FIR, {b.size} taps)"
-            )
-        if a.size > 1:
-            return f"digital filter (IIR, order {max(b.size, a.size) - 1})"
-        return f"digital filter (FIR, {b.size} taps)"
-
-
-@dataclass(frozen=True)
-class Decimate:
-    """Keep every ``factor``-th sample, after an optional anti-alias filter.
-
-    Attributes
-    ----------
-    factor : int
-        Decimation factor M, 1 to 4096 (1 to 13 with ``filter="iir"``).
-    filter : {"fir", "iir", "none"}
-        ``"fir"`` and ``"iir"``: the filters scipy.signal.decimate applies
-        (:func:`service.core.filters.decimation_filter`); ``"none"``: a plain slice
-        ``x[::M]``, so everything between the new and the old Nyquist frequency folds.
-    """
-
-    factor: int
-    filter: str = "fir"
-    kind: ClassVar[str] = "decimate"
-
-    def __post_init__(self) -> None:
-        if self.filter not in _DECIMATE_FILTERS:
-            raise ValueError(f"filter={_show(self.filter)!r} must be one of 'fir', 'iir', 'none'")
-        high = 13 if self.filter == "iir" else _MAX_DECIMATION
-        factor = _check_int(self.factor, "factor", 1, high)
-        object.__setattr__(self, "factor", factor)
-
-    def coefficients(self) -> tuple[FloatArray, FloatArray] | None:
-        if self.filter == "none":
-            return None
-        return _flt.decimation_filter(self.factor, self.filter)
-
-    def name(self) -> str:
-        if self.filter == "none":
-            return f"decimate ÷{self.factor} (no filter)"
-        if self.filter == "fir":
-            return f"decimate ÷{self.factor} (FIR, {20 * self.factor + 1} taps)"
-        return f"decimate ÷{self.factor} (IIR chebyshev I, 8th order)"
-
-
-Stage = SensorResonance | AnalogLowpass | Sample | DigitalLowpass | Decimate
-_STAGE_TYPES = (SensorResonance, AnalogLowpass, Sample, DigitalLowpass, Decimate)
-
-
-# --------------------------------------------------------------------------- response
 
 
 @dataclass(frozen=True)
@@ -458,9 +105,6 @@ class ChainResponse:
     fold_stage: NDArray[np.int64]
 
 
-# --------------------------------------------------------------------------- chain
-
-
 @dataclass(frozen=True)
 class _Plan:
     """What the chain's structure implies: rates, filter coefficients and notes."""
@@ -498,10 +142,13 @@ class Chain:
     def __post_init__(self) -> None:
         stages = tuple(self.stages)
         for i, st in enumerate(stages):
-            if not isinstance(st, _STAGE_TYPES):
-                raise ValueError(
+            if not isinstance(st, STAGE_TYPES):
+                raise InputError(
                     f"stages[{i}]={st!r} is not a chain stage (SensorResonance, "
-                    "AnalogLowpass, Sample, DigitalLowpass or Decimate)"
+                    "AnalogLowpass, Sample, DigitalLowpass or Decimate)",
+                    field=f"stages[{i}]",
+                    code="bad_type",
+                    value=st,
                 )
         object.__setattr__(self, "stages", stages)
         object.__setattr__(self, "_plan", _analyse(stages))
@@ -512,7 +159,12 @@ class Chain:
         stages: tuple[Stage, ...] = (Sample(sample_rate_hz),)
         if anti_alias is not None:
             if not isinstance(anti_alias, AnalogLowpass):
-                raise ValueError(f"anti_alias={anti_alias!r} must be an AnalogLowpass or None")
+                raise InputError(
+                    f"anti_alias={anti_alias!r} must be an AnalogLowpass or None",
+                    field="anti_alias",
+                    code="bad_type",
+                    value=anti_alias,
+                )
             stages = (anti_alias, *stages)
         return cls(stages)
 
@@ -588,12 +240,17 @@ class Chain:
         ----------
         .. [2] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.6.
         """
-        f = _flt._check_freqs(freq_hz)
+        f = check_freqs(freq_hz)
         if f.ndim > 1:
-            raise ValueError(f"freq_hz must be a scalar or 1-D, got shape {f.shape}")
+            raise InputError(
+                f"freq_hz must be a scalar or 1-D, got shape {f.shape}",
+                field="freq_hz",
+                code="bad_type",
+            )
         f = np.atleast_1d(f)
         n = f.size
         plan = self._plan
+        check_fold_range(f, plan.final_rate_hz)
         rows = np.empty((len(self.stages), n))
         active: list[int] = []  # rows that are not identically 0 dB
         folded = f  # frequency seen at the current rate (true frequency before sampling)
@@ -601,14 +258,14 @@ class Chain:
         for i, st in enumerate(self.stages):
             rate = plan.input_rates[i]
             if isinstance(st, SensorResonance):
-                rows[i] = _flt._sensor_unchecked(f, st.natural_hz, st.q)
+                rows[i] = _flt.sensor_unchecked(f, st.natural_hz, st.q)
                 active.append(i)
             elif isinstance(st, AnalogLowpass):
                 st.attenuation_db(f, out=rows[i])
                 active.append(i)
             elif isinstance(st, Sample):
                 rows[i] = 0.0
-                folded = _fold_unchecked(f, st.rate_hz)
+                folded = fold_unchecked(f, st.rate_hz)
             else:
                 assert rate is not None
                 coef = plan.coefficients[i]
@@ -620,9 +277,9 @@ class Chain:
                 if isinstance(st, Decimate) and st.factor > 1:
                     new_rate = rate / st.factor
                     # fold(fold(f, fs), fs/M) == fold(f, fs/M): fold the true frequency.
-                    folded = _fold_unchecked(f, new_rate)
+                    folded = fold_unchecked(f, new_rate)
         final = plan.final_rate_hz
-        zone = _zone_unchecked(f, final)
+        zone = zone_unchecked(f, final)
         fold_stage = _fold_stages(f, zone, plan.fold_thresholds, plan.fold_table)
         if not active:
             total = np.zeros(n)
@@ -690,15 +347,15 @@ def _digital(
 ) -> None:
     """Digital response at folded frequencies; grid positions are shared per rate."""
     b, a = coef
-    if _flt._use_exact(folded.size, b, a):
-        _flt._digital_exact(folded, rate, b, a, out)
+    if _dig.exact_is_cheaper(folded.size, b, a):
+        _dig.digital_exact(folded, rate, b, a, out)
         return
-    lo, step = _flt._grid_table(b.tobytes(), a.tobytes())
+    lo, step = _dig.grid_table(b.tobytes(), a.tobytes())
     key = (rate, lo.size)
     if key not in positions:
-        positions[key] = _flt._grid_position(folded, rate, lo.size - 1)
+        positions[key] = _dig.grid_position(folded, rate, lo.size - 1)
     i, frac = positions[key]
-    _flt._grid_lookup(lo, step, i, frac, out)
+    _dig.grid_lookup(lo, step, i, frac, out)
 
 
 # A test cell asks about the same few chains again and again; the stages are immutable
@@ -707,23 +364,33 @@ def _digital(
 def _analyse(stages: tuple[Stage, ...]) -> _Plan:
     sample_at = [i for i, st in enumerate(stages) if isinstance(st, Sample)]
     if not sample_at:
-        raise ValueError("the chain has no Sample stage; add the converter's sample rate")
+        raise InputError(
+            "the chain has no Sample stage; add the converter's sample rate",
+            field="stages",
+            code="missing",
+        )
     if len(sample_at) > 1:
-        raise ValueError(
+        raise InputError(
             f"the chain has {len(sample_at)} Sample stages (at positions {sample_at}); "
-            "exactly one is allowed"
+            "exactly one is allowed",
+            field="stages",
+            code="conflict",
         )
     s_idx = sample_at[0]
     for i, st in enumerate(stages):
         if i < s_idx and isinstance(st, DigitalLowpass | Decimate):
-            raise ValueError(
+            raise InputError(
                 f"stages[{i}] ({st.kind}) comes before the Sample stage at position {s_idx}; "
-                "digital stages act on samples and must follow it"
+                "digital stages act on samples and must follow it",
+                field=f"stages[{i}]",
+                code="bad_order",
             )
         if i > s_idx and isinstance(st, SensorResonance | AnalogLowpass):
-            raise ValueError(
+            raise InputError(
                 f"stages[{i}] ({st.kind}) comes after the Sample stage at position {s_idx}; "
-                "analog stages must precede the converter"
+                "analog stages must precede the converter",
+                field=f"stages[{i}]",
+                code="bad_order",
             )
     sample = stages[s_idx]
     assert isinstance(sample, Sample)
@@ -734,13 +401,13 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
     if not analog:
         notes.append(
             "no anti-alias filter before the converter: everything above the Nyquist "
-            f"frequency {_fmt_hz(fs / 2)} folds into the band unattenuated"
+            f"frequency {fmt_hz(fs / 2)} folds into the band unattenuated"
         )
     for st in analog:
         if st.cutoff_hz is not None and st.cutoff_hz > fs / 2:
             notes.append(
-                f"the anti-alias filter's cutoff {_fmt_hz(st.cutoff_hz)} is above the "
-                f"Nyquist frequency {_fmt_hz(fs / 2)}: it cannot protect the band"
+                f"the anti-alias filter's cutoff {fmt_hz(st.cutoff_hz)} is above the "
+                f"Nyquist frequency {fmt_hz(fs / 2)}: it cannot protect the band"
             )
 
     rates: list[float | None] = []
@@ -759,9 +426,11 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
             if st.is_spec:
                 assert st.stopband_hz is not None
                 if st.stopband_hz > rate / 2:
-                    raise ValueError(
+                    raise InputError(
                         f"stages[{i}] digital low-pass stopband_hz={st.stopband_hz:g} is above "
-                        f"the Nyquist frequency {rate / 2:g} Hz of the rate where it runs"
+                        f"the Nyquist frequency {rate / 2:g} Hz of the rate where it runs",
+                        field=f"stages[{i}].stopband_hz",
+                        code="above_limit",
                     )
             coefs[i] = st.coefficients(rate)
             last_lowpass = st
@@ -769,9 +438,11 @@ def _analyse(stages: tuple[Stage, ...]) -> _Plan:
             assert rate is not None
             new_rate = rate / st.factor
             if new_rate < _MIN_FINAL_RATE_HZ:
-                raise ValueError(
+                raise InputError(
                     f"stages[{i}] decimate by {st.factor} brings the rate to {new_rate:g} Hz; "
-                    f"it must stay >= {_MIN_FINAL_RATE_HZ:g} Hz"
+                    f"it must stay >= {_MIN_FINAL_RATE_HZ:g} Hz",
+                    field=f"stages[{i}].factor",
+                    code="above_limit",
                 )
             coefs[i] = st.coefficients()
             if st.filter == "none" and st.factor > 1:
@@ -811,15 +482,15 @@ def _slice_notes(
     if lowpass is None:
         return [
             f"decimate by {factor} without a filter: everything between "
-            f"{_fmt_range(new_nyq, old_nyq)} folds into the band"
+            f"{fmt_range(new_nyq, old_nyq)} folds into the band"
         ]
     if lowpass.is_spec:
         assert lowpass.stopband_hz is not None
         if lowpass.stopband_hz > new_nyq:
             return [
-                f"the digital low-pass's stopband edge {_fmt_hz(lowpass.stopband_hz)} is "
-                f"above the Nyquist frequency {_fmt_hz(new_nyq)} after decimate by {factor}: "
-                f"content between {_fmt_range(new_nyq, lowpass.stopband_hz)} is not fully "
+                f"the digital low-pass's stopband edge {fmt_hz(lowpass.stopband_hz)} is "
+                f"above the Nyquist frequency {fmt_hz(new_nyq)} after decimate by {factor}: "
+                f"content between {fmt_range(new_nyq, lowpass.stopband_hz)} is not fully "
                 "suppressed and folds into the band"
             ]
     return []

@@ -21,7 +21,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .harmonics import _check_peaks, format_hz
+from .checks import check_positive
+from .errors import InputError
+from .folding import fold_offset, fold_unchecked
+from .harmonics import check_peaks, format_hz
 
 __all__ = [
     "MATCH_BINS",
@@ -154,11 +157,19 @@ MAX_UNFOLDINGS = 20_000
 MAX_CANDIDATE_CELLS = 4_000_000
 
 
-def _check_positive(value: float, name: str) -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0")
-    return v
+def _in_capture(exc: InputError, capture: str, freq_name: str, amp_name: str) -> InputError:
+    """The error of one capture's peaks, re-worded and re-rooted at that capture's inputs."""
+    field = exc.field or ""
+    for old, new in (("peaks_freq_hz", freq_name), ("peaks_amplitude", amp_name)):
+        if field.startswith(old):
+            field = new + field[len(old) :]
+    return InputError(
+        f"capture {capture}: {exc}",
+        field=field or None,
+        value=exc.value,
+        limit=exc.limit,
+        code=exc.code,
+    )
 
 
 def _zone(f: FloatArray, rate: float) -> IntArray:
@@ -219,7 +230,7 @@ def _moves(
     valid = (true >= 0) & (true <= max_true)
     # f = p itself (m = 0) is the "stays" hypothesis unless p is above y's Nyquist.
     valid[:, 0] &= x.freq > y.rate / 2.0
-    a_y = np.abs(true - y.rate * np.rint(true / y.rate))
+    a_y = fold_unchecked(true, y.rate)
     j = y.order[_nearest(y.freq[y.order], a_y.ravel())].reshape(true.shape)
     err = a_y - y.freq[j]
     valid &= np.abs(err) <= tol
@@ -229,7 +240,7 @@ def _moves(
     t = true[rows, cols]
     jj = j[rows, cols]
     e = err[rows, cols]
-    r = t - y.rate * np.rint(t / y.rate)
+    r = fold_offset(t, y.rate)
     direction = np.where(r >= 0, 1.0, -1.0)
     t_est = t - 0.5 * direction * e  # mean of x's and y's unfoldings
     dlev = y.db[jj] - x.db[peak[rows, cols]]
@@ -392,40 +403,47 @@ def compare_rates(
     attenuate it alike; with different anti-alias filters widen ``level_tolerance_db``.
     A machine whose speed changed between the captures moves its real tones too.
     """
-    ra = _check_positive(rate_a_hz, "rate_a_hz")
-    rb = _check_positive(rate_b_hz, "rate_b_hz")
+    ra = check_positive(rate_a_hz, "rate_a_hz")
+    rb = check_positive(rate_b_hz, "rate_b_hz")
     if math.isclose(ra, rb, rel_tol=1e-9):
-        raise ValueError(
+        raise InputError(
             f"rate_b_hz={rate_b_hz!r} equals rate_a_hz={rate_a_hz!r}; the two-rate test "
-            "needs two different sample rates"
+            "needs two different sample rates",
+            field="rate_b_hz",
+            code="conflict",
+            value=rate_b_hz,
         )
-    ba = _check_positive(bin_a_hz, "bin_a_hz")
-    bb = _check_positive(bin_b_hz, "bin_b_hz")
-    lvl = _check_positive(level_tolerance_db, "level_tolerance_db")
+    ba = check_positive(bin_a_hz, "bin_a_hz")
+    bb = check_positive(bin_b_hz, "bin_b_hz")
+    lvl = check_positive(level_tolerance_db, "level_tolerance_db")
     max_true = (
-        10.0 * max(ra, rb) if max_true_hz is None else _check_positive(max_true_hz, "max_true_hz")
+        10.0 * max(ra, rb) if max_true_hz is None else check_positive(max_true_hz, "max_true_hz")
     )
     try:
-        fa, aa, _ = _check_peaks(peaks_a_hz, amp_a, 1.0, ra / 2.0)
-    except ValueError as exc:
-        raise ValueError(f"capture A: {exc}") from None
+        fa, aa, _ = check_peaks(peaks_a_hz, amp_a, 1.0, ra / 2.0)
+    except InputError as exc:
+        raise _in_capture(exc, "A", "peaks_a_hz", "amp_a") from None
     try:
-        fb, ab, _ = _check_peaks(peaks_b_hz, amp_b, 1.0, rb / 2.0)
-    except ValueError as exc:
-        raise ValueError(f"capture B: {exc}") from None
+        fb, ab, _ = check_peaks(peaks_b_hz, amp_b, 1.0, rb / 2.0)
+    except InputError as exc:
+        raise _in_capture(exc, "B", "peaks_b_hz", "amp_b") from None
     # Every peak is unfolded at every multiple of the lower rate up to max_true: bound the
     # work (peaks × unfoldings) so a careless request cannot occupy a worker for minutes.
     folds = 2.0 * max_true / min(ra, rb) + 3.0
     if folds > MAX_UNFOLDINGS:
-        raise ValueError(
+        raise InputError(
             f"max_true_hz={max_true:g} is {max_true / min(ra, rb):.0f} times the lower sample "
-            f"rate; at most {MAX_UNFOLDINGS // 2} times is searched (lower max_true_hz)"
+            f"rate; at most {MAX_UNFOLDINGS // 2} times is searched (lower max_true_hz)",
+            field="max_true_hz",
+            code="above_limit",
         )
     if folds * max(fa.size, fb.size) > MAX_CANDIDATE_CELLS:
-        raise ValueError(
+        raise InputError(
             f"{max(fa.size, fb.size)} peaks × {folds:.0f} unfoldings is more than the "
             f"{MAX_CANDIDATE_CELLS:,} candidates searched; lower max_true_hz or raise the "
-            "peak threshold"
+            "peak threshold",
+            field=None,
+            code="above_limit",
         )
     tol = MATCH_BINS * (ba + bb)
     sa = _Side(fa, 20 * np.log10(aa), ra, np.argsort(fa, kind="stable").astype(np.int64), "a")

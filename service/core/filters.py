@@ -31,16 +31,22 @@ import numpy as np
 import scipy.signal as sig
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import check_freqs, check_int, check_positive, show
+from .errors import InputError
+
 __all__ = [
     "ANALOG_FAMILIES",
     "MAX_ATTENUATION_DB",
-    "MAX_FIR_TAPS",
     "analog_attenuation_db",
-    "decimation_filter",
-    "design_lowpass_fir",
-    "digital_attenuation_db",
+    "analog_unchecked",
+    "check_coefficients",
+    "check_family",
+    "check_table",
+    "magnitude_to_attenuation",
     "sensor_attenuation_db",
+    "sensor_unchecked",
     "table_attenuation_db",
+    "table_unchecked",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -57,138 +63,126 @@ ANALOG_FAMILIES: dict[str, tuple[bool, bool]] = {
 #: Attenuation reported for an exact null: magnitudes are floored at 1e-15.
 MAX_ATTENUATION_DB = 300.0
 
-#: Largest FIR the Kaiser design will return.
-MAX_FIR_TAPS = 65_537
 
 _MAX_ORDER = 20
 _MAX_RIPPLE_DB = 6.0
 _MAX_STOP_ATTEN_DB = 200.0
-_MIN_FIR_ATTEN_DB = 10.0
-_MAX_FIR_ATTEN_DB = 200.0
-_MAX_DECIMATION = 4096
-_MAX_IIR_DECIMATION = 13
-# Above this many (frequency x coefficient) products the digital response is read from
-# a dense cached grid instead of being evaluated exactly at each frequency.
-_EXACT_WORK_LIMIT = 4_000_000
-_GRID_MIN_POINTS = 2**18
-_GRID_MAX_POINTS = 2**23
 # Factors multiplied before one logarithm is taken; each pole pair is of degree 4 in
 # the normalised frequency, so 4 of them stay finite up to f/fc ~ 1e19.
 _LOG_GROUP = 4
 _LOG10_2 = math.log10(2.0)
-_LN10 = math.log(10.0)
 _MAG_FLOOR = 10.0 ** (-MAX_ATTENUATION_DB / 20.0)
 
 
 # --------------------------------------------------------------------------- checks
 
 
-def _check_freqs(freq_hz: ArrayLike, name: str = "freq_hz") -> FloatArray:
-    f = np.asarray(freq_hz, dtype=np.float64)
-    finite = np.isfinite(f)
-    if not finite.all():
-        raise ValueError(
-            f"{name} contains {float(f[~finite].ravel()[0])!r}; every frequency must be finite"
-        )
-    if (f < 0).any():
-        raise ValueError(
-            f"{name} contains {float(f[f < 0].ravel()[0])!r}; frequencies must be >= 0 Hz"
-        )
-    return f
-
-
-def _show(value: object) -> object:
-    """A value as a message shows it: numpy scalars as plain Python numbers."""
-    return value.item() if isinstance(value, np.generic) else value
-
-
-def _check_positive(value: float, name: str, upper: float | None = None) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}={_show(value)!r} must be a number") from None
-    if not math.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={_show(value)!r} must be a finite number > 0")
-    if upper is not None and v > upper:
-        raise ValueError(f"{name}={_show(value)!r} must be <= {upper:g}")
-    return v
-
-
-def _check_int(value: int, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or not isinstance(value, int | np.integer):
-        raise ValueError(f"{name}={_show(value)!r} must be an integer between {low} and {high}")
-    v = int(value)
-    if not low <= v <= high:
-        raise ValueError(f"{name}={_show(value)!r} must be between {low} and {high}")
-    return v
-
-
-def _check_family(
+def check_family(
     family: str, ripple_db: float | None, stop_atten_db: float | None
 ) -> tuple[float | None, float | None]:
+    """Checked ``(ripple_db, stop_atten_db)`` for an analog family (each dB or None)."""
     if family not in ANALOG_FAMILIES:
         names = ", ".join(ANALOG_FAMILIES)
-        raise ValueError(f"family={_show(family)!r} must be one of {names}")
+        raise InputError(
+            f"family={show(family)} must be one of {names}",
+            field="family",
+            code="not_allowed",
+            value=family,
+        )
     needs_ripple, needs_stop = ANALOG_FAMILIES[family]
     rp: float | None = None
     rs: float | None = None
     if needs_ripple:
         if ripple_db is None:
-            raise ValueError(f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)")
-        rp = _check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
+            raise InputError(
+                f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)",
+                field="ripple_db",
+                code="missing",
+            )
+        rp = check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
     elif ripple_db is not None:
-        raise ValueError(
-            f"ripple_db={_show(ripple_db)!r} does not apply to a {family} filter; omit it"
+        raise InputError(
+            f"ripple_db={show(ripple_db)} does not apply to a {family} filter; omit it",
+            field="ripple_db",
+            code="conflict",
+            value=ripple_db,
         )
     if needs_stop:
         if stop_atten_db is None:
-            raise ValueError(
-                f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)"
+            raise InputError(
+                f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)",
+                field="stop_atten_db",
+                code="missing",
             )
-        rs = _check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
+        rs = check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
         if rp is not None and rs <= rp:
-            raise ValueError(
-                f"stop_atten_db={_show(stop_atten_db)!r} must be > ripple_db={_show(ripple_db)!r}"
+            raise InputError(
+                f"stop_atten_db={show(stop_atten_db)} must be > ripple_db={show(ripple_db)}",
+                field="stop_atten_db",
+                code="below_limit",
+                value=stop_atten_db,
             )
     elif stop_atten_db is not None:
-        raise ValueError(
-            f"stop_atten_db={_show(stop_atten_db)!r} does not apply to a {family} filter; omit it"
+        raise InputError(
+            f"stop_atten_db={show(stop_atten_db)} does not apply to a {family} filter; omit it",
+            field="stop_atten_db",
+            code="conflict",
+            value=stop_atten_db,
         )
     return rp, rs
 
 
-def _check_table(table_hz: ArrayLike, table_gain_db: ArrayLike) -> tuple[FloatArray, FloatArray]:
+def check_table(table_hz: ArrayLike, table_gain_db: ArrayLike) -> tuple[FloatArray, FloatArray]:
+    """A measured response table as arrays: frequencies (Hz, > 0, increasing) and gains (dB)."""
     fx = np.asarray(table_hz, dtype=np.float64).ravel()
     gy = np.asarray(table_gain_db, dtype=np.float64).ravel()
     if fx.size < 2:
-        raise ValueError(f"table_hz has {fx.size} points; at least 2 are needed")
+        raise InputError(
+            f"table_hz has {fx.size} points; at least 2 are needed", field="table_hz", code="empty"
+        )
     if gy.size != fx.size:
-        raise ValueError(
-            f"table_gain_db has {gy.size} values; expected {fx.size} (one per table_hz)"
+        raise InputError(
+            f"table_gain_db has {gy.size} values; expected {fx.size} (one per table_hz)",
+            field="table_gain_db",
+            code="mismatched_lengths",
         )
     if not np.isfinite(fx).all() or (fx <= 0).any():
         bad = float(fx[~np.isfinite(fx) | (fx <= 0)][0])
-        raise ValueError(f"table_hz contains {bad!r}; frequencies must be finite and > 0 Hz")
+        raise InputError(
+            f"table_hz contains {bad!r}; frequencies must be finite and > 0 Hz",
+            field="table_hz",
+            code="not_finite",
+        )
     if (np.diff(fx) <= 0).any():
         i = int(np.flatnonzero(np.diff(fx) <= 0)[0]) + 1
-        raise ValueError(
+        raise InputError(
             f"table_hz[{i}]={float(fx[i])!r} is not above table_hz[{i - 1}]={float(fx[i - 1])!r}; "
-            "frequencies must be strictly increasing"
+            "frequencies must be strictly increasing",
+            field=f"table_hz[{i}]",
+            code="not_increasing",
+            value=float(fx[i]),
         )
     if not np.isfinite(gy).all():
-        raise ValueError(
-            f"table_gain_db contains {float(gy[~np.isfinite(gy)][0])!r}; gains must be finite"
+        raise InputError(
+            f"table_gain_db contains {float(gy[~np.isfinite(gy)][0])!r}; gains must be finite",
+            field="table_gain_db",
+            code="not_finite",
         )
     return fx, gy
 
 
-def _check_coefficients(values: ArrayLike, name: str) -> FloatArray:
+def check_coefficients(values: ArrayLike, name: str) -> FloatArray:
+    """Filter coefficients as a non-empty 1-D array of finite values."""
     c = np.atleast_1d(np.asarray(values, dtype=np.float64))
     if c.ndim != 1 or c.size == 0:
-        raise ValueError(f"{name} must be a non-empty 1-D sequence of coefficients")
+        raise InputError(
+            f"{name} must be a non-empty 1-D sequence of coefficients", field=name, code="invalid"
+        )
     if not np.isfinite(c).all():
-        raise ValueError(
-            f"{name} contains {float(c[~np.isfinite(c)][0])!r}; coefficients must be finite"
+        raise InputError(
+            f"{name} contains {float(c[~np.isfinite(c)][0])!r}; coefficients must be finite",
+            field=name,
+            code="not_finite",
         )
     return c
 
@@ -202,7 +196,7 @@ def _to_attenuation(att: FloatArray) -> FloatArray:
     return att
 
 
-def _magnitude_to_attenuation(mag: FloatArray) -> FloatArray:
+def magnitude_to_attenuation(mag: FloatArray) -> FloatArray:
     """-20 log10 |H| with |H| floored at 1e-15; works in place on ``mag``."""
     np.maximum(mag, _MAG_FLOOR, out=mag)
     np.log2(mag, out=mag)  # log2 is about twice as fast as log10 in numpy
@@ -223,7 +217,7 @@ def _root_factors(roots: NDArray[np.complex128]) -> list[tuple[float | None, flo
     upper = roots[~is_real & (roots.imag > 0)]
     real = roots[is_real].real
     if 2 * upper.size + real.size != roots.size:  # pragma: no cover - scipy keeps symmetry
-        raise ValueError("filter roots are not in conjugate pairs")
+        raise InputError("filter roots are not in conjugate pairs", field=None, code="invalid")
     c = np.abs(upper) ** 2
     pairs: list[tuple[float | None, float]] = [
         (float(4.0 * pr**2 - 2.0 * ci), float(ci**2)) for pr, ci in zip(upper.real, c, strict=True)
@@ -295,7 +289,7 @@ def _analog_prototype(
     return np.asarray(z, np.complex128), np.asarray(p, np.complex128), float(k)
 
 
-def _analog_unchecked(
+def analog_unchecked(
     f: FloatArray,
     family: str,
     order: int,
@@ -304,17 +298,19 @@ def _analog_unchecked(
     stop_atten_db: float | None,
     out: FloatArray | None = None,
 ) -> FloatArray:
-    w2 = np.multiply(f, 1.0 / cutoff_hz)
+    """Attenuation, dB, of an analog design at frequencies ``f`` (Hz); inputs already checked."""
+    with np.errstate(over="ignore"):  # a tiny cutoff gives inf here, clipped next
+        w2 = np.multiply(f, 1.0 / cutoff_hz)
+    # Beyond f/fc = 1e15 every response is at its high-frequency asymptote or capped at
+    # MAX_ATTENUATION_DB (order 1: 20·log10(1e15) = 300 dB), so the clip changes no
+    # result and keeps the square finite.
+    np.minimum(w2, 1e15, out=w2)
     np.square(w2, out=w2)
     if out is None:
         out = np.empty_like(w2)
     if family == "butterworth":
         return _butterworth(w2, order, out)
     z, p, k = _analog_prototype(family, order, ripple_db, stop_atten_db)
-    # Beyond f/fc = 1e15 every prototype is either at its constant high-frequency
-    # asymptote (as many zeros as poles) or more than 300 dB down, so clipping there
-    # changes no result and keeps every product finite.
-    np.minimum(w2, 1e30, out=w2)
     # |H|^2 = k^2 prod|jw - z|^2 / prod|jw - p|^2, so A = 10 log10(P / Z) - 20 log10 k;
     # the logarithm is taken in base 2, which numpy computes about twice as fast.
     _log2_gain_sq_inv(w2, p, z, out)
@@ -400,11 +396,11 @@ def analog_attenuation_db(
     .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 5.3.
     .. [3] Paarmann, *Design and Analysis of Analog Filters*, 2001.
     """
-    rp, rs = _check_family(family, ripple_db, stop_atten_db)
-    n = _check_int(order, "order", 1, _MAX_ORDER)
-    fc = _check_positive(cutoff_hz, "cutoff_hz")
-    f = _check_freqs(freq_hz)
-    return _analog_unchecked(f, family, n, fc, rp, rs)
+    rp, rs = check_family(family, ripple_db, stop_atten_db)
+    n = check_int(order, "order", 1, _MAX_ORDER)
+    fc = check_positive(cutoff_hz, "cutoff_hz")
+    f = check_freqs(freq_hz)
+    return analog_unchecked(f, family, n, fc, rp, rs)
 
 
 def table_attenuation_db(
@@ -437,12 +433,13 @@ def table_attenuation_db(
     extrapolation never invents gain. Filters with a stopband floor (Chebyshev II,
     elliptic) should be measured far enough to show that floor.
     """
-    fx, gy = _check_table(table_hz, table_gain_db)
-    f = _check_freqs(freq_hz)
-    return _table_unchecked(f, fx, gy)
+    fx, gy = check_table(table_hz, table_gain_db)
+    f = check_freqs(freq_hz)
+    return table_unchecked(f, fx, gy)
 
 
-def _table_unchecked(f: FloatArray, fx: FloatArray, gy: FloatArray) -> FloatArray:
+def table_unchecked(f: FloatArray, fx: FloatArray, gy: FloatArray) -> FloatArray:
+    """Attenuation, dB, from a measured table, interpolated on log-frequency; no checks."""
     lx = np.log10(fx)
     lf = np.log10(np.maximum(f, fx[0]))
     att = -np.interp(lf, lx, gy)
@@ -481,13 +478,14 @@ def sensor_attenuation_db(freq_hz: ArrayLike, natural_hz: float, q: float) -> Fl
     ----------
     .. [4] Harris' Shock and Vibration Handbook, 5th ed., 2002, ch. 2 (from memory).
     """
-    fn = _check_positive(natural_hz, "natural_hz")
-    qq = _check_positive(q, "q", 1000.0)
-    f = _check_freqs(freq_hz)
-    return _sensor_unchecked(f, fn, qq)
+    fn = check_positive(natural_hz, "natural_hz")
+    qq = check_positive(q, "q", 1000.0)
+    f = check_freqs(freq_hz)
+    return sensor_unchecked(f, fn, qq)
 
 
-def _sensor_unchecked(f: FloatArray, fn: float, q: float) -> FloatArray:
+def sensor_unchecked(f: FloatArray, fn: float, q: float) -> FloatArray:
+    """Attenuation, dB (negative near resonance), of a sensor resonance; no checks."""
     with np.errstate(over="ignore"):  # r far above 1e77 only: the attenuation caps anyway
         r2 = np.square(f / fn)
         den = np.square(1.0 - r2)
@@ -495,263 +493,3 @@ def _sensor_unchecked(f: FloatArray, fn: float, q: float) -> FloatArray:
         np.log10(den, out=den)
     den *= 10.0
     return _to_attenuation(den)
-
-
-# --------------------------------------------------------------------------- digital
-
-
-def design_lowpass_fir(
-    rate_hz: float, passband_hz: float, stopband_hz: float, atten_db: float
-) -> FloatArray:
-    """Linear-phase FIR low-pass designed with the Kaiser window method.
-
-    Parameters
-    ----------
-    rate_hz : float
-        Sample rate the filter runs at, Hz, > 0.
-    passband_hz : float
-        Passband edge, Hz, > 0.
-    stopband_hz : float
-        Stopband edge, Hz, above ``passband_hz`` and <= ``rate_hz / 2``.
-    atten_db : float
-        Required stopband attenuation (and passband deviation), dB, 10 to 200.
-
-    Returns
-    -------
-    ndarray
-        Filter taps (unity gain at DC), at most 65537.
-
-    Notes
-    -----
-    The length and Kaiser ``beta`` follow Kaiser's empirical formulas for the
-    transition width ``stopband - passband`` and ``atten_db`` (scipy.signal.kaiserord);
-    the ideal low-pass is cut at the middle of the transition band
-    (scipy.signal.firwin) [2]_.
-
-    References
-    ----------
-    .. [2] Kaiser, Proc. IEEE ISCAS, 1974.
-    """
-    rate = _check_positive(rate_hz, "rate_hz")
-    fp = _check_positive(passband_hz, "passband_hz")
-    fstop = _check_positive(stopband_hz, "stopband_hz")
-    a = _check_positive(atten_db, "atten_db", _MAX_FIR_ATTEN_DB)
-    if a < _MIN_FIR_ATTEN_DB:
-        raise ValueError(f"atten_db={_show(atten_db)!r} must be >= {_MIN_FIR_ATTEN_DB:g}")
-    if fp >= fstop:
-        raise ValueError(
-            f"passband_hz={_show(passband_hz)!r} must be below stopband_hz={_show(stopband_hz)!r}"
-        )
-    if fstop > rate / 2:
-        raise ValueError(
-            f"stopband_hz={_show(stopband_hz)!r} must be <= the Nyquist frequency {rate / 2:g} Hz "
-            f"of rate_hz={_show(rate_hz)!r}"
-        )
-    return np.array(_kaiser_fir(rate, fp, fstop, a))
-
-
-@functools.lru_cache(maxsize=64)
-def _kaiser_fir(rate: float, fp: float, fstop: float, atten: float) -> tuple[float, ...]:
-    nyq = rate / 2
-    numtaps, beta = sig.kaiserord(atten, (fstop - fp) / nyq)
-    if numtaps > MAX_FIR_TAPS:
-        raise ValueError(
-            f"a low-pass with passband {fp:g} Hz, stopband {fstop:g} Hz and {atten:g} dB at "
-            f"{rate:g} S/s needs {numtaps} taps; at most {MAX_FIR_TAPS}: widen the "
-            "transition band or decimate first"
-        )
-    taps = sig.firwin(numtaps, (fp + fstop) / 2, window=("kaiser", beta), fs=rate)
-    return tuple(float(t) for t in taps)
-
-
-def decimation_filter(factor: int, kind: str = "fir") -> tuple[FloatArray, FloatArray]:
-    """The anti-alias filter scipy.signal.decimate applies before keeping every M-th sample.
-
-    Parameters
-    ----------
-    factor : int
-        Decimation factor M, 1 to 4096 (1 to 13 for ``"iir"``, scipy's own advice: cascade
-        several stages for more).
-    kind : {"fir", "iir"}
-        ``"fir"``: ``firwin(20*M + 1, 1/M, window="hamming")``; ``"iir"``: an 8th-order
-        Chebyshev I, 0.05 dB ripple, passband edge ``0.8/M`` of the Nyquist frequency.
-        Both as in scipy.signal.decimate with its default order.
-
-    Returns
-    -------
-    b, a : ndarray
-        Numerator and denominator (``a = [1.0]`` for the FIR).
-
-    Notes
-    -----
-    scipy.signal.decimate with its default ``zero_phase=True`` runs the IIR forwards and
-    backwards, which doubles its attenuation in dB; this module models a single pass
-    (``zero_phase=False``, or a converter's causal decimator), the conservative
-    choice. The FIR is applied once either way.
-    """
-    if kind not in ("fir", "iir"):
-        raise ValueError(f"kind={_show(kind)!r} must be 'fir' or 'iir'")
-    high = _MAX_DECIMATION if kind == "fir" else _MAX_IIR_DECIMATION
-    m = _check_int(factor, "factor", 1, high)
-    b, a = _decimation_ba(m, kind)
-    return np.array(b), np.array(a)
-
-
-@functools.lru_cache(maxsize=64)
-def _decimation_ba(m: int, kind: str) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    if m == 1:
-        return (1.0,), (1.0,)
-    if kind == "fir":
-        b = sig.firwin(20 * m + 1, 1.0 / m, window="hamming")
-        return tuple(map(float, b)), (1.0,)
-    bb, aa = sig.cheby1(8, 0.05, 0.8 / m)
-    return tuple(map(float, bb)), tuple(map(float, aa))
-
-
-def digital_attenuation_db(
-    apparent_hz: ArrayLike,
-    rate_hz: float,
-    b: ArrayLike,
-    a: ArrayLike = (1.0,),
-) -> FloatArray:
-    """Attenuation of a digital filter at frequencies inside its first Nyquist zone.
-
-    Parameters
-    ----------
-    apparent_hz : array_like
-        Frequencies, Hz, in ``[0, rate_hz / 2]`` (already folded at ``rate_hz``).
-    rate_hz : float
-        Sample rate the filter runs at, Hz, > 0.
-    b, a : array_like
-        Numerator and denominator coefficients (``a[0] != 0``; FIR: ``a = (1.0,)``).
-
-    Returns
-    -------
-    ndarray
-        Attenuation, dB, capped at 300 dB.
-
-    Notes
-    -----
-    ``H(e^{jw}) = B(e^{-jw}) / A(e^{-jw})``, ``w = 2 pi f / rate`` [1]_. Small problems
-    (frequencies x coefficients < 4e6) are evaluated exactly with
-    scipy.signal.freqz; larger ones read a dense response (an rfft of the zero-padded
-    coefficients on at least 2^18 points and 128 points per tap, cached per filter)
-    interpolated linearly in magnitude, in single precision. That stays within 0.05 dB
-    of the exact value wherever the attenuation is below 80 dB (a few thousandths of a
-    dB for filters a few hundred taps long); deeper down, next to exact nulls, it may
-    read a shallower null than the truth, the cautious direction for alias prediction.
-    An explicit ``b, a`` is used as given: a recursive filter's stability is the
-    caller's business (``chain.DigitalLowpass`` checks it).
-
-    References
-    ----------
-    .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 5.3.
-    """
-    rate = _check_positive(rate_hz, "rate_hz")
-    bb = _check_coefficients(b, "b")
-    aa = _check_coefficients(a, "a")
-    if aa[0] == 0:
-        raise ValueError("a[0]=0.0 must be non-zero")
-    f = _check_freqs(apparent_hz, "apparent_hz")
-    if (f > rate / 2 * (1 + 1e-12)).any():
-        bad = float(f[f > rate / 2 * (1 + 1e-12)].ravel()[0])
-        raise ValueError(
-            f"apparent_hz contains {bad!r}; it must be <= the Nyquist frequency {rate / 2:g} Hz "
-            "(fold the frequencies first)"
-        )
-    return _digital_unchecked(f, rate, bb, aa)
-
-
-def _digital_unchecked(
-    f: FloatArray, rate: float, b: FloatArray, a: FloatArray, out: FloatArray | None = None
-) -> FloatArray:
-    if _use_exact(f.size, b, a):
-        return _digital_exact(f, rate, b, a, out)
-    lo, step = _grid_table(b.tobytes(), a.tobytes())
-    i, frac = _grid_position(f, rate, lo.size - 1)
-    return _grid_lookup(lo, step, i, frac, out)
-
-
-def _use_exact(n: int, b: FloatArray, a: FloatArray) -> bool:
-    return n * (b.size + a.size - 1) < _EXACT_WORK_LIMIT
-
-
-def _digital_exact(
-    f: FloatArray, rate: float, b: FloatArray, a: FloatArray, out: FloatArray | None = None
-) -> FloatArray:
-    _, h = sig.freqz(b, a, worN=np.ravel(f), fs=rate)
-    att = _magnitude_to_attenuation(np.abs(h).reshape(f.shape))
-    if out is None:
-        return att
-    out[...] = att
-    return out
-
-
-def _grid_position(
-    f: FloatArray, rate: float, cells: int
-) -> tuple[NDArray[np.intp], NDArray[np.float32]]:
-    """Cell index and fraction of each frequency on ``cells`` equal cells from 0 to rate/2.
-
-    A frequency at (or a rounding error above) rate/2 lands in cell ``cells``, the
-    table's flat pad, so no clipping pass is needed.
-    """
-    x = np.multiply(f, 2.0 * cells / rate)
-    frac, whole = np.modf(x, out=(x, np.empty_like(x)))
-    return whole.astype(np.intp), frac.astype(np.float32)
-
-
-def _grid_lookup(
-    lo: NDArray[np.float32],
-    step: NDArray[np.float32],
-    i: NDArray[np.intp],
-    frac: NDArray[np.float32],
-    out: FloatArray | None = None,
-) -> FloatArray:
-    """Attenuation from |H| interpolated linearly between grid points ``i`` and ``i + 1``.
-
-    Interpolating the magnitude rather than the dB value keeps the error small next to
-    the nulls of a stopband, where the dB curve is far from straight. The arithmetic is
-    single precision (relative error ~1e-7, about 1e-5 dB, far inside the
-    interpolation error) because a gather and a logarithm over 1e6 tones take half the
-    time in float32. The table is floored at 1e-15, so the interpolated magnitude is too.
-    """
-    if out is None:
-        out = np.empty(i.shape)
-    mag = np.take(step, i)
-    mag *= frac
-    mag += np.take(lo, i)
-    np.log(mag, out=mag)  # float32 log is vectorised in numpy; log2/log10 are not
-    np.multiply(mag, -20.0 / _LN10, out=out)
-    return out
-
-
-@functools.lru_cache(maxsize=8)
-def _grid_table(b_bytes: bytes, a_bytes: bytes) -> tuple[NDArray[np.float32], NDArray[np.float32]]:
-    """|H| on ``cells + 1`` equally spaced frequencies from 0 to the Nyquist frequency.
-
-    Returned as ``lo = |H_i|`` and ``step = |H_{i+1}| - |H_i|`` per cell, plus one flat
-    pad cell at the Nyquist frequency. ``2 * cells`` is at least 2^18 and at least 128
-    times the filter length (up to 2^23), so that linear interpolation stays within
-    about 0.05 dB of the exact response wherever the attenuation is below 80 dB.
-    """
-    b = np.frombuffer(b_bytes, dtype=np.float64)
-    a = np.frombuffer(a_bytes, dtype=np.float64)
-    length = max(b.size, a.size)
-    nfft = _GRID_MIN_POINTS
-    while nfft < 128 * length and nfft < _GRID_MAX_POINTS:
-        nfft *= 2
-    h = np.abs(np.fft.rfft(b, nfft))
-    if a.size > 1:
-        den = np.abs(np.fft.rfft(a, nfft))
-        with np.errstate(divide="ignore"):
-            h /= den
-    else:
-        h /= abs(a[0])
-    # Floor at 1e-15 (300 dB) and cap at 1e30 so float32 holds every value.
-    np.clip(h, _MAG_FLOOR, 1e30, out=h)
-    lo = h.astype(np.float32)
-    step = np.zeros_like(lo)
-    np.subtract(lo[1:], lo[:-1], out=step[:-1])
-    lo.setflags(write=False)
-    step.setflags(write=False)
-    return lo, step

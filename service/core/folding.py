@@ -15,32 +15,59 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import bad, check_freqs, check_positive
+
 __all__ = [
+    "MAX_FOLD_RATIO",
+    "check_fold_range",
     "fold",
     "fold_intervals",
+    "fold_offset",
+    "fold_unchecked",
     "is_inverted",
     "nyquist_zone",
+    "zone_unchecked",
 ]
 
 FloatArray = NDArray[np.float64]
 
-
-def _check_rate(sample_rate_hz: float, name: str = "sample_rate_hz") -> float:
-    rate = float(sample_rate_hz)
-    if not np.isfinite(rate) or rate <= 0:
-        raise ValueError(f"{name}={sample_rate_hz!r} must be a finite number > 0")
-    return rate
+#: Largest true frequency, as a multiple of the sample rate, that is folded. Beyond it
+#: ``f / fs`` keeps too few fractional digits in double precision (machine epsilon
+#: 2.2e-16 × 1e9 ≈ 2e-7 of fs) for the apparent frequency and zone to mean anything.
+MAX_FOLD_RATIO = 1e9
 
 
-def _check_freqs(freq_hz: ArrayLike, name: str = "freq_hz") -> FloatArray:
-    f = np.asarray(freq_hz, dtype=np.float64)
-    if not np.all(np.isfinite(f)):
-        bad = f[~np.isfinite(f)].ravel()[0]
-        raise ValueError(f"{name} contains {bad!r}; every frequency must be finite")
-    if np.any(f < 0):
-        bad = f[f < 0].ravel()[0]
-        raise ValueError(f"{name} contains {bad!r}; frequencies must be >= 0 Hz")
-    return f
+def check_fold_range(f: FloatArray, sample_rate_hz: float, name: str = "freq_hz") -> None:
+    """Refuse true frequencies above ``MAX_FOLD_RATIO`` times the sample rate.
+
+    Parameters
+    ----------
+    f : ndarray
+        Checked true frequencies, Hz (finite, >= 0).
+    sample_rate_hz : float
+        Checked sample rate, Hz (> 0).
+    name : str
+        Parameter name for the message and the error's ``field``.
+
+    Raises
+    ------
+    InputError
+        Code ``above_limit``, limit ``MAX_FOLD_RATIO * sample_rate_hz`` in Hz.
+    """
+    if f.size == 0:
+        return
+    top = float(np.max(f))
+    limit = MAX_FOLD_RATIO * sample_rate_hz
+    if top > limit:
+        raise bad(
+            f"{name} contains {top!r} Hz, more than {MAX_FOLD_RATIO:g} times the sample "
+            f"rate {sample_rate_hz!r} Hz; its apparent frequency cannot be computed in "
+            "double precision",
+            name,
+            "above_limit",
+            value=top,
+            limit=limit,
+        )
 
 
 def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
@@ -67,13 +94,49 @@ def fold(freq_hz: ArrayLike, sample_rate_hz: float) -> FloatArray:
     ----------
     .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.2.
     """
-    fs = _check_rate(sample_rate_hz)
-    f = _check_freqs(freq_hz)
-    return _fold_unchecked(f, fs)
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    f = check_freqs(freq_hz)
+    check_fold_range(f, fs)
+    return fold_unchecked(f, fs)
 
 
-def _fold_unchecked(f: FloatArray, fs: float) -> FloatArray:
-    out: FloatArray = np.abs(f - fs * np.rint(f / fs))
+def fold_offset(f: FloatArray, fs: float | FloatArray) -> FloatArray:
+    """Signed offset ``f - fs·round(f/fs)`` of each frequency from its nearest multiple of fs.
+
+    The one home of the fold formula: :func:`fold` is its absolute value. Its sign says
+    which way the fold runs there: >= 0 where a rising true frequency gives a rising
+    apparent one, < 0 where it falls. Inputs are not checked (arrays of finite
+    frequencies >= 0, ``fs > 0``; see :func:`check_fold_range`).
+
+    Parameters
+    ----------
+    f : ndarray
+        True frequencies, Hz.
+    fs : float or ndarray
+        Sample rate(s), Hz, broadcast against ``f``.
+
+    Returns
+    -------
+    ndarray
+        Offsets, Hz, in ``[-fs/2, fs/2]``.
+
+    References
+    ----------
+    .. [1] Oppenheim and Schafer, *Discrete-Time Signal Processing*, sec. 4.2.
+    """
+    huge = fs > 1e290 if isinstance(fs, float) else bool(np.any(fs > 1e290))
+    if huge:
+        # fs·round(f/fs) may pass the largest double (~1.8e308): work in units of fs.
+        r = f / fs
+        big: FloatArray = (r - np.rint(r)) * fs
+        return big
+    out: FloatArray = f - fs * np.rint(f / fs)
+    return out
+
+
+def fold_unchecked(f: FloatArray, fs: float | FloatArray) -> FloatArray:
+    """:func:`fold` without the input checks, for callers that checked already."""
+    out: FloatArray = np.abs(fold_offset(f, fs))
     return out
 
 
@@ -99,13 +162,17 @@ def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]
     ----------
     .. [2] Lyons, *Understanding Digital Signal Processing*, sec. 2.3.
     """
-    fs = _check_rate(sample_rate_hz)
-    f = _check_freqs(freq_hz)
-    return _zone_unchecked(f, fs)
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    f = check_freqs(freq_hz)
+    check_fold_range(f, fs)
+    return zone_unchecked(f, fs)
 
 
-def _zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
-    zone = np.ceil(f / (fs / 2.0))
+def zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
+    """:func:`nyquist_zone` without the input checks."""
+    # f / fs first, then the exact doubling: fs / 2 underflows for the smallest rates.
+    # The clip keeps the cast to int64 defined for unchecked callers (2**62 < int64 max).
+    zone = np.ceil(np.minimum((f / fs) * 2.0, 2.0**62))
     # Guard against round-off putting an exact multiple of fs/2 one zone high: the fold
     # formula is the arbiter, so zone and apparent frequency always agree.
     return np.maximum(zone, 1).astype(np.int64)
@@ -155,18 +222,25 @@ def fold_intervals(
     apparent_low, apparent_high : ndarray
         Apparent interval ends, Hz, in ``[0, fs/2]``.
     """
-    fs = _check_rate(sample_rate_hz)
-    lo = _check_freqs(low_hz, "low_hz")
-    hi = _check_freqs(high_hz, "high_hz")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    lo = check_freqs(low_hz, "low_hz")
+    hi = check_freqs(high_hz, "high_hz")
+    check_fold_range(np.asarray(hi, dtype=np.float64), fs, "high_hz")
     lo, hi = (np.atleast_1d(a).astype(np.float64) for a in np.broadcast_arrays(lo, hi))
     if np.any(hi < lo):
         i = int(np.flatnonzero(hi < lo)[0])
-        raise ValueError(f"high_hz[{i}]={hi[i]!r} is below low_hz[{i}]={lo[i]!r}")
+        raise bad(
+            f"high_hz[{i}]={float(hi[i])!r} is below low_hz[{i}]={float(lo[i])!r}",
+            f"high_hz[{i}]",
+            "below_limit",
+            value=float(hi[i]),
+            limit=float(lo[i]),
+        )
     nyq = fs / 2.0
-    a_lo = _fold_unchecked(lo, fs)
-    a_hi = _fold_unchecked(hi, fs)
-    z_lo = _zone_unchecked(lo, fs)
-    z_hi = _zone_unchecked(hi, fs)
+    a_lo = fold_unchecked(lo, fs)
+    a_hi = fold_unchecked(hi, fs)
+    z_lo = zone_unchecked(lo, fs)
+    z_hi = zone_unchecked(hi, fs)
     # A low end exactly on a zone's upper edge: the interval runs into the next zone.
     on_edge = (hi > lo) & (lo > 0) & (lo == z_lo * nyq)
     z_lo = np.where(on_edge, z_lo + 1, z_lo)

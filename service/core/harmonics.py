@@ -29,10 +29,15 @@ import numpy as np
 import scipy.special
 from numpy.typing import ArrayLike, NDArray
 
+from .checks import check_int, check_positive
+from .errors import InputError
+from .folding import fold_offset, fold_unchecked
+
 __all__ = [
     "BLIND_MAX_P_VALUE",
     "Family",
     "FamilyMember",
+    "check_peaks",
     "find_families",
     "format_db",
     "format_hz",
@@ -194,56 +199,65 @@ class Family:
 # --------------------------------------------------------------------------- checks
 
 
-def _check_positive(value: float, name: str) -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0")
-    return v
-
-
-def _check_int(value: int, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or int(value) != value or not low <= int(value) <= high:
-        raise ValueError(f"{name}={value!r} must be a whole number between {low} and {high}")
-    return int(value)
-
-
-def _check_peaks(
+def check_peaks(
     freq: ArrayLike, amp: ArrayLike, floor: ArrayLike, nyquist: float
 ) -> tuple[FloatArray, FloatArray, FloatArray]:
+    """Peak frequencies (Hz, 0 to Nyquist), amplitudes and floor as checked equal-length arrays."""
     f = np.atleast_1d(np.asarray(freq, dtype=np.float64))
     a = np.atleast_1d(np.asarray(amp, dtype=np.float64))
     if f.ndim != 1:
-        raise ValueError(f"peaks_freq_hz must be 1-D; got shape {f.shape}")
+        raise InputError(
+            f"peaks_freq_hz must be 1-D; got shape {f.shape}",
+            field="peaks_freq_hz",
+            code="bad_type",
+        )
     if a.shape != f.shape:
-        raise ValueError(f"peaks_amplitude has {a.size} values but peaks_freq_hz has {f.size}")
+        raise InputError(
+            f"peaks_amplitude has {a.size} values but peaks_freq_hz has {f.size}",
+            field="peaks_amplitude",
+            code="mismatched_lengths",
+        )
     fl = np.broadcast_to(np.asarray(floor, dtype=np.float64), f.shape).astype(np.float64)
     for name, arr in (("peaks_freq_hz", f), ("peaks_amplitude", a), ("floor", fl)):
         bad = ~np.isfinite(arr)
         if np.any(bad):
             i = int(np.argmax(bad))
-            raise ValueError(f"{name}[{i}]={float(arr[i])!r}; every value must be finite")
+            raise InputError(
+                f"{name}[{i}]={float(arr[i])!r}; every value must be finite",
+                field=f"{name}[{i}]",
+                code="not_finite",
+                value=float(arr[i]),
+            )
     bad = (f < 0) | (f > nyquist * (1 + 1e-9))
     if np.any(bad):
         i = int(np.argmax(bad))
-        raise ValueError(
+        raise InputError(
             f"peaks_freq_hz[{i}]={float(f[i])!r} must be between 0 and the Nyquist frequency "
-            f"{nyquist:g} Hz"
+            f"{nyquist:g} Hz",
+            field=f"peaks_freq_hz[{i}]",
+            code="out_of_range",
+            value=float(f[i]),
         )
     if np.any(a <= 0):
         i = int(np.argmax(a <= 0))
-        raise ValueError(f"peaks_amplitude[{i}]={float(a[i])!r}; amplitudes must be > 0")
+        raise InputError(
+            f"peaks_amplitude[{i}]={float(a[i])!r}; amplitudes must be > 0",
+            field=f"peaks_amplitude[{i}]",
+            code="not_positive",
+            value=float(a[i]),
+        )
     if np.any(fl <= 0):
         i = int(np.argmax(fl <= 0))
-        raise ValueError(f"floor[{i}]={float(fl[i])!r}; the floor must be > 0")
+        raise InputError(
+            f"floor[{i}]={float(fl[i])!r}; the floor must be > 0",
+            field=f"floor[{i}]",
+            code="not_positive",
+            value=float(fl[i]),
+        )
     return f, a, fl
 
 
 # --------------------------------------------------------------------------- search
-
-
-def _fold(x: FloatArray, fs: float) -> FloatArray:
-    out: FloatArray = np.abs(x - fs * np.rint(x / fs))
-    return out
 
 
 @dataclass
@@ -273,7 +287,7 @@ def _match(
     x = f0[:, None] * k[None, :]
     tried = (x <= ctx.max_true) & (x > 0)
     tol = tol_base + k[None, :] * k_err[:, None]
-    a = _fold(x, ctx.fs)
+    a = fold_unchecked(x, ctx.fs)
     p = ctx.freq
     n = p.size
     j = np.searchsorted(p, a)
@@ -284,7 +298,7 @@ def _match(
     hit = tried & (np.abs(err) <= tol)
     # Unfold the matched peak next to k·f0: move x by the apparent error, in the
     # direction the fold runs there (rising in odd zones, falling in even zones).
-    r = x - ctx.fs * np.rint(x / ctx.fs)
+    r = fold_offset(x, ctx.fs)
     direction = np.where(r >= 0, 1.0, -1.0)
     true = x - direction * err
     if ctx.attenuation is not None and np.any(hit):
@@ -551,18 +565,52 @@ def find_families(
     peaks, then the lowest fundamental, is kept. The search is greedy: the best family's
     peaks are removed and the search repeats.
     """
-    fs = _check_positive(sample_rate_hz, "sample_rate_hz")
-    bw = _check_positive(bin_width_hz, "bin_width_hz")
-    f, a, _fl = _check_peaks(peaks_freq_hz, peaks_amplitude, floor, fs / 2.0)
-    kmax = _check_int(max_harmonic, "max_harmonic", 2, 200)
-    min_members = _check_int(min_members, "min_members", 2, 100)
-    max_families = _check_int(max_families, "max_families", 1, 50)
-    max_true = 10.0 * fs if max_true_hz is None else _check_positive(max_true_hz, "max_true_hz")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    bw = check_positive(bin_width_hz, "bin_width_hz")
+    f, a, _fl = check_peaks(peaks_freq_hz, peaks_amplitude, floor, fs / 2.0)
+    kmax = check_int(
+        max_harmonic,
+        "max_harmonic",
+        2,
+        200,
+        word="a whole number",
+        integral_floats=True,
+        one_message=True,
+    )
+    min_members = check_int(
+        min_members,
+        "min_members",
+        2,
+        100,
+        word="a whole number",
+        integral_floats=True,
+        one_message=True,
+    )
+    max_families = check_int(
+        max_families,
+        "max_families",
+        1,
+        50,
+        word="a whole number",
+        integral_floats=True,
+        one_message=True,
+    )
+    max_true = 10.0 * fs if max_true_hz is None else check_positive(max_true_hz, "max_true_hz")
     pv = float(max_p_value)
     if not np.isfinite(pv) or not 0 < pv < 1:
-        raise ValueError(f"max_p_value={max_p_value!r} must be between 0 and 1 (exclusive)")
+        raise InputError(
+            f"max_p_value={max_p_value!r} must be between 0 and 1 (exclusive)",
+            field="max_p_value",
+            code="out_of_range",
+            value=max_p_value,
+        )
     if attenuation is not None and not callable(attenuation):
-        raise ValueError(f"attenuation={attenuation!r} must be a callable or None")
+        raise InputError(
+            f"attenuation={attenuation!r} must be a callable or None",
+            field="attenuation",
+            code="bad_type",
+            value=attenuation,
+        )
 
     order = np.argsort(f, kind="stable")
     amp_db = 20.0 * np.log10(a)

@@ -13,7 +13,10 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
+from .analysis_lines import SPAN_DIVISOR
 from .chain import Chain, ChainResponse
+from .checks import check_band_hz, check_int, check_range
+from .errors import InputError
 from .folding import fold_intervals
 from .tones import ToneSet
 
@@ -23,7 +26,6 @@ FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]
 
 #: Common practice: an analyser shows DC to fs/2.56 as its alias-protected span.
-SPAN_DIVISOR = 2.56
 #: Analysis lines assumed for bin numbers and collision tolerance when none are given.
 DEFAULT_LINES = 3200
 #: How close (in bins) a predicted alias may come to another line before it can mask it.
@@ -76,30 +78,6 @@ class Prediction:
         return self.response.final_rate_hz / 2.0
 
 
-def _check_band(band_hz: tuple[float, float] | None, nyquist: float) -> tuple[float, float]:
-    if band_hz is None:
-        return (0.0, 2.0 * nyquist / SPAN_DIVISOR)
-    lo, hi = (float(v) for v in band_hz)
-    if not (np.isfinite(lo) and np.isfinite(hi)) or lo < 0 or hi <= lo:
-        raise ValueError(f"band_hz={[lo, hi]!r} must be two finite numbers with 0 <= low < high")
-    return (lo, hi)
-
-
-def _check_lines(lines: int | None) -> int:
-    if lines is None:
-        return DEFAULT_LINES
-    if int(lines) != lines or not 1 <= lines <= 1_048_576:
-        raise ValueError(f"lines={lines!r} must be a whole number between 1 and 1048576")
-    return int(lines)
-
-
-def _check_tolerance(pct: float) -> float:
-    p = float(pct)
-    if not np.isfinite(p) or not 0 <= p <= 50:
-        raise ValueError(f"speed_tolerance_pct={pct!r} must be between 0 and 50")
-    return p
-
-
 def predict(
     tones: ToneSet,
     chain: Chain,
@@ -132,13 +110,30 @@ def predict(
     Prediction
     """
     notes = tuple(chain.validate())
-    n_lines = _check_lines(lines)
-    tol = _check_tolerance(speed_tolerance_pct)
+    n_lines = (
+        DEFAULT_LINES
+        if lines is None
+        else check_int(
+            lines,
+            "lines",
+            1,
+            1_048_576,
+            word="a whole number",
+            integral_floats=True,
+            one_message=True,
+        )
+    )
+    tol = check_range(speed_tolerance_pct, "speed_tolerance_pct", 0, 50)
     if not np.isfinite(collision_bins) or collision_bins <= 0:
-        raise ValueError(f"collision_bins={collision_bins!r} must be > 0")
+        raise InputError(
+            f"collision_bins={collision_bins!r} must be > 0",
+            field="collision_bins",
+            code="not_positive",
+            value=collision_bins,
+        )
     response = chain.evaluate(tones.freq_hz)
     rate = response.final_rate_hz
-    band = _check_band(band_hz, rate / 2.0)
+    band = check_band_hz(band_hz, (0.0, rate / SPAN_DIVISOR))
     bin_width = rate / (SPAN_DIVISOR * n_lines)
 
     if tol > 0:

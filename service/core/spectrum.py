@@ -1,4 +1,7 @@
-"""Windows, averaged amplitude spectra, robust noise floor and peak finding.
+"""Averaged amplitude spectra, robust noise floor and peak finding.
+
+The windows themselves live in :mod:`service.core.windows` (``WINDOWS`` and
+:func:`window_figures` are re-exported here).
 
 Everything here is vectorised: arrays in, arrays out, no Python loop over bins. The only
 loop is over blocks of frames in :func:`amplitude_spectrum`, which bounds memory.
@@ -26,13 +29,24 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass
-from functools import lru_cache
 
 import numpy as np
 import scipy.fft
 import scipy.ndimage
 import scipy.signal
 from numpy.typing import ArrayLike, NDArray
+
+from service.core.checks import (
+    check_finite_array,
+    check_int,
+    check_one_of,
+    check_positive,
+    check_range,
+)
+from service.core.errors import InputError
+
+from .analysis_lines import SPAN_DIVISOR
+from .windows import WINDOWS, kernel_tables, window_figures, window_samples
 
 __all__ = [
     "USUAL_LINES",
@@ -49,72 +63,18 @@ __all__ = [
 
 FloatArray = NDArray[np.float64]
 
-#: Window names accepted everywhere in this module.
-WINDOWS: frozenset[str] = frozenset({"hann", "flattop", "rectangular", "hamming", "blackmanharris"})
-
-_SCIPY_NAME = {
-    "hann": "hann",
-    "flattop": "flattop",
-    "rectangular": "boxcar",
-    "hamming": "hamming",
-    "blackmanharris": "blackmanharris",
-}
 
 #: The usual numbers of analysis lines, 25·2**k; for these nfft = 2.56·lines exactly.
 USUAL_LINES: tuple[int, ...] = tuple(25 * 2**k for k in range(19))  # 25 ... 6,553,600
 
-_LINES_PER_NFFT = 2.56
+
 _MAX_NFFT = 2**24
+
+
 _DEFAULT_MIN_AVERAGES = 8
+
+
 _CHUNK_SAMPLES = 2**21  # samples per block of frames handed to the FFT at once
-_TABLE_SIZE = 512  # window length used for the refinement tables
-_TABLE_PAD = 512  # zero padding: table resolution 1/512 bin
-
-
-# --------------------------------------------------------------------------- checks
-
-
-def _check_window(window: str, name: str = "window", allow_unknown: bool = False) -> str:
-    allowed = sorted(WINDOWS) + (["unknown"] if allow_unknown else [])
-    if not isinstance(window, str) or window.lower() not in allowed:
-        raise ValueError(f"{name}={window!r} must be one of {', '.join(allowed)}")
-    return window.lower()
-
-
-def _check_positive(value: float, name: str, unit: str = "") -> float:
-    v = float(value)
-    if not np.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}={value!r} must be a finite number > 0{unit}")
-    return v
-
-
-def _check_range(value: float, name: str, low: float, high: float, unit: str = "") -> float:
-    v = float(value)
-    if not np.isfinite(v) or not low <= v <= high:
-        raise ValueError(f"{name}={value!r} must be between {low:g} and {high:g}{unit}")
-    return v
-
-
-def _check_int(value: int, name: str, low: int, high: int) -> int:
-    if isinstance(value, bool) or int(value) != value:
-        raise ValueError(f"{name}={value!r} must be a whole number")
-    v = int(value)
-    if not low <= v <= high:
-        raise ValueError(f"{name}={value!r} must be between {low} and {high}")
-    return v
-
-
-def _check_spectrum_array(values: ArrayLike, name: str, min_len: int = 1) -> FloatArray:
-    a = np.asarray(values, dtype=np.float64)
-    if a.ndim != 1:
-        raise ValueError(f"{name} must be 1-D; got shape {a.shape}")
-    if a.size < min_len:
-        raise ValueError(f"{name} has {a.size} values; at least {min_len} are needed")
-    bad = ~np.isfinite(a)
-    if np.any(bad):
-        i = int(np.argmax(bad))
-        raise ValueError(f"{name}[{i}]={float(a[i])!r}; every value must be finite")
-    return a
 
 
 def _tiny(amplitude: FloatArray) -> float:
@@ -126,98 +86,6 @@ def _tiny(amplitude: FloatArray) -> float:
 def _db(amplitude: FloatArray, tiny: float) -> FloatArray:
     out: FloatArray = 20.0 * np.log10(np.maximum(amplitude, tiny))
     return out
-
-
-# --------------------------------------------------------------------------- windows
-
-
-def _window(name: str, n: int) -> FloatArray:
-    """Periodic (DFT-even) window of length ``n`` as recommended by Harris [1]_."""
-    w: FloatArray = np.asarray(
-        scipy.signal.get_window(_SCIPY_NAME[name], n, fftbins=True), dtype=np.float64
-    )
-    return w
-
-
-def window_figures(name: str, n: int = 4096) -> dict[str, float]:
-    """Figures of merit of a window, computed numerically from its samples.
-
-    Parameters
-    ----------
-    name : str
-        Window name, one of :data:`WINDOWS`.
-    n : int
-        Window length, samples (16 to 1,048,576).
-
-    Returns
-    -------
-    dict
-        ``coherent_gain`` (sum(w)/n, linear), ``enbw_bins`` (equivalent noise bandwidth,
-        bins), ``scalloping_loss_db`` (loss for a tone half a bin off, dB, positive),
-        ``highest_sidelobe_db`` (highest side lobe relative to the main-lobe peak, dB,
-        negative) and ``mainlobe_half_width_bins`` (DC to the first null, bins).
-
-    Notes
-    -----
-    ENBW = n·Σw² / (Σw)²; scalloping loss = −20·log10(|W(½ bin)| / |W(0)|) with
-    W the window's DTFT, both as defined by Harris [1]_. The side-lobe level comes from
-    a 16× zero-padded FFT: the main lobe ends at the first local minimum of |W| below
-    −20 dB and the highest side lobe is the largest |W| beyond it.
-
-    References
-    ----------
-    .. [1] Harris, *Proc. IEEE* 66(1), 1978, sec. IV and Table 1.
-    """
-    name = _check_window(name, "name")
-    n = _check_int(n, "n", 16, 2**20)
-    w = _window(name, n)
-    s1 = float(np.sum(w))
-    s2 = float(np.sum(w * w))
-    pad = 16
-    mag = np.abs(np.fft.rfft(w, n * pad))
-    mag = mag / mag[0]
-    rising = np.flatnonzero((np.diff(mag) > 0) & (mag[:-1] < 0.1))
-    edge = int(rising[0]) if rising.size else mag.size - 1
-    half_bin = np.abs(np.sum(w * np.exp(-1j * np.pi * np.arange(n) / n))) / s1
-    return {
-        "coherent_gain": s1 / n,
-        "enbw_bins": n * s2 / s1**2,
-        "scalloping_loss_db": float(-20.0 * np.log10(half_bin)),
-        "highest_sidelobe_db": float(20.0 * np.log10(np.max(mag[edge:]))),
-        "mainlobe_half_width_bins": edge / pad,
-    }
-
-
-@lru_cache(maxsize=8)
-def _kernel_tables(name: str) -> tuple[FloatArray, FloatArray, FloatArray]:
-    """Tables for peak refinement: offset grid, three-bin statistic, relative gain.
-
-    For a tone at ``k + d`` bins (``|d| <= 0.5``) the bins ``k-1, k, k+1`` read
-    ``A·g(1+d), A·g(d), A·g(1-d)`` with ``g = |W(ν)| / |W(0)|``; the statistic
-    ``q = (c - a) / (a + b + c)`` is odd and increasing in ``d`` and is inverted by
-    table look-up. The DTFT comes from a zero-padded FFT of the periodic window.
-    """
-    w = _window(name, _TABLE_SIZE)
-    mag = np.abs(np.fft.fft(w, _TABLE_SIZE * _TABLE_PAD))
-    mag = mag / mag[0]
-    step = 1.0 / _TABLE_PAD
-    d: FloatArray = np.arange(-_TABLE_PAD // 2, _TABLE_PAD // 2 + 1, dtype=np.float64) * step
-
-    def g(nu: FloatArray) -> FloatArray:
-        idx = np.rint(nu / step).astype(np.int64) % mag.size
-        out: FloatArray = mag[idx]
-        return out
-
-    a, b, c = g(1.0 + d), g(d), g(1.0 - d)
-    q = (c - a) / (a + b + c)
-    if not np.all(np.diff(q) > 0):  # pragma: no cover - holds for every window in WINDOWS
-        raise ValueError(f"window={name!r}: three-bin statistic is not monotonic")
-    for arr in (d, q, b):
-        arr.flags.writeable = False
-    return d, q, b
-
-
-# --------------------------------------------------------------------------- spectrum
 
 
 @dataclass(frozen=True, eq=False)
@@ -263,7 +131,7 @@ class Spectrum:
 
 
 def _nfft_for_lines(lines: int) -> int:
-    target = _LINES_PER_NFFT * lines
+    target = SPAN_DIVISOR * lines
     nfft = 1 << max(0, int(np.ceil(np.log2(target - 1e-9))))
     return nfft
 
@@ -328,19 +196,23 @@ def amplitude_spectrum(
     """
     x = np.asarray(samples)
     if x.ndim != 1:
-        raise ValueError(f"samples must be 1-D; got shape {x.shape}")
+        raise InputError(
+            f"samples must be 1-D; got shape {x.shape}", field="samples", code="bad_type"
+        )
     if x.dtype not in (np.float32, np.float64):
         x = x.astype(np.float64)
-    fs = _check_positive(sample_rate_hz, "sample_rate_hz", " Hz")
-    window = _check_window(window)
-    overlap_pct = _check_range(overlap_pct, "overlap_pct", 0.0, 95.0, " %")
+    fs = check_positive(sample_rate_hz, "sample_rate_hz", unit=" Hz")
+    window = check_one_of(window, "window", sorted(WINDOWS))
+    overlap_pct = check_range(overlap_pct, "overlap_pct", 0.0, 95.0, unit=" %")
     n = x.size
     if averages is not None:
-        averages = _check_int(averages, "averages", 1, 1_000_000)
+        averages = check_int(
+            averages, "averages", 1, 1_000_000, type_text="a whole number", integral_floats=True
+        )
     want = averages if averages is not None else _DEFAULT_MIN_AVERAGES
 
     if lines is None:
-        candidates = [(ln, _LINES_PER_NFFT * ln) for ln in USUAL_LINES]
+        candidates = [(ln, SPAN_DIVISOR * ln) for ln in USUAL_LINES]
         fits = [
             (ln, int(nf))
             for ln, nf in candidates
@@ -348,9 +220,11 @@ def amplitude_spectrum(
             and _count_blocks(n, int(nf), int(nf) - _noverlap(int(nf), overlap_pct)) >= 1
         ]
         if not fits:
-            raise ValueError(
-                f"samples has {n} values; at least {int(_LINES_PER_NFFT * USUAL_LINES[0])} "
-                "are needed for the smallest block"
+            raise InputError(
+                f"samples has {n} values; at least {int(SPAN_DIVISOR * USUAL_LINES[0])} "
+                "are needed for the smallest block",
+                field="samples",
+                code="empty",
             )
         enough = [
             (ln, nf)
@@ -359,28 +233,39 @@ def amplitude_spectrum(
         ]
         lines_req, nfft = (enough or fits)[-1]
     else:
-        lines_req = _check_int(lines, "lines", 1, USUAL_LINES[-1])
+        lines_req = check_int(
+            lines, "lines", 1, USUAL_LINES[-1], type_text="a whole number", integral_floats=True
+        )
         nfft = _nfft_for_lines(lines_req)
         if nfft > n:
-            raise ValueError(
-                f"lines={lines_req} needs blocks of {nfft} samples; the record has only {n}"
+            raise InputError(
+                f"lines={lines_req} needs blocks of {nfft} samples; the record has only {n}",
+                field="lines",
+                code="invalid",
             )
     noverlap = _noverlap(nfft, overlap_pct)
     step = nfft - noverlap
     available = _count_blocks(n, nfft, step)
     if averages is not None and averages > available:
-        raise ValueError(
+        raise InputError(
             f"averages={averages} needs {nfft + (averages - 1) * step} samples with "
             f"nfft={nfft} and {overlap_pct:g} % overlap; the record has {n} "
-            f"(at most {available} averages)"
+            f"(at most {available} averages)",
+            field="averages",
+            code="above_limit",
         )
     n_avg = averages if averages is not None else available
     x = x[: nfft + (n_avg - 1) * step]
     if not np.all(np.isfinite(x)):
         i = int(np.argmax(~np.isfinite(x)))
-        raise ValueError(f"samples[{i}]={float(x[i])!r}; every sample must be finite")
+        raise InputError(
+            f"samples[{i}]={float(x[i])!r}; every sample must be finite",
+            field=f"samples[{i}]",
+            code="not_finite",
+            value=float(x[i]),
+        )
 
-    w64 = _window(window, nfft)
+    w64 = window_samples(window, nfft)
     w = w64.astype(x.dtype)
     frames = np.lib.stride_tricks.sliding_window_view(x, nfft)[::step]
     per_chunk = max(1, _CHUNK_SAMPLES // nfft)
@@ -401,16 +286,13 @@ def amplitude_spectrum(
         amplitude=amp,
         sample_rate_hz=fs,
         bin_width_hz=fs / nfft,
-        lines=int(nfft / _LINES_PER_NFFT),
-        span_hz=fs / _LINES_PER_NFFT,
+        lines=int(nfft / SPAN_DIVISOR),
+        span_hz=fs / SPAN_DIVISOR,
         window=window,
         averages=int(n_avg),
         nfft=int(nfft),
         overlap_pct=100.0 * noverlap / nfft,
     )
-
-
-# --------------------------------------------------------------------------- floor
 
 
 def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArray:
@@ -439,15 +321,22 @@ def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArr
     power-averaged spectrum the median sits slightly below the mean level (by about
     1.6 dB for a single average, less with more averages: chi-square statistics).
     """
-    amp = _check_spectrum_array(amplitude, "amplitude")
+    amp = check_finite_array(amplitude, "amplitude")
     if np.any(amp < 0):
         i = int(np.argmax(amp < 0))
-        raise ValueError(f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0")
+        raise InputError(
+            f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0",
+            field=f"amplitude[{i}]",
+            code="below_limit",
+            value=float(amp[i]),
+        )
     n = amp.size
     if width_bins is None:
         width = n if n < 31 else int(np.clip(n // 64, 31, 1025))
     else:
-        width = _check_int(width_bins, "width_bins", 3, 1_000_001)
+        width = check_int(
+            width_bins, "width_bins", 3, 1_000_001, type_text="a whole number", integral_floats=True
+        )
     width = min(width | 1, n | 1)
     tiny = _tiny(amp)
     db = _db(amp, tiny)
@@ -457,9 +346,6 @@ def noise_floor(amplitude: ArrayLike, width_bins: int | None = None) -> FloatArr
         floor_db = scipy.ndimage.median_filter(db, size=width, mode="mirror")
     out: FloatArray = 10.0 ** (floor_db / 20.0)
     return out
-
-
-# --------------------------------------------------------------------------- peaks
 
 
 @dataclass(frozen=True, eq=False)
@@ -559,36 +445,59 @@ def find_peaks(
        spectral peaks".
     .. [2] Grandke, *IEEE Trans. Instrum. Meas.* 32(2), 1983.
     """
-    f = _check_spectrum_array(freq_hz, "freq_hz", min_len=3)
-    amp = _check_spectrum_array(amplitude, "amplitude", min_len=3)
+    f = check_finite_array(freq_hz, "freq_hz", min_len=3)
+    amp = check_finite_array(amplitude, "amplitude", min_len=3)
     if amp.size != f.size:
-        raise ValueError(f"amplitude has {amp.size} values but freq_hz has {f.size}")
+        raise InputError(
+            f"amplitude has {amp.size} values but freq_hz has {f.size}",
+            field="amplitude",
+            code="mismatched_lengths",
+        )
     if np.any(amp < 0):
         i = int(np.argmax(amp < 0))
-        raise ValueError(f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0")
+        raise InputError(
+            f"amplitude[{i}]={float(amp[i])!r}; linear amplitudes must be >= 0",
+            field=f"amplitude[{i}]",
+            code="below_limit",
+            value=float(amp[i]),
+        )
     steps = np.diff(f)
     if np.any(steps <= 0):
         i = int(np.argmax(steps <= 0)) + 1
-        raise ValueError(
+        raise InputError(
             f"freq_hz[{i}]={float(f[i])!r} does not exceed freq_hz[{i - 1}]={float(f[i - 1])!r}; "
-            "frequencies must increase"
+            "frequencies must increase",
+            field=f"freq_hz[{i}]",
+            code="above_limit",
+            value=float(f[i]),
         )
-    threshold_db = _check_range(threshold_db, "threshold_db", 0.0, 200.0, " dB")
-    prominence_db = _check_range(prominence_db, "prominence_db", 0.0, 200.0, " dB")
-    window = _check_window(window, allow_unknown=True)
-    max_peaks = _check_int(max_peaks, "max_peaks", 1, 1_000_000)
+    threshold_db = check_range(threshold_db, "threshold_db", 0.0, 200.0, unit=" dB")
+    prominence_db = check_range(prominence_db, "prominence_db", 0.0, 200.0, unit=" dB")
+    window = check_one_of(window, "window", [*sorted(WINDOWS), "unknown"])
+    max_peaks = check_int(
+        max_peaks, "max_peaks", 1, 1_000_000, type_text="a whole number", integral_floats=True
+    )
     if floor is None:
         fl = noise_floor(amp)
     else:
-        fl = _check_spectrum_array(
+        fl = check_finite_array(
             np.broadcast_to(np.asarray(floor, float), amp.shape) if np.ndim(floor) == 0 else floor,
             "floor",
         )
         if fl.size != amp.size:
-            raise ValueError(f"floor has {fl.size} values but amplitude has {amp.size}")
+            raise InputError(
+                f"floor has {fl.size} values but amplitude has {amp.size}",
+                field="floor",
+                code="mismatched_lengths",
+            )
         if np.any(fl <= 0):
             i = int(np.argmax(fl <= 0))
-            raise ValueError(f"floor[{i}]={float(fl[i])!r}; the floor must be > 0")
+            raise InputError(
+                f"floor[{i}]={float(fl[i])!r}; the floor must be > 0",
+                field=f"floor[{i}]",
+                code="not_positive",
+                value=float(fl[i]),
+            )
 
     tiny = _tiny(amp)
     db = _db(amp, tiny)
@@ -610,7 +519,7 @@ def find_peaks(
         d = np.clip(d, -0.5, 0.5)
         peak_amp = b.copy()
     else:
-        grid, q_table, gain = _kernel_tables(window)
+        grid, q_table, gain = kernel_tables(window)
         total = a + b + c
         q = np.where(total > 0, (c - a) / np.where(total > 0, total, 1.0), 0.0)
         d = np.interp(q, q_table, grid)
@@ -627,9 +536,6 @@ def find_peaks(
         bin=idx.astype(np.int64),
         snr_db=snr.astype(np.float64),
     )
-
-
-# --------------------------------------------------------------------------- units
 
 
 def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
@@ -654,7 +560,7 @@ def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
     reference keeps every value positive (dB SPL re 20 µPa, dBµV), so the caller should
     let the user override the guess, e.g. from a column header.
     """
-    a = _check_spectrum_array(amplitude, "amplitude")
+    a = check_finite_array(amplitude, "amplitude")
     neg = int(np.count_nonzero(a < 0))
     if neg:
         return (
@@ -686,7 +592,7 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     ndarray
         Linear amplitudes.
     """
-    v = _check_spectrum_array(values, "values")
+    v = check_finite_array(values, "values")
     u = unit.lower() if isinstance(unit, str) else unit
     if u == "db":
         out: FloatArray = 10.0 ** (v / 20.0)
@@ -694,9 +600,14 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     if u == "linear":
         if np.any(v < 0):
             i = int(np.argmax(v < 0))
-            raise ValueError(
+            raise InputError(
                 f"values[{i}]={float(v[i])!r} is negative; a linear amplitude must be >= 0 "
-                "(are the values in dB?)"
+                "(are the values in dB?)",
+                field=f"values[{i}]",
+                code="below_limit",
+                value=float(v[i]),
             )
         return v.copy()
-    raise ValueError(f"unit={unit!r} must be 'linear' or 'db'")
+    raise InputError(
+        f"unit={unit!r} must be 'linear' or 'db'", field="unit", code="invalid", value=unit
+    )

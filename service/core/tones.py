@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from .errors import InputError
+
 __all__ = ["ToneSet", "strings"]
 
 FloatArray = NDArray[np.float64]
@@ -26,7 +28,9 @@ def _obj(values: Sequence[str] | ObjArray, n: int, name: str) -> ObjArray:
     arr = np.empty(n, dtype=object)
     arr[:] = list(values) if not isinstance(values, np.ndarray) else values
     if arr.shape != (n,):
-        raise ValueError(f"{name} has {arr.size} entries; expected {n}")
+        raise InputError(
+            f"{name} has {arr.size} entries; expected {n}", field=name, code="mismatched_lengths"
+        )
     return arr
 
 
@@ -95,7 +99,12 @@ class ToneSet:
             bad = ~np.isfinite(f) | (f < 0)
             i = int(np.flatnonzero(bad)[0])
             limit = "must be finite" if not np.isfinite(f[i]) else "must be >= 0 Hz"
-            raise ValueError(f"tone {self.label[i]!r} has frequency {f[i]!r} Hz; {limit}")
+            raise InputError(
+                f"tone {self.label[i]!r} has frequency {float(f[i])!r} Hz; {limit}",
+                field=f"freq_hz[{i}]",
+                code="not_finite" if not np.isfinite(f[i]) else "below_limit",
+                value=float(f[i]),
+            )
 
     def __len__(self) -> int:
         return int(self.fixed_hz.size)

@@ -43,12 +43,13 @@ BW = FS / 4096  # 1600 lines
 
 
 def _butter_db(order: int, cutoff: float, f: float) -> float:
-    # Source: DESIGN.md §5, Butterworth |H|² = 1/(1+(f/fc)^(2N))
+    # Source: Butterworth |H|² = 1/(1+(f/fc)^(2N)) (S. Butterworth, Wireless Eng. 7, 1930).
     return 10 * np.log10(1 + (f / cutoff) ** (2 * order))
 
 
 def _demo_chain() -> Chain:
-    # DESIGN.md §6: 12.8 kS/s behind a weak 2nd-order filter (here Butterworth at 5 kHz)
+    # The invented demo bench (service/demo.py): 12.8 kS/s behind a weak 2nd-order
+    # filter (here Butterworth at 5 kHz).
     return Chain.shorthand(FS, AnalogLowpass(family="butterworth", order=2, cutoff_hz=5000.0))
 
 
@@ -81,8 +82,9 @@ class TestFrequencyTolerance:
 
 class TestAttribute:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5 fold values, fs = 10 kHz: 7.3 kHz → 2.7 kHz (zone 2,
-        # inverted), 13.2 kHz → 3.2 kHz (zone 3).
+        # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2; zones: Lyons 2011,
+        # sec. 2.3), by hand at
+        # fs = 10 kHz: 10 − 7.3 = 2.7 kHz (zone 2, inverted), 13.2 − 10 = 3.2 kHz (zone 3).
         chain = Chain.shorthand(10_000.0)
         tones = ToneSet.explicit([7300.0, 13200.0, 1000.0], ["a", "b", "c"], [0.1, 0.1, 0.1])
         bw = 10_000.0 / 4096
@@ -228,7 +230,7 @@ class TestAttribute:
 
 class TestAttributeSimulated:
     def test_pwm_carrier_above_nyquist(self) -> None:
-        """DESIGN.md §6 bench at 9000 rpm: inverter lines fold, gear mesh stays direct."""
+        """The invented demo bench at 9000 rpm: inverter lines fold, gear mesh stays direct."""
         shaft_hz = 150.0  # 9000 rpm
         f1 = 4 * shaft_hz  # 4 pole pairs
         second_mesh = shaft_hz * 17 / 53 * 19
@@ -254,8 +256,9 @@ class TestAttributeSimulated:
         p = cap.peaks
         at = attribute(p.freq_hz, p.amplitude, p.floor, _demo_chain(), expand_sources(sources),
                        cap.spectrum.bin_width_hz)  # fmt: skip
-        # Source: DESIGN.md §5 fold formula at 12.8 kS/s: 10 kHz → 2.8 kHz, 8.8 kHz →
-        # 4.0 kHz, 11.2 kHz → 1.6 kHz, all zone 2 (inverted).
+        # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2), by hand at 12.8
+        # kS/s:
+        # 12.8 − 10 = 2.8 kHz, 12.8 − 8.8 = 4.0 kHz, 12.8 − 11.2 = 1.6 kHz, all zone 2.
         for true, apparent, label in (
             (10_000.0, 2800.0, "carrier 1×"),
             (8800.0, 4000.0, "carrier 1× − 2·f1"),
@@ -307,7 +310,8 @@ class TestAttributeSimulated:
         )  # fmt: skip
         p = cap.peaks
         at = attribute(p.freq_hz, p.amplitude, p.floor, chain, tones, cap.spectrum.bin_width_hz)
-        # Source: DESIGN.md §5 fold formula: 5.1 kHz at 6.4 kS/s → 1.3 kHz, zone 2.
+        # Source: fold formula (Oppenheim & Schafer 2010, sec. 4.2), by hand: 6.4 − 5.1 = 1.3 kHz,
+        # zone 2.
         i = nearest_peak(p, 1300.0)
         assert abs(p.freq_hz[i] - 1300.0) < 0.1 * cap.spectrum.bin_width_hz
         assert at.verdict[i] == "alias"
@@ -337,7 +341,7 @@ class TestAttributeSimulated:
         # Reference: scipy.signal.freqz of the Kaiser FIR designed in the simulation.
         ref = fir_attenuation_db(kaiser_taps(high, 5000.0, 7500.0, 80.0), high, 6800.0)
         assert 10.0 < ref < 30.0  # really in the transition band
-        i = nearest_peak(p, FS - 6800.0)  # Source: DESIGN.md §5 fold formula, 6.8 → 6.0 kHz
+        i = nearest_peak(p, FS - 6800.0)  # Source: fold ({OS}): 12.8 − 6.8 = 6.0 kHz
         assert abs(p.freq_hz[i] - 6000.0) < 0.1 * bw
         known = ExplicitTones("test signal", (1000.0, 6800.0), ("reference", "transition tone"),
                               amplitudes=(0.5, 0.5)).expand()  # fmt: skip
@@ -395,7 +399,7 @@ class TestAttributeSimulated:
         at = attribute(p.freq_hz, p.amplitude, p.floor, _plain_chain(), None, bw, families=fams)
         for k in range(6, 13):  # 6.6 kHz and up are above 6.4 kHz
             true = k * f0
-            # Source: DESIGN.md §5 fold formula |f − fs·round(f/fs)|
+            # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2)
             i = nearest_peak(p, abs(true - FS * round(true / FS)))
             assert at.verdict[i] == "alias", at.explanation[i]
             assert at.source[i] == "harmonic family of 1.100 kHz (blind)"

@@ -7,6 +7,8 @@ import re
 import numpy as np
 import pytest
 import scipy.signal as sig
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from service.core.chain import (
     AnalogLowpass,
@@ -17,6 +19,7 @@ from service.core.chain import (
     Sample,
     SensorResonance,
 )
+from service.core.errors import InputError
 from service.core.folding import fold
 
 
@@ -270,8 +273,9 @@ class TestEvaluate:
         chain = Chain.shorthand(10000)
         r = chain.evaluate([7300.0, 13200.0, 1000.0])
         assert isinstance(r, ChainResponse)
-        # Source: DESIGN.md §5 (fs = 10 kHz: 7.3 kHz -> 2.7 kHz in zone 2, inverted;
-        # 13.2 kHz -> 3.2 kHz in zone 3).
+        # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2; zones: Lyons 2011,
+        # sec. 2.3), by hand at
+        # fs = 10 kHz: 7.3 kHz -> 2.7 kHz in zone 2, inverted; 13.2 kHz -> 3.2 kHz in zone 3.
         np.testing.assert_allclose(r.apparent_hz, [2700.0, 3200.0, 1000.0])
         assert r.zone.tolist() == [2, 3, 1]
         assert r.inverted.tolist() == [True, False, False]
@@ -436,3 +440,47 @@ class TestEvaluate:
             chain.evaluate([np.nan])
         with pytest.raises(ValueError, match="scalar or 1-D"):
             chain.evaluate(np.ones((2, 2)))
+
+
+any_finite = st.floats(allow_nan=False, allow_infinity=False)
+
+
+class TestFiniteInputs:
+    """Every finite rate and tone: an answer or an InputError, nothing else."""
+
+    @settings(max_examples=300, deadline=None)
+    @given(any_finite, st.lists(any_finite, min_size=1, max_size=4))
+    def test_shorthand_answers_or_refuses(self, fs: float, tones: list[float]) -> None:
+        try:
+            out = Chain.shorthand(fs).evaluate(tones)
+        except InputError:
+            return
+        assert np.all(out.zone >= 1)
+        assert np.all(out.apparent_hz <= fs / 2 * (1 + 1e-9) + 5e-324)
+
+    @settings(max_examples=200, deadline=None)
+    @given(any_finite, any_finite, st.integers(1, 8), any_finite)
+    def test_full_chain_answers_or_refuses(
+        self, fs: float, cutoff: float, factor: int, tone: float
+    ) -> None:
+        try:
+            chain = Chain(
+                [
+                    SensorResonance(28000.0, 20.0),
+                    AnalogLowpass("butterworth", 4, cutoff),
+                    Sample(fs),
+                    Decimate(factor),
+                ]
+            )
+            out = chain.evaluate([tone])
+        except InputError:
+            return
+        assert int(out.zone[0]) >= 1
+        assert np.isfinite(out.attenuation_db[0])
+
+    def test_reported_request_is_refused(self) -> None:
+        # POST /api/v1/fold {"sample_rate_hz": 1e-10, "tones": [{"freq_hz": 1e10}]} gave
+        # an IndexError in the zone lookup: 1e10 / 1e-10 = 1e20 overflows int64.
+        with pytest.raises(InputError) as info:
+            Chain.shorthand(1e-10).evaluate([1e10])
+        assert (info.value.field, info.value.code) == ("freq_hz", "above_limit")

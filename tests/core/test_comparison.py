@@ -15,7 +15,9 @@ BA, BB = RA / 4096, RB / 4096
 
 class TestCompareRates:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5: at 10 kHz, 13.2 kHz reads 3.2 kHz (zone 3). At 11.5 kHz
+        # Source: fold formula (Oppenheim & Schafer 2010, sec. 4.2), by hand: at 10 kHz, 13.2 kHz
+        # reads
+        # 13.2 − 10 = 3.2 kHz (zone 3). At 11.5 kHz
         # the fold formula gives |13.2 − 11.5| = 1.7 kHz (zone 3).
         res = compare_rates([1200.0, 3200.0], [0.5, 0.3], RA, BA,
                             [1200.0, 1700.0], [0.5, 0.3], RB, BB)  # fmt: skip

@@ -1,4 +1,4 @@
-"""Tests for service.core.filters: analog, table, sensor and digital responses."""
+"""Tests for service.core.filters (analog, table, sensor) and service.core.digital."""
 
 from __future__ import annotations
 
@@ -8,12 +8,10 @@ import numpy as np
 import pytest
 import scipy.signal as sig
 
+from service.core.digital import decimation_filter, design_lowpass_fir, digital_attenuation_db
 from service.core.filters import (
     MAX_ATTENUATION_DB,
     analog_attenuation_db,
-    decimation_filter,
-    design_lowpass_fir,
-    digital_attenuation_db,
     sensor_attenuation_db,
     table_attenuation_db,
 )
@@ -39,16 +37,18 @@ def _freqs_reference_db(family: str, order: int, cutoff_hz: float, f: np.ndarray
 
 class TestAnalogAttenuationDb:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5, Butterworth |H|^2 = 1/(1+(f/fc)^(2N)): N=4 at 2 fc.
+        # Source: Butterworth |H|^2 = 1/(1+(f/fc)^(2N)) (S. Butterworth, Wireless Eng. 7, 1930): N=4
+        # at 2 fc,
+        # 10·log10(1 + 2^8) = 24.10 dB.
         assert analog_attenuation_db([2.0], "butterworth", 4, 1.0)[0] == pytest.approx(
             24.10, abs=0.005
         )
-        # Source: DESIGN.md §5: N=8, fc=5 kHz, at 8 kHz.
+        # Source: the same closed form, N=8, fc=5 kHz, at 8 kHz: 10·log10(1 + 1.6^16) = 32.66 dB.
         assert analog_attenuation_db([8000.0], "butterworth", 8, 5000.0)[0] == pytest.approx(
             32.66, abs=0.005
         )
-        # Source: DESIGN.md §5, Chebyshev I 0.5 dB ripple, N=4 at 2 fc (computed with
-        # scipy.signal.cheby1 + freqs; checked against that reference too).
+        # Reference: Chebyshev I 0.5 dB ripple, N=4 at 2 fc: 30.60 dB was computed with
+        # scipy.signal.cheby1 + freqs (not a published value); checked against that too.
         got = analog_attenuation_db([2000.0], "chebyshev1", 4, 1000.0, ripple_db=0.5)[0]
         assert got == pytest.approx(30.60, abs=0.005)
         # Reference: scipy.signal.cheby1 + freqs.
@@ -88,13 +88,16 @@ class TestAnalogAttenuationDb:
     @pytest.mark.parametrize("order", [4, 5, 6, 7, 8])
     def test_bessel_is_weak(self, order: int) -> None:
         got = analog_attenuation_db([2.0], "bessel", order, 1.0)[0]
-        # Source: DESIGN.md §5 (Bessel at twice its -3 dB frequency: about 13-14 dB).
+        # Reference: scipy.signal.bessel(norm="mag") + freqs gives about 13-14 dB at twice
+        # the -3 dB frequency for orders 4-8 (computed, not a published value).
         assert 12.5 < got < 14.5
         # Reference: scipy.signal.bessel(norm="mag") + freqs.
         assert got == pytest.approx(
             _freqs_reference_db("bessel", order, 1.0, np.array([2.0]))[0], abs=1e-9
         )
-        # Source: DESIGN.md §5 (Butterworth of the same order: 24-48 dB).
+        # Source: Butterworth closed form (S. Butterworth, Wireless Eng. 7, 1930): 10·log10(1 +
+        # 2^(2N)) is 24.1 dB at
+        # N = 4 and 48.2 dB at N = 8.
         assert 24 <= analog_attenuation_db([2.0], "butterworth", order, 1.0)[0] <= 48.2
 
     def test_edges(self) -> None:

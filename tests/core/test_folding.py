@@ -7,7 +7,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from service.core.errors import InputError
 from service.core.folding import fold, fold_intervals, is_inverted, nyquist_zone
+from service.core.spectrum import amplitude_spectrum
 
 
 def _fft_peak_hz(freq_hz: float, fs: float, n: int, phase: float) -> float:
@@ -24,7 +26,9 @@ def _fft_peak_hz(freq_hz: float, fs: float, n: int, phase: float) -> float:
 
 class TestFold:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5 worked values (fs = 10 kHz): 7.3 kHz → 2.7 kHz, 13.2 kHz → 3.2 kHz.
+        # Source: fold |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2), by hand at fs = 10
+        # kHz:
+        # 10 − 7.3 = 2.7 kHz, 13.2 − 10 = 3.2 kHz.
         np.testing.assert_allclose(fold([7300.0, 13200.0], 10_000.0), [2700.0, 3200.0])
 
     def test_against_sampling_simulation(self) -> None:
@@ -45,11 +49,19 @@ class TestFold:
         f = 3000.0
         assert fold(f, 4.0 / 3.0 * f) == pytest.approx(f / 3.0)
         # Common practice: sampled exactly twice per cycle at its zero crossings a sine
-        # reads as a flat line: the samples themselves are all zero.
+        # reads as a flat line. The fold puts it at fs/2, and the project's spectrum of
+        # those samples shows nothing there, while the same tone sampled at its crests
+        # shows a line at fs/2.
         fs = 2 * f
-        x = np.sin(2 * np.pi * f * np.arange(64) / fs)
-        assert np.max(np.abs(x)) < 1e-9
         assert fold(f, fs) == pytest.approx(fs / 2)
+        k = np.arange(8192)
+        at_zeros = amplitude_spectrum(np.sin(np.pi * k), fs, lines=800)
+        at_crests = amplitude_spectrum(np.cos(np.pi * k), fs, lines=800)
+        assert np.max(at_zeros.amplitude) < 1e-9
+        top = int(np.argmax(at_crests.amplitude))
+        # Within Hann's main-lobe half-width of 2 bins (Harris 1978, Table 1).
+        assert abs(at_crests.freq_hz[top] - fs / 2) <= 2 * at_crests.bin_width_hz
+        assert at_crests.amplitude[top] > 0.1
 
     def test_edges(self) -> None:
         fs = 10_000.0
@@ -71,7 +83,8 @@ class TestFold:
 
 class TestNyquistZone:
     def test_basic(self) -> None:
-        # Source: DESIGN.md §5: 7.3 kHz at 10 kHz is zone 2 (inverted), 13.2 kHz zone 3.
+        # Source: zone k covers ((k−1)·fs/2, k·fs/2], even zones inverted (Lyons 2011, sec. 2.3):
+        # 7.3 kHz at 10 kHz is zone 2 (5..10 kHz), 13.2 kHz zone 3 (10..15 kHz).
         np.testing.assert_array_equal(nyquist_zone([7300.0, 13200.0], 10_000.0), [2, 3])
         np.testing.assert_array_equal(is_inverted([7300.0, 13200.0], 10_000.0), [True, False])
 
@@ -148,3 +161,43 @@ class TestFoldProperties:
         # fold(fs − f) = fold(f) for 0 <= f <= fs.
         f = x * fs
         assert abs(float(fold(fs - f, fs)) - float(fold(f, fs))) <= 1e-9 * fs
+
+
+# Every finite double, from subnormals to the largest: the core must either answer or
+# refuse with InputError, never fail with another exception or a numpy warning (warnings
+# are errors in this suite).
+any_finite = st.floats(allow_nan=False, allow_infinity=False)
+any_positive = st.floats(min_value=0.0, exclude_min=True, allow_nan=False, allow_infinity=False)
+
+
+class TestFiniteInputs:
+    @settings(max_examples=400, deadline=None)
+    @given(any_finite, any_finite)
+    def test_fold_and_zone_answer_or_refuse(self, f: float, fs: float) -> None:
+        try:
+            a = float(fold(f, fs))
+            z = int(nyquist_zone(f, fs)[()])
+            inv = bool(is_inverted(f, fs)[()])
+        except InputError:
+            return
+        assert 0.0 <= a <= fs / 2 * (1 + 1e-9) + 5e-324
+        assert z >= 1
+        assert inv == (z % 2 == 0)
+
+    @settings(max_examples=300, deadline=None)
+    @given(any_finite, any_finite, any_finite)
+    def test_fold_intervals_answer_or_refuse(self, lo: float, hi: float, fs: float) -> None:
+        try:
+            a_lo, a_hi = fold_intervals(lo, hi, fs)
+        except InputError:
+            return
+        assert float(a_lo[0]) <= float(a_hi[0])
+
+    def test_huge_ratio_is_refused_with_its_limit(self) -> None:
+        # The case schema fuzzing found (an IndexError before): a tone at 1e10 Hz with
+        # fs = 1e-10 Hz is 1e20 times the rate. Limit: 1e9 × 1e-10 Hz = 0.1 Hz (by hand).
+        with pytest.raises(InputError) as info:
+            fold(1e10, 1e-10)
+        assert info.value.field == "freq_hz"
+        assert info.value.code == "above_limit"
+        assert info.value.limit == pytest.approx(0.1)

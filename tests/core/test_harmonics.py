@@ -14,7 +14,7 @@ BW = FS / 4096
 
 
 def _fold(f: np.ndarray | float, fs: float = FS) -> np.ndarray:
-    # Source: DESIGN.md §5 fold formula, fold(f, fs) = |f − fs·round(f/fs)|
+    # Reference: fold(f, fs) = |f − fs·round(f/fs)| (Oppenheim & Schafer 2010, sec. 4.2), in numpy.
     f = np.asarray(f, dtype=np.float64)
     return np.abs(f - fs * np.round(f / fs))
 

@@ -32,7 +32,7 @@ FILTERS = (
 
 
 def drive_unit_tones() -> ToneSet:
-    """Invented electric drive unit (DESIGN.md §6): motor orders, first mesh, inverter."""
+    """Invented electric drive unit (service/demo.py): motor orders, first mesh, inverter."""
     return ToneSet(
         label=[
             "1×",
@@ -194,13 +194,16 @@ class TestPlan:
         )
         assert p.sample_rate_hz == 51200.0
         assert p.rejected[0].failure == "span"
+        # The named code behind the API word: 40 960 / 2.56 = 16 000 Hz < 20 000 Hz.
+        assert p.rejected[0].code == "span_too_short"
         assert p.record.span_hz == pytest.approx(20000.0)
         # No alias anywhere: the cheapest filter is no filter at all.
         assert p.filter.family == "none"
         assert p.worst_margin_db == np.inf
 
     def test_fixed_tone_exactly_at_band_edge(self) -> None:
-        # 7.3 kHz at 10 kS/s folds to 2.7 kHz (DESIGN.md §5); band edge 2.7 kHz exactly.
+        # 7.3 kHz at 10 kS/s folds to 10 − 7.3 = 2.7 kHz (Oppenheim & Schafer 2010, sec. 4.2); band
+        # edge 2.7 kHz exactly.
         tones = ToneSet.explicit([1000.0, 7300.0], ["direct", "alias"], amplitude=[1, 1])
         opt = P.FilterOption("butterworth", 4)
         with pytest.raises(P.PlanImpossible):
@@ -362,6 +365,7 @@ class TestFilterOption:
         )
         assert p.sample_rate_hz == 8192.0
         assert [r.failure for r in p.rejected] == ["band_loss", "band_loss"]
+        assert {r.code for r in p.rejected} == {"band_loss_too_high"}
         # Reference: Butterworth |H|² = 1/(1+(f/fc)^(2N)) at the band edge.
         assert p.band_loss_db == pytest.approx(10 * np.log10(1 + (2000 / 2048) ** 16), abs=1e-9)
 

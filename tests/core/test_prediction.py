@@ -6,7 +6,6 @@ import numpy as np
 import pytest
 
 from service.core.chain import AnalogLowpass, Chain
-from service.core.folding import fold
 from service.core.prediction import predict
 from service.core.tones import ToneSet
 
@@ -23,7 +22,8 @@ class TestPredict:
             12_800.0, AnalogLowpass(family="butterworth", order=8, cutoff_hz=5000.0)
         )
         p = predict(_tones(np.array([8000.0, 1000.0]), 2.0), chain, lines=1600)
-        # Source: Butterworth closed form, N=8, fc=5 kHz at 8 kHz → 32.66 dB (DESIGN.md §5).
+        # Source: Butterworth closed form |H|² = 1/(1+(f/fc)^(2N)) (Butterworth, 1930),
+        # N=8, fc=5 kHz at 8 kHz: 10·log10(1 + 1.6^16) = 32.66 dB.
         assert p.response.attenuation_db[0] == pytest.approx(32.66, abs=0.01)
         assert p.apparent_amplitude[0] == pytest.approx(2.0 * 10 ** (-32.66 / 20), rel=1e-3)
         # Common practice: bin width = span / lines with span = fs / 2.56.
@@ -94,9 +94,10 @@ class TestCollisions:
         chain = Chain.shorthand(fs)
         assert predict(tones, chain, lines=400).collisions.total == 0
         p = predict(tones, chain, lines=400, speed_tolerance_pct=2.0)
-        # Reference: 1.3 kHz ± 2 % = 1274..1326 Hz folds to 274..326 Hz (numpy fold).
+        # Worked by hand: 1300 × 0.98 = 1274 Hz and 1300 × 1.02 = 1326 Hz, both in zone 3
+        # (1000..1500 Hz at fs = 1 kHz, not inverted), so each folds to f − 1000:
+        # 274 Hz and 326 Hz (fold formula, Oppenheim & Schafer sec. 4.2).
         np.testing.assert_allclose(
-            [p.apparent_low_hz[0], p.apparent_high_hz[0]],
-            [fold(1274.0, fs), fold(1326.0, fs)],
+            [p.apparent_low_hz[0], p.apparent_high_hz[0]], [274.0, 326.0], rtol=1e-12
         )
         assert p.collisions.total == 1

@@ -562,7 +562,7 @@ class TestExplicitTones:
 
 
 def _demo_sources() -> list:
-    """Demo scenario (DESIGN §6): electric drive unit on an end-of-line bench, 6000 rpm."""
+    """Invented demo scenario (service/demo.py): drive unit on an end-of-line bench, 6000 rpm."""
     motor = speed_to_hz(6000, "rpm")
     return [
         Shaft("motor shaft", motor, orders=(0.5, 1, 2), amplitude=0.3),
