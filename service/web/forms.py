@@ -17,8 +17,8 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from ..api.problems import Problem
-from ..api.schemas import FoldIn
+from ..contract.fold import FoldIn
+from ..http.problems import Problem
 
 __all__ = [
     "FILTER_FAMILIES",

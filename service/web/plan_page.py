@@ -7,7 +7,7 @@ error goes back to the form field it came from. The machine sources and the tone
 the predict form's own fields (``forms``), so a bench described once reads the same on
 every page.
 
-``install_plan_page(app)`` adds GET/POST ``/plan`` and POST ``/plan/share``. A saved plan
+Its ``router`` has GET/POST ``/plan`` and POST ``/plan/share``. A saved plan
 (kind ``"plan"``) is drawn by the saved-result page from ``plan_result_context`` and the
 template partial ``_plan_result.html``.
 """
@@ -21,18 +21,21 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from fastapi import APIRouter, FastAPI, Request
+from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 
-from ..api.plan_compute import PlanProblem, plan_payload
-from ..api.plan_schemas import PlanIn, demo_plan_request
-from ..api.problems import Problem
 from ..config import Settings
+from ..contract.plan import PlanIn
+from ..demo import demo_plan_request
+from ..http.problems import ANSWERABLE, Problem, as_problem
+from ..usecases.plan import plan_payload
+from ..usecases.save import SaveParts
 from .diagnose_pages import error_page, save_result
 from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, form_from_request
 from .plan_figures import runup_figure
+from .rendering import render
 
 __all__ = [
     "MAX_TABLE_CROSSINGS",
@@ -40,7 +43,6 @@ __all__ = [
     "PlanForm",
     "attach_plan_problem",
     "blank_plan_form",
-    "install_plan_page",
     "parse_plan_form",
     "plan_form_from_request",
     "plan_result_context",
@@ -366,7 +368,7 @@ def attach_plan_problem(f: PlanForm, p: Problem) -> None:
     """Show a problem the computation raised on the form; keep a plan's suggestions."""
     fid, words = _locate_plan(_loc_of(p.field or ""), f.origin)
     detail = p.detail
-    if isinstance(p, PlanProblem):
+    if p.suggestions is not None:
         f.suggestions = list(p.suggestions)
         detail = detail.split(". What would make it possible:")[0]
     f.state.add_error(fid, words, detail)
@@ -446,8 +448,6 @@ def plan_result_context(
 def _render(
     request: Request, name: str, ctx: dict[str, Any], status_code: int = 200
 ) -> HTMLResponse:
-    from .pages import render
-
     return render(request, name, ctx, status_code=status_code)
 
 
@@ -487,7 +487,8 @@ async def _answer(request: Request, f: PlanForm, demo: bool = False) -> HTMLResp
     if f.req is not None:
         try:
             result = await run_in_threadpool(_compute, f.req, settings, True)
-        except Problem as p:
+        except ANSWERABLE as exc:
+            p = as_problem(exc)
             attach_plan_problem(f, p)
     return await _page(request, f, result, demo=demo)
 
@@ -538,21 +539,11 @@ async def plan_share(request: Request) -> HTMLResponse:
         except ValidationError as exc:
             msg = exc.errors()[0]["msg"]
             raise Problem(422, f"the saved request is not valid: {msg}") from None
-        saved = await save_result(request, "plan", stored, result, None, title)
-    except Problem as p:
+        saved = await save_result(request, "plan", SaveParts(stored, result), title)
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         return error_page(request, p)
     return _render(request, "shared.html", {"active": "", "saved": saved, "kind": "plan"})
 
 
 # --------------------------------------------------------------------------- install
-
-
-def install_plan_page(app: FastAPI) -> None:
-    """Add the plan page (GET/POST /plan) and its share action (POST /plan/share).
-
-    The app must have the pages installed (``install_pages``: static files, templates'
-    navigation). Calling it again on the same app does nothing."""
-    if getattr(app.state, "plan_page_installed", False):
-        return
-    app.state.plan_page_installed = True
-    app.include_router(router)

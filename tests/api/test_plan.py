@@ -19,12 +19,14 @@ from fastapi.testclient import TestClient
 from numpy.typing import NDArray
 from scipy import signal
 
-from service.api.app import create_app
-from service.api.compute import tones_from_request
-from service.api.plan_schemas import PLAN_EXAMPLES, PlanIn, demo_plan_request
+from service.api.examples import PLAN_EXAMPLES
+from service.app import create_app
 from service.config import Settings
+from service.contract.plan import PlanIn
 from service.core.folding import fold
 from service.core.tones import ToneSet
+from service.demo import demo_plan_request
+from service.usecases.fold import tones_from_request
 
 PROBLEM = "application/problem+json"
 URL = "/api/v1/plan"

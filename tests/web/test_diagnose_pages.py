@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.app import create_app
+from service.app import create_app
 from service.config import Settings
 from service.demo import demo_fold_request
 from service.storage import StoreUnavailable

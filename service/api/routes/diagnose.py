@@ -8,14 +8,14 @@ from fastapi import APIRouter, Query, Request
 from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import UploadFile
 
-from ... import COMPUTATION_VERSION, __version__
-from ..bodies import body_openapi, parse_json_body, read_body
-from ..diagnose_schemas import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
-from ..diagnosis import Measured, Upload, compare_payload, diagnose_payload
+from ...contract.diagnose import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
+from ...http.bodies import body_openapi, parse_json_body, read_body
+from ...http.problems import Problem
+from ...http.responses import FastJSON
+from ...http.store_access import StoreAccess
+from ...usecases.diagnose import Upload, compare_payload, diagnose_payload
+from ...usecases.save import saved_parts
 from ..examples import COMPARE_EXAMPLES, DIAGNOSE_EXAMPLES
-from ..problems import Problem
-from ..responses import FastJSON
-from ..store_access import StoreAccess
 
 router = APIRouter(prefix="/api/v1", tags=["diagnose"])
 
@@ -114,34 +114,11 @@ def _is_multipart(request: Request) -> bool:
 
 
 async def _save(
-    request: Request,
-    kind: str,
-    req: Any,
-    payload: dict[str, Any],
-    spectrum: Measured | None,
-    title: str | None,
+    request: Request, kind: str, req: Any, payload: dict[str, Any], measured: Any, title: str | None
 ) -> dict[str, Any]:
     access: StoreAccess = request.app.state.store_access
-    side = {"spectrum", "time_record"}
-    exclude: Any = side if kind == "diagnose" else {"a": side, "b": side}
-    stored_request = req.model_dump(mode="json", exclude_none=True, exclude=exclude)
-    arrays = (spectrum.freq_hz, spectrum.amplitude) if spectrum is not None else None
-    rid, token = await access.call(
-        access.store.create,
-        kind,
-        stored_request,
-        payload,
-        COMPUTATION_VERSION,
-        __version__,
-        spectrum=arrays,
-        title=title,
-    )
-    return {
-        "id": rid,
-        "delete_token": token,
-        "url": f"/d/{rid}",
-        "api_url": f"/api/v1/diagnoses/{rid}",
-    }
+    arrays = (measured.freq_hz, measured.amplitude) if measured is not None else None
+    return await access.save(kind, saved_parts(kind, req, payload, arrays), title)
 
 
 @router.post(

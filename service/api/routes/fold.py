@@ -7,10 +7,10 @@ from fastapi import APIRouter, Request, Response
 from starlette.concurrency import run_in_threadpool
 
 from ...config import Settings
-from ..bodies import body_openapi, parse_json_body, read_body
-from ..compute import fold_payload
+from ...contract.fold import FoldIn, FoldOut
+from ...http.bodies import body_openapi, parse_json_body, read_body
+from ...usecases.fold import fold_payload
 from ..examples import FOLD_EXAMPLES
-from ..schemas import FoldIn, FoldOut
 
 router = APIRouter(prefix="/api/v1", tags=["predict"])
 

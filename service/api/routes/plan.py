@@ -7,11 +7,12 @@ from fastapi import APIRouter, Request, Response
 from starlette.concurrency import run_in_threadpool
 
 from ...config import Settings
-from ..bodies import body_openapi, parse_json_body, read_body
-from ..deps import SettingsDep
-from ..plan_compute import plan_payload
-from ..plan_schemas import PLAN_EXAMPLES, PlanIn, PlanOut
-from ..problems import PROBLEM_JSON
+from ...contract.plan import PlanIn, PlanOut
+from ...http.bodies import body_openapi, parse_json_body, read_body
+from ...http.deps import SettingsDep
+from ...http.problems import PROBLEM_JSON
+from ...usecases.plan import plan_payload
+from ..examples import PLAN_EXAMPLES
 
 router = APIRouter(prefix="/api/v1", tags=["plan"])
 

@@ -329,7 +329,7 @@ def run_cases(client: TestClient) -> dict[str, dict[str, Any]]:
     c("compare_save", "POST", "/api/v1/compare-rates?save=true", json=cmp)
 
     # plan
-    from service.api.plan_schemas import PLAN_EXAMPLES
+    from service.api.examples import PLAN_EXAMPLES
 
     for name, ex in PLAN_EXAMPLES.items():
         c(f"plan_{name}", "POST", "/api/v1/plan", json=ex["value"])

@@ -15,7 +15,7 @@ from fastapi.testclient import TestClient
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[3]))
 
-from service.api.app import create_app
+from service.app import create_app
 from tests.api.golden.cases import ANSWERS, run_cases
 from tests.api.golden.settings import golden_settings
 

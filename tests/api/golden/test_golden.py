@@ -12,7 +12,7 @@ from typing import Any
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.app import create_app
+from service.app import create_app
 
 from .cases import ANSWERS, run_cases
 from .settings import golden_settings

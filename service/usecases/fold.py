@@ -11,12 +11,12 @@ import numpy as np
 
 from .. import COMPUTATION_VERSION
 from ..config import Settings
+from ..contract.fold import FoldIn, chain_from_request
+from ..contract.sources import source_to_core
 from ..core.prediction import Prediction, predict
 from ..core.sources import expand_sources
 from ..core.tones import ToneSet
-from .problems import Problem, input_errors
-from .schemas import FoldIn, chain_from_request
-from .source_schemas import source_to_core
+from .errors import RequestError, input_errors
 
 __all__ = ["fold_payload", "prediction_to_dict", "run_fold", "tones_from_request"]
 
@@ -29,9 +29,9 @@ def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
     parts: list[ToneSet] = []
     if req.tones:
         if len(req.tones) > max_tones:
-            raise Problem(
-                422,
-                f"{len(req.tones)} tones is more than the limit of {max_tones}",
+            raise RequestError(
+                status=422,
+                message=f"{len(req.tones)} tones is more than the limit of {max_tones}",
                 field="tones",
                 value=len(req.tones),
                 limit=max_tones,
@@ -52,9 +52,9 @@ def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
             parts.append(expand_sources(core_sources))
     tones = ToneSet.concat(parts)
     if len(tones) > max_tones:
-        raise Problem(
-            422,
-            f"the tones and sources expand to {len(tones)} tones, more than the limit of "
+        raise RequestError(
+            status=422,
+            message=f"the tones and sources expand to {len(tones)} tones, more than the limit of "
             f"{max_tones}; ask for fewer harmonics or sidebands",
             field="sources",
             value=len(tones),

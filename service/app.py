@@ -1,4 +1,4 @@
-"""The application factory: routers, error handlers, storage, pages."""
+"""The one application factory: the only module that knows both the API and the pages."""
 
 from __future__ import annotations
 
@@ -10,15 +10,16 @@ from contextlib import asynccontextmanager
 from fastapi import FastAPI
 from starlette.concurrency import run_in_threadpool
 
-from .. import COMPUTATION_VERSION, __version__
-from ..config import Settings, get_settings
-from .bodies import ResponseCache
-from .examples import install_examples
-from .observability import install_observability
-from .problems import install_problem_handlers
-from .routes import diagnose, diagnoses, fold, health, plan
-from .security import install_security
-from .store_access import StoreAccess
+from . import COMPUTATION_VERSION, __version__
+from .api.examples import install_examples
+from .api.routes import diagnose, diagnoses, fold, health, plan
+from .config import Settings, get_settings
+from .http.bodies import ResponseCache
+from .http.observability import install_observability
+from .http.problems import install_problem_handlers
+from .http.security import install_security
+from .http.store_access import StoreAccess
+from .web.pages import install_pages
 
 __all__ = ["create_app"]
 
@@ -89,10 +90,5 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         return await access.call(access.store.get, record_id)
 
     app.state.saved_lookup = saved_lookup
-    from ..web.pages import install_pages
-
     install_pages(app)
-    from ..web.plan_page import install_plan_page
-
-    install_plan_page(app)
     return app

@@ -12,18 +12,15 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field, ValidationInfo, field_validator
 
-from ..demo import demo_sources
-from .schemas import Hz, HzOrZero, Label, StrictModel, ToneIn
-from .source_schemas import SourceIn
+from .fold import Hz, HzOrZero, Label, StrictModel, ToneIn
+from .sources import SourceIn
 
 __all__ = [
-    "PLAN_EXAMPLES",
     "FilterIn",
     "PlanIn",
     "PlanOut",
     "RunUpIn",
     "SensorIn",
-    "demo_plan_request",
 ]
 
 #: Limits on list lengths (kept well inside the core's own limits).
@@ -414,56 +411,3 @@ class PlanOut(BaseModel):
     runup: RunUpOut | None = None
     caution: str
     computation_version: str
-
-
-# --------------------------------------------------------------------------- examples
-
-DEMO_TOP_RPM = 12_000.0
-
-
-def demo_plan_request() -> dict[str, Any]:
-    """The drive-unit bench: 1,000 to 12,000 rpm, band 0-5 kHz, 60 dB alias rejection."""
-    return {
-        "band_hz": [0.0, 5000.0],
-        "sources": demo_sources(DEMO_TOP_RPM),
-        "nominal_rpm": DEMO_TOP_RPM,
-        "speed_range_rpm": [1000.0, DEMO_TOP_RPM],
-        "rejection_db": 60.0,
-    }
-
-
-PLAN_EXAMPLES: dict[str, Any] = {
-    "drive_unit": {
-        "summary": "Drive-unit bench up to 12,000 rpm, 0-5 kHz, 60 dB",
-        "description": "Every source of the bench, a run-up from 1,000 to 12,000 rpm; the "
-        "planner tries the usual converter rates and its default filters.",
-        "value": demo_plan_request(),
-    },
-    "resolve_sideband": {
-        "summary": "Also resolve the first mesh from its shaft sideband",
-        "value": {
-            **demo_plan_request(),
-            "resolve": ["first mesh 17/53: GMF 1×", "first mesh 17/53: GMF 1× + 1×shaft"],
-        },
-    },
-    "offered_rates": {
-        "summary": "Only the bench converter's rates, an absolute floor, with the run-up",
-        "value": {
-            **{k: v for k, v in demo_plan_request().items() if k != "rejection_db"},
-            "floor": 0.001,
-            "rates_hz": [12_800.0, 25_600.0, 51_200.0],
-            "runup": {"orders_of_interest": ["first mesh 17/53: GMF 1×", 1], "n_speeds": 200},
-        },
-    },
-    "carrier_only": {
-        "summary": "Keep a 10 kHz inverter carrier out of 0-2 kHz",
-        "value": {
-            "band_hz": [0.0, 2000.0],
-            "tones": [
-                {"label": "inverter carrier", "freq_hz": 10_000.0, "amplitude": 0.5},
-                {"label": "first mesh", "freq_hz": 1700.0, "amplitude": 0.8},
-            ],
-            "rejection_db": 80.0,
-        },
-    },
-}

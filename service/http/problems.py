@@ -7,8 +7,7 @@ plain 500 problem with no stack trace (the trace goes to the log only).
 from __future__ import annotations
 
 import logging
-from collections.abc import Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Sequence
 from typing import Any
 
 from fastapi import FastAPI, Request
@@ -17,7 +16,15 @@ from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.requests import ClientDisconnect
 
-__all__ = ["PROBLEM_JSON", "Problem", "input_errors", "install_problem_handlers"]
+from ..core.errors import InputError
+
+__all__ = [
+    "ANSWERABLE",
+    "PROBLEM_JSON",
+    "Problem",
+    "as_problem",
+    "install_problem_handlers",
+]
 
 PROBLEM_JSON = "application/problem+json"
 log = logging.getLogger("foldwise.errors")
@@ -62,6 +69,8 @@ class Problem(Exception):
         self.title = title or _TITLES.get(status, "Error")
         self.kind = kind or self.title.lower().replace(" ", "-")
         self.headers = headers
+        #: A plan no offered setup meets: sentences saying what would.
+        self.suggestions: list[str] | None = None
 
     def body(self, instance: str | None = None) -> dict[str, Any]:
         out: dict[str, Any] = {
@@ -79,6 +88,8 @@ class Problem(Exception):
             if self.limit is not None:
                 err["limit"] = _jsonable(self.limit)
             out["errors"] = [err]
+        if self.suggestions is not None:
+            out["suggestions"] = list(self.suggestions)
         return out
 
 
@@ -93,13 +104,32 @@ def _jsonable(v: Any) -> Any:
     return text if len(text) <= 200 else text[:197] + "..."
 
 
-@contextmanager
-def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
-    """Turn a ``ValueError`` from the core into a problem naming ``field``."""
-    try:
-        yield
-    except ValueError as exc:
-        raise Problem(status, str(exc), field=field) from exc
+def as_problem(exc: Problem | InputError) -> Problem:
+    """The problem to answer an error with: a :class:`Problem` as it is; an
+    :class:`InputError` from the use-cases or the core with its status, field, value and
+    limit (and a plan's ``suggestions``)."""
+    if isinstance(exc, Problem):
+        return exc
+    errors = getattr(exc, "errors", None)
+    if isinstance(errors, list):  # a saved request that does not fit its kind
+        return _validation_problem(RequestValidationError(errors))
+    p = Problem(
+        exc.status,
+        str(exc),
+        field=exc.field,
+        value=exc.value,
+        limit=exc.limit,
+        title=getattr(exc, "title", None),
+        kind=getattr(exc, "kind", None),
+    )
+    suggestions = getattr(exc, "suggestions", None)
+    if suggestions is not None:
+        p.suggestions = list(suggestions)
+    return p
+
+
+#: What an adapter catches around a use-case: both become a :class:`Problem`.
+ANSWERABLE = (Problem, InputError)
 
 
 def _field_path(loc: Sequence[Any]) -> str:
@@ -162,6 +192,10 @@ def install_problem_handlers(app: FastAPI) -> None:
     @app.exception_handler(Problem)
     async def _problem(request: Request, exc: Problem) -> JSONResponse:
         return _respond(request, exc)
+
+    @app.exception_handler(InputError)
+    async def _input(request: Request, exc: InputError) -> JSONResponse:
+        return _respond(request, as_problem(exc))
 
     @app.exception_handler(RequestValidationError)
     async def _invalid(request: Request, exc: RequestValidationError) -> JSONResponse:

@@ -6,8 +6,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field, model_validator
 
-from .schemas import AnalogFilterIn, Hz, HzOrZero, StageIn, StrictModel, ToneIn
-from .source_schemas import SourceIn
+from .fold import AnalogFilterIn, Hz, HzOrZero, StageIn, StrictModel, ToneIn
+from .sources import SourceIn
 
 __all__ = [
     "CaptureIn",

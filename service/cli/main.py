@@ -73,7 +73,7 @@ def _chain_fields(ns: argparse.Namespace) -> dict[str, Any]:
 
 
 def _fold_request(ns: argparse.Namespace) -> dict[str, Any]:
-    from .demo import demo_fold_request
+    from ..demo import demo_fold_request
 
     if ns.request:
         req: dict[str, Any] = _load_json(ns.request)
@@ -138,10 +138,10 @@ def _print_fold(out: dict[str, Any]) -> None:
 def _cmd_fold(ns: argparse.Namespace) -> int:
     from pydantic import ValidationError
 
-    from .api.compute import fold_payload
-    from .api.problems import Problem
-    from .api.schemas import FoldIn
-    from .config import get_settings
+    from ..config import get_settings
+    from ..contract.fold import FoldIn
+    from ..usecases.errors import InputError
+    from ..usecases.fold import fold_payload
 
     try:
         req = FoldIn.model_validate(_fold_request(ns))
@@ -151,8 +151,8 @@ def _cmd_fold(ns: argparse.Namespace) -> int:
             loc = ".".join(str(p) for p in e["loc"])
             print(f"foldwise: {loc}: {e['msg']}", file=sys.stderr)
         return 2
-    except Problem as exc:
-        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc.detail}", file=sys.stderr)
+    except InputError as exc:
+        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc}", file=sys.stderr)
         return 2
     except (OSError, json.JSONDecodeError) as exc:
         print(f"foldwise: {exc}", file=sys.stderr)
@@ -168,7 +168,7 @@ def _report_errors(run: Any) -> int:
     """Run ``run()``; print input errors the way the API words them and return 2."""
     from pydantic import ValidationError
 
-    from .api.problems import Problem
+    from ..usecases.errors import InputError
 
     try:
         run()
@@ -177,8 +177,8 @@ def _report_errors(run: Any) -> int:
             loc = ".".join(str(p) for p in e["loc"])
             print(f"foldwise: {loc}: {e['msg']}", file=sys.stderr)
         return 2
-    except Problem as exc:
-        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc.detail}", file=sys.stderr)
+    except InputError as exc:
+        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc}", file=sys.stderr)
         return 2
     except (OSError, json.JSONDecodeError, ValueError) as exc:
         print(f"foldwise: {exc}", file=sys.stderr)
@@ -241,9 +241,9 @@ def _print_diagnosis(out: dict[str, Any]) -> None:
 
 
 def _cmd_diagnose(ns: argparse.Namespace) -> int:
-    from .api.diagnose_schemas import DiagnoseIn
-    from .api.diagnosis import Upload, diagnose_payload
-    from .config import get_settings
+    from ..config import get_settings
+    from ..contract.diagnose import DiagnoseIn
+    from ..usecases.diagnose import Upload, diagnose_payload
 
     def run() -> None:
         path = Path(ns.file)
@@ -259,9 +259,9 @@ def _cmd_diagnose(ns: argparse.Namespace) -> int:
 
 
 def _cmd_compare(ns: argparse.Namespace) -> int:
-    from .api.diagnose_schemas import CompareIn
-    from .api.diagnosis import Upload, compare_payload
-    from .config import get_settings
+    from ..config import get_settings
+    from ..contract.diagnose import CompareIn
+    from ..usecases.diagnose import Upload, compare_payload
 
     def run() -> None:
         uploads = {}
@@ -285,8 +285,8 @@ def _cmd_compare(ns: argparse.Namespace) -> int:
 
 
 def _cmd_serve(ns: argparse.Namespace) -> int:
-    from .config import get_settings
-    from .serving import serve
+    from ..config import get_settings
+    from ..serving import serve
 
     settings = get_settings()
     serve(
@@ -334,7 +334,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--json", action="store_true", help="print the API's JSON instead of a table")
     p.set_defaults(func=_cmd_fold)
 
-    from .cli_plan import register as register_plan
+    from .plan import register as register_plan
 
     register_plan(sub)
 
@@ -411,5 +411,3 @@ def main(argv: Sequence[str] | None = None) -> int:
     return code
 
 
-if __name__ == "__main__":
-    sys.exit(main())

@@ -8,7 +8,7 @@ from typing import Annotated, Literal
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from ..core import chain as ch
-from .source_schemas import SourceIn
+from .sources import SourceIn
 
 __all__ = [
     "AnalogFilterIn",

@@ -15,17 +15,17 @@ import numpy as np
 
 from .. import COMPUTATION_VERSION
 from ..config import Settings
+from ..contract.caution import CAUTION
+from ..contract.plan import FilterIn, PlanIn
 from ..core import planning as pl
 from ..core.chain import SensorResonance
 from ..core.tones import ToneSet
-from .caution import CAUTION
-from .compute import tones_from_request
-from .plan_schemas import FilterIn, PlanIn
-from .problems import Problem
+from .errors import InputError, PlanImpossibleError, RequestError
+from .fold import tones_from_request
 
 __all__ = [
+    "PLAN_FIELDS",
     "PLAN_MAX_TONES",
-    "PlanProblem",
     "plan_payload",
     "plan_request_from_model",
     "plan_to_dict",
@@ -48,32 +48,12 @@ RUNUP_MAX_CROSSINGS = 1000
 RUNUP_MAX_FOLD_LINES_PER_LINE = 200
 
 
-class PlanProblem(Problem):
-    """A 422 problem for a plan no offered setup can meet, with what would make it possible.
-
-    The body gains a ``suggestions`` member: a list of sentences.
-    """
-
-    def __init__(self, detail: str, suggestions: list[str], *, field: str) -> None:
-        super().__init__(
-            422,
-            detail,
-            field=field,
-            title="No setup meets the requirements",
-            kind="plan-impossible",
-        )
-        self.suggestions = suggestions
-
-    def body(self, instance: str | None = None) -> dict[str, Any]:
-        out = super().body(instance)
-        out["suggestions"] = list(self.suggestions)
-        return out
-
-
 # --------------------------------------------------------------------------- errors
 
-# Core parameter names → request fields.
-_CORE_FIELDS = {
+#: Core parameter names → request fields: where a core error's ``field`` lands in the
+#: plan request. The one table of this mapping; the message is never parsed for it
+#: when the core names the field.
+PLAN_FIELDS = {
     "band_hz": "band_hz",
     "speed_range": "speed_range_rpm",
     "tolerance_pct": "speed_tolerance_pct",
@@ -96,18 +76,26 @@ _CORE_FIELDS = {
 }
 _LEADING = re.compile(r"^([A-Za-z_]+)((?:\[\d+\])*)[= ]")
 _WORD = re.compile(r"[A-Za-z_]+")
+_FIELD = re.compile(r"^([A-Za-z_]+)(.*)$")
 
 
-def _field_of(message: str, default: str) -> str:
-    """The request field a core ``ValueError`` message is about."""
+def _field_of(exc: ValueError, default: str) -> str:
+    """The request field a core error is about: its ``field`` through :data:`PLAN_FIELDS`;
+    for a plain ``ValueError``, the parameter its message starts with."""
+    if isinstance(exc, InputError) and exc.field:
+        m = _FIELD.match(exc.field)
+        if m and m.group(1) in PLAN_FIELDS:
+            return PLAN_FIELDS[m.group(1)] + m.group(2)
+        return default
+    message = str(exc)
     m = _LEADING.match(message)
-    if m and m.group(1) in _CORE_FIELDS:
-        return _CORE_FIELDS[m.group(1)] + m.group(2)
+    if m and m.group(1) in PLAN_FIELDS:
+        return PLAN_FIELDS[m.group(1)] + m.group(2)
     if "meet in frequency" in message:
         return "resolve"
     for word in _WORD.findall(message):
-        if "_" in word and word in _CORE_FIELDS:
-            return _CORE_FIELDS[word]
+        if "_" in word and word in PLAN_FIELDS:
+            return PLAN_FIELDS[word]
     return default
 
 
@@ -119,11 +107,11 @@ def _core_errors(default: str) -> Iterator[None]:
     except pl.PlanImpossible:
         raise
     except ValueError as exc:
-        msg = str(exc)
-        raise Problem(422, msg, field=_field_of(msg, default)) from exc
+        code = exc.code if isinstance(exc, InputError) else "invalid"
+        raise RequestError(str(exc), field=_field_of(exc, default), code=code) from exc
 
 
-def _impossible(exc: pl.PlanImpossible, req: PlanIn) -> PlanProblem:
+def _impossible(exc: pl.PlanImpossible, req: PlanIn) -> PlanImpossibleError:
     msg = str(exc)
     if msg.startswith("no listed rate covers"):
         field = "rates_hz" if req.rates_hz is not None else "rate_series"
@@ -139,7 +127,7 @@ def _impossible(exc: pl.PlanImpossible, req: PlanIn) -> PlanProblem:
     detail = msg
     if tips:
         detail += ". What would make it possible: " + "; ".join(tips) + "."
-    return PlanProblem(detail, tips, field=field)
+    return PlanImpossibleError(detail, tips, field=field)
 
 
 # --------------------------------------------------------------------------- request
@@ -388,9 +376,9 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
     assert req.runup is not None
     lo, hi = plan.speed_range
     if hi <= lo:
-        raise Problem(
-            422,
-            "a run-up needs a speed range: give speed_range_rpm (with nominal_rpm) or "
+        raise RequestError(
+            status=422,
+            message="a run-up needs a speed range: give speed_range_rpm (with nominal_rpm) or "
             "speed_tolerance_pct above 0",
             field="runup",
         )
@@ -406,9 +394,9 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
             if limit >= 2
             else "name a few orders_of_interest, or plan for fewer sources"
         )
-        raise Problem(
-            422,
-            f"a run-up of {n_lines} lines against {n_targets} lines of interest at {n} "
+        raise RequestError(
+            status=422,
+            message=f"a run-up of {n_lines} lines against {n_targets} lines of interest at {n} "
             f"speeds is {work:,} comparisons, more than the limit of {RUNUP_MAX_WORK:,}; " + fewer,
             field="runup.n_speeds" if limit >= 2 else "runup.orders_of_interest",
             value=n,
@@ -444,9 +432,9 @@ def _check_work(req: PlanIn, n_tones: int) -> None:
         field = "filters"
     else:
         field = "sources" if req.sources else "tones"
-    raise Problem(
-        422,
-        f"{n_tones:,} tones × {n_rates} rates × {n_filters} filters is {work:,} "
+    raise RequestError(
+        status=422,
+        message=f"{n_tones:,} tones × {n_rates} rates × {n_filters} filters is {work:,} "
         f"combinations to search, more than the limit of {PLAN_MAX_WORK:,}; offer fewer "
         "rates or filters, or plan for fewer tones",
         field=field,
@@ -458,8 +446,8 @@ def _check_work(req: PlanIn, n_tones: int) -> None:
 def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
     """Plan (and, when asked, the run-up) for a validated request, as plain JSON data.
 
-    Raises :class:`Problem` for input the core rejects (naming the field) and
-    :class:`PlanProblem` (422, with ``suggestions``) when no offered setup works.
+    Raises :class:`RequestError` for input the core rejects (naming the field) and
+    :class:`PlanImpossibleError` (with ``suggestions``) when no offered setup works.
     """
     tones = tones_from_request(req, min(settings.max_tones, PLAN_MAX_TONES))  # type: ignore[arg-type]
     core_req = plan_request_from_model(req, tones=tones)

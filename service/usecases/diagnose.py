@@ -13,15 +13,8 @@ import numpy as np
 
 from .. import COMPUTATION_VERSION
 from ..config import Settings
-from ..core.attribution import Attribution, attribute
-from ..core.chain import Chain
-from ..core.comparison import CaptureVerdicts, compare_rates
-from ..core.harmonics import Family, find_families
-from ..core.spectrum import amplitude_spectrum, detect_unit, find_peaks, noise_floor, to_linear
-from ..inputs import parse_spectrum_text, parse_time_record
-from .caution import CAUTION
-from .compute import tones_from_request
-from .diagnose_schemas import (
+from ..contract.caution import CAUTION
+from ..contract.diagnose import (
     CaptureIn,
     CompareIn,
     DiagnoseIn,
@@ -30,8 +23,15 @@ from .diagnose_schemas import (
     TimeRecordIn,
     UploadIn,
 )
-from .problems import Problem, input_errors
-from .schemas import ChainIn, chain_from_request
+from ..contract.fold import ChainIn, chain_from_request
+from ..core.attribution import Attribution, attribute
+from ..core.chain import Chain
+from ..core.comparison import CaptureVerdicts, compare_rates
+from ..core.harmonics import Family, find_families
+from ..core.spectrum import amplitude_spectrum, detect_unit, find_peaks, noise_floor, to_linear
+from ..inputs import parse_spectrum_text, parse_time_record
+from .errors import RequestError, input_errors
+from .fold import tones_from_request
 
 __all__ = [
     "Measured",
@@ -81,16 +81,16 @@ def _from_spectrum(
         amp = to_linear(values, unit)
     if not np.all(np.diff(freq) > 0):
         i = int(np.flatnonzero(np.diff(freq) <= 0)[0]) + 1
-        raise Problem(
-            422,
-            f"{field}.freq_hz[{i}]={freq[i]!r} is not above the value before "
+        raise RequestError(
+            status=422,
+            message=f"{field}.freq_hz[{i}]={freq[i]!r} is not above the value before "
             "it; frequencies must strictly increase",
             field=f"{field}.freq_hz",
         )
     if float(np.ptp(amp)) == 0.0:
-        raise Problem(
-            422,
-            f"{field}.amplitude is constant: there are no peaks to explain",
+        raise RequestError(
+            status=422,
+            message=f"{field}.amplitude is constant: there are no peaks to explain",
             field=f"{field}.amplitude",
         )
     bin_width = float(np.median(np.diff(freq)))
@@ -122,7 +122,9 @@ def _from_samples(
             averages=opts.averages,
         )
     if float(np.ptp(s.amplitude)) == 0.0:
-        raise Problem(422, f"{field} is constant: there are no peaks to explain", field=field)
+        raise RequestError(
+            status=422, message=f"{field} is constant: there are no peaks to explain", field=field
+        )
     return Measured(
         s.freq_hz,
         s.amplitude,
@@ -166,16 +168,16 @@ def measure(
     pre = f"{field}." if field else ""
     given = sum(x is not None for x in (spectrum, time_record, upload))
     if given != 1:
-        raise Problem(
-            422,
-            f"give exactly one of {pre}spectrum, {pre}time_record or a file (got {given})",
+        raise RequestError(
+            status=422,
+            message=f"give exactly one of {pre}spectrum, {pre}time_record or a file (got {given})",
             field=f"{pre}spectrum",
         )
     if spectrum is not None:
         if len(spectrum.freq_hz) > settings.max_spectrum_lines:
-            raise Problem(
-                413,
-                f"the spectrum has {len(spectrum.freq_hz)} lines; the limit is "
+            raise RequestError(
+                status=413,
+                message=f"the spectrum has {len(spectrum.freq_hz)} lines; the limit is "
                 f"{settings.max_spectrum_lines}",
                 field=f"{pre}spectrum.freq_hz",
                 limit=settings.max_spectrum_lines,
@@ -191,9 +193,9 @@ def measure(
     if time_record is not None:
         rate = time_record.sample_rate_hz or chain_rate_hz
         if rate is None:
-            raise Problem(
-                422,
-                "the time record needs sample_rate_hz (or a chain)",
+            raise RequestError(
+                status=422,
+                message="the time record needs sample_rate_hz (or a chain)",
                 field=f"{pre}time_record.sample_rate_hz",
             )
         samples = np.asarray(time_record.samples, dtype=np.float64)
@@ -262,9 +264,9 @@ def _capture_chain(c: DiagnoseIn | CaptureIn, record_rate: float | None, pre: st
         return _chain(ChainIn(chain=c.chain), f"{pre}chain")
     rate = c.sample_rate_hz or record_rate
     if rate is None:
-        raise Problem(
-            422,
-            "give sample_rate_hz (with optional anti_alias) or a chain: a "
+        raise RequestError(
+            status=422,
+            message="give sample_rate_hz (with optional anti_alias) or a chain: a "
             "spectrum cannot be diagnosed without the rate it was sampled at",
             field=f"{pre}sample_rate_hz",
         )
@@ -283,9 +285,9 @@ def _check_extent(m: Measured, chain: Chain, pre: str) -> None:
     nyq = chain.final_rate_hz / 2.0
     top = float(m.freq_hz[-1])
     if top > nyq * (1 + 1e-6) + m.bin_width_hz:
-        raise Problem(
-            422,
-            f"the spectrum reaches {top:g} Hz but the chain's final Nyquist frequency is "
+        raise RequestError(
+            status=422,
+            message=f"the spectrum reaches {top:g} Hz but the chain's final Nyquist frequency is "
             f"{nyq:g} Hz; check the sample rate (a spectrum cannot extend above fs/2)",
             field=f"{pre}sample_rate_hz",
             value=top,
@@ -295,9 +297,9 @@ def _check_extent(m: Measured, chain: Chain, pre: str) -> None:
         m.record_rate_hz is not None
         and abs(m.record_rate_hz - chain.final_rate_hz) > 1e-6 * chain.final_rate_hz
     ):
-        raise Problem(
-            422,
-            f"the time record is sampled at {m.record_rate_hz:g} S/s but the chain ends at "
+        raise RequestError(
+            status=422,
+            message=f"the time record is sampled at {m.record_rate_hz:g} S/s but the chain ends at "
             f"{chain.final_rate_hz:g} S/s; they must agree",
             field=f"{pre}sample_rate_hz",
             value=m.record_rate_hz,
@@ -530,9 +532,9 @@ def compare_payload(
         measured[side] = m
         rates[side] = chain.final_rate_hz
     if rates["a"] == rates["b"]:
-        raise Problem(
-            422,
-            f"both captures are at {rates['a']:g} S/s; the two-rate test needs "
+        raise RequestError(
+            status=422,
+            message=f"both captures are at {rates['a']:g} S/s; the two-rate test needs "
             "two different sample rates",
             field="b.sample_rate_hz",
         )

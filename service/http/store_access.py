@@ -11,8 +11,10 @@ from typing import Any, TypeVar
 
 from starlette.concurrency import run_in_threadpool
 
+from .. import COMPUTATION_VERSION, __version__
 from ..config import Settings
 from ..storage import Store, StoreUnavailable
+from ..usecases.save import SaveParts, saved_link
 from .problems import Problem
 
 __all__ = ["StoreAccess"]
@@ -62,6 +64,26 @@ class StoreAccess:
                 kind="store-unavailable",
                 headers={"Retry-After": "5"},
             ) from exc
+
+    async def save(self, kind: str, parts: SaveParts, title: str | None) -> dict[str, str]:
+        """The one save path: store ``parts`` and return :func:`saved_link`.
+
+        A result too large for the store is a 413 problem naming ``request``.
+        """
+        try:
+            rid, token = await self.call(
+                self.store.create,
+                kind,
+                parts.request,
+                parts.result,
+                COMPUTATION_VERSION,
+                __version__,
+                spectrum=parts.spectrum,
+                title=title,
+            )
+        except ValueError as exc:
+            raise Problem(413, str(exc), field="request") from exc
+        return saved_link(rid, token)
 
     def close(self) -> None:
         self.store.close()

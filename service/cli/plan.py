@@ -178,7 +178,7 @@ def _load_json(arg: str) -> Any:
 
 def build_plan_request(ns: argparse.Namespace) -> dict[str, Any]:
     """The API request the command line describes."""
-    from .api.plan_schemas import demo_plan_request
+    from ..demo import demo_plan_request
 
     if ns.request:
         req: dict[str, Any] = _load_json(ns.request)
@@ -310,10 +310,10 @@ def _print_plan(out: dict[str, Any]) -> None:
 def _cmd_plan(ns: argparse.Namespace) -> int:
     from pydantic import ValidationError
 
-    from .api.plan_compute import PlanProblem, plan_payload
-    from .api.plan_schemas import PlanIn
-    from .api.problems import Problem
-    from .config import get_settings
+    from ..config import get_settings
+    from ..contract.plan import PlanIn
+    from ..usecases.errors import InputError, PlanImpossibleError
+    from ..usecases.plan import plan_payload
 
     try:
         req = PlanIn.model_validate(build_plan_request(ns))
@@ -324,15 +324,13 @@ def _cmd_plan(ns: argparse.Namespace) -> int:
             msg = str(e["msg"]).removeprefix("Value error, ")
             print(f"foldwise plan: {loc}: {msg}", file=sys.stderr)
         return 2
-    except PlanProblem as exc:
-        print(f"foldwise plan: no setup meets the requirements: {exc.detail}", file=sys.stderr)
+    except PlanImpossibleError as exc:
+        print(f"foldwise plan: no setup meets the requirements: {exc}", file=sys.stderr)
         for tip in exc.suggestions:
             print(f"  - {tip}", file=sys.stderr)
         return 1
-    except Problem as exc:
-        print(
-            f"foldwise plan: {exc.field + ': ' if exc.field else ''}{exc.detail}", file=sys.stderr
-        )
+    except InputError as exc:
+        print(f"foldwise plan: {exc.field + ': ' if exc.field else ''}{exc}", file=sys.stderr)
         return 2
     except (OSError, ValueError) as exc:  # unreadable file, bad JSON
         print(f"foldwise plan: {exc}", file=sys.stderr)
