@@ -3,9 +3,9 @@ to the core's plain dataclasses. Field names here are a contract under /api/v1."
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, model_validator
+from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, model_validator
 
 from ..core import chain as ch
 from .sources import SourceIn
@@ -18,6 +18,7 @@ __all__ = [
     "StageIn",
     "ToneIn",
     "chain_from_request",
+    "chain_to_request",
 ]
 
 #: The largest frequency any field accepts: well above any machine or converter.
@@ -219,6 +220,20 @@ def chain_from_request(req: ChainIn) -> ch.Chain:
     assert req.sample_rate_hz is not None
     aa = req.anti_alias.to_core() if req.anti_alias is not None else None
     return ch.Chain.shorthand(req.sample_rate_hz, aa)
+
+
+_STAGES: TypeAdapter[list[StageIn]] = TypeAdapter(list[StageIn])
+
+
+def chain_to_request(chain: ch.Chain) -> list[dict[str, Any]]:
+    """A core chain written as the request's ``chain`` (stages say ``stage``), so a chain
+    the service recommends can be sent back to ``/api/v1/fold`` as it is."""
+    stages = []
+    for d in chain.describe():
+        body = {k: v for k, v in d.items() if k != "type"}
+        stages.append({"stage": d["type"], **body})
+    checked = _STAGES.validate_python(stages)
+    return [{"stage": s.stage, **s.model_dump(mode="json", exclude_none=True)} for s in checked]
 
 
 class ToneIn(StrictModel):

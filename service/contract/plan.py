@@ -12,7 +12,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field, ValidationInfo, field_validator
 
-from .fold import Hz, HzOrZero, Label, StrictModel, ToneIn
+from .fold import Hz, HzOrZero, Label, StageIn, StrictModel, ToneIn
 from .sources import SourceIn
 
 __all__ = [
@@ -310,7 +310,10 @@ class RecommendationOut(BaseModel):
     sample_rate_hz: float
     filter: FilterOut
     cutoff_hz: float | None = Field(description="The filter's cutoff at this rate, Hz")
-    chain: list[dict[str, Any]] = Field(description="The chain, stage by stage")
+    chain: list[StageIn] = Field(
+        description="The chain, stage by stage, in the request's chain model: send it as "
+        "`chain` to /api/v1/fold or /api/v1/diagnose as it is"
+    )
     stages: list[str] = Field(description="The chain, one readable name per stage")
     lines: int
     span_hz: float

@@ -16,6 +16,7 @@ import numpy as np
 from .. import COMPUTATION_VERSION
 from ..config import Settings
 from ..contract.caution import CAUTION
+from ..contract.fold import chain_to_request
 from ..contract.plan import FilterIn, PlanIn
 from ..core import planning as pl
 from ..core.chain import SensorResonance
@@ -239,7 +240,7 @@ def plan_to_dict(p: pl.Plan, tones: ToneSet, nominal_rpm: float | None) -> dict[
         "sample_rate_hz": p.sample_rate_hz,
         "filter": _filter_dict(p.filter, p.cutoff_hz),
         "cutoff_hz": p.cutoff_hz,
-        "chain": p.chain.describe(),
+        "chain": chain_to_request(p.chain),
         "stages": list(p.chain.stage_names),
         "lines": rec.lines,
         "span_hz": rec.span_hz,
