@@ -409,5 +409,3 @@ def main(argv: Sequence[str] | None = None) -> int:
     ns = build_parser().parse_args(argv)
     code: int = ns.func(ns)
     return code
-
-

@@ -7,6 +7,7 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, Field, model_validator
 
 from .fold import AnalogFilterIn, Hz, HzOrZero, StageIn, StrictModel, ToneIn
+from .saved import SavedLinkOut
 from .sources import SourceIn
 
 __all__ = [
@@ -215,6 +216,7 @@ class DiagnoseOut(BaseModel):
     families: list[dict[str, Any]]
     caution: str
     computation_version: str
+    saved: SavedLinkOut | None = Field(None, description="With `?save=true`: the link")
 
 
 class CompareOut(BaseModel):
@@ -224,3 +226,4 @@ class CompareOut(BaseModel):
     max_true_hz: float
     caution: str
     computation_version: str
+    saved: SavedLinkOut | None = Field(None, description="With `?save=true`: the link")

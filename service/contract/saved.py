@@ -6,7 +6,7 @@ from typing import Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-__all__ = ["SaveIn", "SavedOut", "SavedRecordOut"]
+__all__ = ["SaveIn", "SavedLinkOut", "SavedOut", "SavedRecordOut"]
 
 
 class SaveIn(BaseModel):
@@ -19,11 +19,16 @@ class SaveIn(BaseModel):
     title: str | None = Field(None, max_length=200, description="A short title for the link")
 
 
-class SavedOut(BaseModel):
+class SavedLinkOut(BaseModel):
+    """The one link shape of every saved kind."""
+
     id: str = Field(description="Unguessable id (192 random bits)")
     delete_token: str = Field(description="Keep this: it is the only way to delete the result")
     url: str = Field(description="Page a colleague can open")
-    api_url: str
+    api_url: str = Field(description="The saved result in the JSON API")
+
+
+class SavedOut(SavedLinkOut):
     kind: str
     computation_version: str
     result: dict[str, Any]

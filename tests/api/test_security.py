@@ -16,9 +16,9 @@ import pytest
 from fastapi.responses import PlainTextResponse
 from fastapi.testclient import TestClient
 
-from service.http import security
 from service.app import create_app
 from service.config import Settings
+from service.http import security
 from service.http.security import RateLimit, key_matches, needs_api_key
 
 PROBLEM = "application/problem+json"
