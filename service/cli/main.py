@@ -136,32 +136,19 @@ def _print_fold(out: dict[str, Any]) -> None:
 
 
 def _cmd_fold(ns: argparse.Namespace) -> int:
-    from pydantic import ValidationError
-
     from ..config import get_settings
     from ..contract.fold import FoldIn
-    from ..usecases.errors import InputError
     from ..usecases.fold import fold_payload
 
-    try:
+    def run() -> None:
         req = FoldIn.model_validate(_fold_request(ns))
         out = fold_payload(req, get_settings())
-    except ValidationError as exc:
-        for e in exc.errors():
-            loc = ".".join(str(p) for p in e["loc"])
-            print(f"foldwise: {loc}: {e['msg']}", file=sys.stderr)
-        return 2
-    except InputError as exc:
-        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc}", file=sys.stderr)
-        return 2
-    except (OSError, json.JSONDecodeError) as exc:
-        print(f"foldwise: {exc}", file=sys.stderr)
-        return 2
-    if ns.json:
-        print(json.dumps(out, indent=2, ensure_ascii=False))
-    else:
-        _print_fold(out)
-    return 0
+        if ns.json:
+            print(json.dumps(out, indent=2, ensure_ascii=False))
+        else:
+            _print_fold(out)
+
+    return _report_errors(run)
 
 
 def _report_errors(run: Any) -> int:

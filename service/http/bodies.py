@@ -16,9 +16,29 @@ from pydantic import BaseModel, ValidationError
 
 from .problems import Problem
 
-__all__ = ["ResponseCache", "body_openapi", "parse_json_body", "read_body", "register_models"]
+__all__ = [
+    "ResponseCache",
+    "body_openapi",
+    "parse_json_body",
+    "read_body",
+    "refuse_declared_size",
+    "register_models",
+]
 
 M = TypeVar("M", bound=BaseModel)
+
+
+def refuse_declared_size(request: Request, limit: int, *, field: str, noun: str) -> None:
+    """A 413 problem before reading, when the declared ``Content-Length`` is over ``limit``."""
+    declared = request.headers.get("content-length")
+    if declared is not None and declared.isdigit() and int(declared) > limit:
+        raise Problem(
+            413,
+            f"the {noun} is {int(declared)} bytes; the limit is {limit}",
+            field=field,
+            value=int(declared),
+            limit=limit,
+        )
 
 
 async def read_body(request: Request, limit: int) -> bytes:
@@ -32,15 +52,7 @@ async def read_body(request: Request, limit: int) -> bytes:
             value=ctype,
             limit="application/json",
         )
-    declared = request.headers.get("content-length")
-    if declared is not None and declared.isdigit() and int(declared) > limit:
-        raise Problem(
-            413,
-            f"the body is {int(declared)} bytes; the limit is {limit}",
-            field="body",
-            value=int(declared),
-            limit=limit,
-        )
+    refuse_declared_size(request, limit, field="body", noun="body")
     chunks = []
     size = 0
     async for chunk in request.stream():

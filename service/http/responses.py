@@ -8,11 +8,16 @@ from typing import Any
 import orjson
 from starlette.responses import JSONResponse
 
-__all__ = ["FastJSON"]
+__all__ = ["FastJSON", "json_bytes"]
+
+
+def json_bytes(content: Any) -> bytes:
+    """``content`` as JSON bytes, the way every route sends it."""
+    return orjson.dumps(content, option=orjson.OPT_SERIALIZE_NUMPY)
 
 
 class FastJSON(JSONResponse):
     media_type = "application/json"
 
     def render(self, content: Any) -> bytes:
-        return orjson.dumps(content, option=orjson.OPT_SERIALIZE_NUMPY)
+        return json_bytes(content)

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import json
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import numpy as np
@@ -52,6 +52,8 @@ __all__ = [
     "compare_result_context",
     "diagnose_result_context",
     "error_page",
+    "read_share_form",
+    "recompute_shared",
     "request_json",
     "router",
     "save_result",
@@ -505,19 +507,13 @@ async def share(request: Request) -> HTMLResponse:
     request JSON travels in the form), a diagnosis or comparison of pasted text (the
     page's form fields travel in the form) or the demo diagnosis (made by the app)."""
     settings: Settings = request.app.state.settings
-    form = await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
-    kind = str(form.get("kind", ""))
-    title = str(form.get("title", "")).strip()[:200] or None
     try:
+        form = await read_share_form(request)
+        kind = str(form.get("kind", ""))
+        title = str(form.get("title", "")).strip()[:200] or None
         if kind == "fold":
-            try:
-                stored, result = await run_in_threadpool(
-                    _share_fold, str(form.get("request", "")), settings
-                )
-            except ValidationError as exc:
-                msg = exc.errors()[0]["msg"]
-                raise Problem(422, f"the saved request is not valid: {msg}") from None
-            saved = await save_result(request, "fold", SaveParts(stored, result), title)
+            parts = await recompute_shared(_share_fold, str(form.get("request", "")), settings)
+            saved = await save_result(request, "fold", parts, title)
         elif kind in ("diagnose", "compare"):
             saved = await _share_pasted(request, kind, str(form.get("inputs", "")), title)
         elif kind == "diagnose_demo":
@@ -534,6 +530,29 @@ async def share(request: Request) -> HTMLResponse:
         p = as_problem(exc)
         return error_page(request, p)
     return _render(request, "shared.html", {"active": "", "saved": saved, "kind": kind})
+
+
+async def read_share_form(request: Request) -> FormData:
+    """A share action's small form (no files); 400 when it cannot be read."""
+    settings: Settings = request.app.state.settings
+    try:
+        return await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
+    except Exception as exc:  # malformed or oversized form
+        raise Problem(400, f"the form cannot be read: {exc}") from exc
+
+
+async def recompute_shared(
+    compute: Callable[[str, Settings], tuple[dict[str, Any], dict[str, Any]]],
+    text: str,
+    settings: Settings,
+) -> SaveParts:
+    """Recompute a shared request (the form carries it as JSON) for saving."""
+    try:
+        stored, result = await run_in_threadpool(compute, text, settings)
+    except ValidationError as exc:
+        msg = exc.errors()[0]["msg"]
+        raise Problem(422, f"the saved request is not valid: {msg}") from None
+    return SaveParts(stored, result)
 
 
 def request_json(req: Any) -> str:

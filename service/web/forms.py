@@ -311,14 +311,22 @@ def _parse_tone_list(text: str, st: FormState) -> tuple[list[dict[str, Any]], li
     return tones, line_no
 
 
-def _json_box(st: FormState, name: str, want: type) -> Any:
+def json_field(st: FormState, name: str, label: str) -> tuple[bool, Any]:
+    """The JSON in a text box: (False, None) when empty or unreadable (the error is put
+    beside the box), else (True, value)."""
     text = st.values.get(name, "").strip()
     if not text:
-        return None
+        return False, None
     try:
-        value = json.loads(text)
+        return True, json.loads(text)
     except json.JSONDecodeError as exc:
-        st.add_error(name, FIELD_LABELS[name], f"not valid JSON: {exc.msg} at character {exc.pos}")
+        st.add_error(name, label, f"not valid JSON: {exc.msg} at character {exc.pos}")
+        return False, None
+
+
+def _json_box(st: FormState, name: str, want: type) -> Any:
+    ok, value = json_field(st, name, FIELD_LABELS[name])
+    if not ok:
         return None
     if not isinstance(value, want):
         st.add_error(

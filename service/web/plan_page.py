@@ -31,9 +31,16 @@ from ..contract.plan import PlanIn
 from ..demo import demo_plan_request
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..usecases.plan import plan_payload
-from ..usecases.save import SaveParts
-from .diagnose_pages import error_page, save_result
-from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, form_from_request
+from .diagnose_pages import error_page, read_share_form, recompute_shared, save_result
+from .forms import (
+    FIELD_LABELS,
+    FormState,
+    _build_request,
+    _locate,
+    _Origin,
+    form_from_request,
+    json_field,
+)
 from .plan_figures import runup_figure
 from .rendering import render
 
@@ -208,13 +215,8 @@ def _order_or_label(text: str) -> str | float:
 
 
 def _json_list(st: FormState, name: str) -> list[Any] | None:
-    text = st.values.get(name, "").strip()
-    if not text:
-        return None
-    try:
-        value = json.loads(text)
-    except json.JSONDecodeError as exc:
-        st.add_error(name, PLAN_LABELS[name], f"not valid JSON: {exc.msg} at character {exc.pos}")
+    ok, value = json_field(st, name, PLAN_LABELS[name])
+    if not ok:
         return None
     if isinstance(value, dict):
         value = [value]
@@ -525,21 +527,10 @@ async def plan_share(request: Request) -> HTMLResponse:
     """Save a plan under a link: its request travels in the form and is recomputed."""
     settings: Settings = request.app.state.settings
     try:
-        try:
-            form = await request.form(
-                max_files=0, max_fields=8, max_part_size=settings.max_body_bytes
-            )
-        except Exception as exc:  # malformed or oversized form
-            raise Problem(400, f"the form cannot be read: {exc}") from exc
+        form = await read_share_form(request)
         title = str(form.get("title", "")).strip()[:200] or None
-        try:
-            stored, result = await run_in_threadpool(
-                _share_plan, str(form.get("request", "")), settings
-            )
-        except ValidationError as exc:
-            msg = exc.errors()[0]["msg"]
-            raise Problem(422, f"the saved request is not valid: {msg}") from None
-        saved = await save_result(request, "plan", SaveParts(stored, result), title)
+        parts = await recompute_shared(_share_plan, str(form.get("request", "")), settings)
+        saved = await save_result(request, "plan", parts, title)
     except ANSWERABLE as exc:
         p = as_problem(exc)
         return error_page(request, p)

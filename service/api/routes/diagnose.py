@@ -9,7 +9,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import UploadFile
 
 from ...contract.diagnose import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
-from ...http.bodies import body_openapi, parse_json_body, read_body
+from ...http.bodies import body_openapi, parse_json_body, read_body, refuse_declared_size
 from ...http.problems import Problem
 from ...http.responses import FastJSON
 from ...http.store_access import StoreAccess
@@ -52,15 +52,7 @@ def _doc(model: Any, examples: dict[str, Any], files: dict[str, Any]) -> dict[st
 async def _multipart(
     request: Request, names: tuple[str, ...], max_bytes: int
 ) -> tuple[bytes, dict[str, Upload]]:
-    declared = request.headers.get("content-length")
-    if declared is not None and declared.isdigit() and int(declared) > max_bytes:
-        raise Problem(
-            413,
-            f"the upload is {int(declared)} bytes; the limit is {max_bytes}",
-            field="file",
-            value=int(declared),
-            limit=max_bytes,
-        )
+    refuse_declared_size(request, max_bytes, field="file", noun="upload")
     try:
         form = await request.form(max_files=len(names), max_fields=4, max_part_size=1024 * 1024)
     except Exception as exc:  # malformed multipart, too many parts, part too large

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import orjson
 from fastapi import APIRouter, Request, Response
 from starlette.concurrency import run_in_threadpool
 
@@ -11,6 +10,7 @@ from ...contract.plan import PlanIn, PlanOut
 from ...http.bodies import body_openapi, parse_json_body, read_body
 from ...http.deps import SettingsDep
 from ...http.problems import PROBLEM_JSON
+from ...http.responses import json_bytes
 from ...usecases.plan import plan_payload
 from ..examples import PLAN_EXAMPLES
 
@@ -18,7 +18,7 @@ router = APIRouter(prefix="/api/v1", tags=["plan"])
 
 
 def _render(req: PlanIn, settings: Settings) -> bytes:
-    return orjson.dumps(plan_payload(req, settings), option=orjson.OPT_SERIALIZE_NUMPY)
+    return json_bytes(plan_payload(req, settings))
 
 
 @router.post(
