@@ -5,107 +5,30 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, TypeAdapter, model_validator
+from pydantic import BaseModel, Field, TypeAdapter, model_validator
 
 from ..core import chain as ch
+from .common import MAX_HZ, Db, Hz, HzOrZero, Label, StrictModel
+from .filters import AnalogFilterIn, FilterFamily
 from .sources import SourceIn
 
 __all__ = [
+    "MAX_HZ",
     "AnalogFilterIn",
     "ChainIn",
+    "Db",
+    "FilterFamily",
     "FoldIn",
+    "Hz",
+    "HzOrZero",
+    "Label",
     "SourceIn",
     "StageIn",
+    "StrictModel",
     "ToneIn",
     "chain_from_request",
     "chain_to_request",
 ]
-
-#: The largest frequency any field accepts: well above any machine or converter.
-MAX_HZ = 1e10
-
-Hz = Annotated[float, Field(gt=0, le=MAX_HZ, allow_inf_nan=False, description="Hz, > 0")]
-HzOrZero = Annotated[float, Field(ge=0, le=MAX_HZ, allow_inf_nan=False, description="Hz, >= 0")]
-Db = Annotated[float, Field(ge=-400, le=400, allow_inf_nan=False, description="dB")]
-Label = Annotated[str, Field(min_length=1, max_length=200)]
-
-
-class StrictModel(BaseModel):
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
-
-
-FilterFamily = Literal["butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel"]
-
-
-class AnalogFilterIn(StrictModel):
-    """An analog low-pass: a named family design, or a measured response table."""
-
-    family: FilterFamily | None = Field(
-        None,
-        description="Design family. The cutoff is the -3 dB frequency for butterworth and "
-        "bessel, the passband (ripple) edge for chebyshev1 and elliptic, and the stopband "
-        "edge for chebyshev2.",
-    )
-    order: int | None = Field(None, ge=1, le=20, description="Filter order, 1 to 20")
-    cutoff_hz: Hz | None = None
-    ripple_db: float | None = Field(
-        None,
-        gt=0,
-        le=6,
-        allow_inf_nan=False,
-        description="Passband ripple, dB (chebyshev1, elliptic)",
-    )
-    stop_atten_db: float | None = Field(
-        None,
-        gt=0,
-        le=200,
-        allow_inf_nan=False,
-        description="Stopband attenuation, dB (chebyshev2, elliptic)",
-    )
-    table_hz: list[Hz] | None = Field(
-        None, min_length=2, max_length=10_000, description="Measured response: frequencies, Hz"
-    )
-    table_gain_db: list[Db] | None = Field(
-        None, min_length=2, max_length=10_000, description="Measured response: gain, dB"
-    )
-
-    @model_validator(mode="after")
-    def _one_kind(self) -> AnalogFilterIn:
-        has_table = self.table_hz is not None or self.table_gain_db is not None
-        if has_table and self.family is not None:
-            raise ValueError("give either a filter family or a measured table, not both")
-        if has_table:
-            if self.table_hz is None or self.table_gain_db is None:
-                raise ValueError("a measured table needs both table_hz and table_gain_db")
-            if len(self.table_hz) != len(self.table_gain_db):
-                raise ValueError(
-                    f"table_hz has {len(self.table_hz)} points but table_gain_db has "
-                    f"{len(self.table_gain_db)}; they must match"
-                )
-            return self
-        if self.family is None:
-            raise ValueError(
-                "give a filter family (butterworth, chebyshev1, chebyshev2, "
-                "elliptic, bessel) or a measured table"
-            )
-        if self.order is None or self.cutoff_hz is None:
-            raise ValueError(f"a {self.family} filter needs order and cutoff_hz")
-        if self.family in ("chebyshev1", "elliptic") and self.ripple_db is None:
-            raise ValueError(f"a {self.family} filter needs ripple_db")
-        if self.family in ("chebyshev2", "elliptic") and self.stop_atten_db is None:
-            raise ValueError(f"a {self.family} filter needs stop_atten_db")
-        return self
-
-    def to_core(self) -> ch.AnalogLowpass:
-        return ch.AnalogLowpass(
-            family=self.family,
-            order=self.order,
-            cutoff_hz=self.cutoff_hz,
-            ripple_db=self.ripple_db,
-            stop_atten_db=self.stop_atten_db,
-            table_hz=tuple(self.table_hz) if self.table_hz else None,
-            table_gain_db=tuple(self.table_gain_db) if self.table_gain_db else None,
-        )
 
 
 class SensorStageIn(StrictModel):

@@ -12,7 +12,9 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field, ValidationInfo, field_validator
 
-from .fold import Hz, HzOrZero, Label, StageIn, StrictModel, ToneIn
+from .common import Hz, HzOrZero, Label, StrictModel
+from .filters import FilterIn
+from .fold import StageIn, ToneIn
 from .sources import SourceIn
 
 __all__ = [
@@ -36,67 +38,7 @@ Rpm = Annotated[float, Field(ge=0, le=6e6, allow_inf_nan=False, description="rpm
 Lines = Annotated[int, Field(ge=1, le=1_048_576, description="Analysis lines")]
 Order = Annotated[float, Field(gt=0, le=1000, allow_inf_nan=False, description="Order, > 0")]
 
-PlanFilterFamily = Literal[
-    "none", "butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic", "table"
-]
 Window = Literal["rectangular", "hann", "hamming", "blackmanharris", "flattop"]
-
-
-class FilterIn(StrictModel):
-    """One analog anti-alias filter the planner may choose."""
-
-    family: PlanFilterFamily = Field(
-        description="'none' (no filter), a design family, or 'table' (a measured response)"
-    )
-    order: int | None = Field(
-        None,
-        ge=0,
-        le=20,
-        validate_default=True,
-        description="Order, 1 to 20 for a design family; 0 or absent otherwise",
-    )
-    ripple_db: float | None = Field(
-        None, gt=0, le=6, allow_inf_nan=False, description="Passband ripple, dB"
-    )
-    stop_atten_db: float | None = Field(
-        None, gt=0, le=200, allow_inf_nan=False, description="Stopband attenuation, dB"
-    )
-    cutoff_hz: Hz | None = Field(
-        None, description="A fixed cutoff, Hz (does not follow the sample rate)"
-    )
-    cutoff_fraction: float | None = Field(
-        None,
-        gt=0,
-        le=0.5,
-        allow_inf_nan=False,
-        description="Cutoff as a fraction of the sample rate, e.g. 0.390625 for fs/2.56. With "
-        "neither cutoff the cutoff sits at the band's upper edge",
-    )
-    table_hz: list[Hz] | None = Field(
-        None, min_length=2, max_length=10_000, description="Measured response: Hz"
-    )
-    table_gain_db: list[Annotated[float, Field(ge=-400, le=400, allow_inf_nan=False)]] | None = (
-        Field(None, min_length=2, max_length=10_000, description="Measured response: gain, dB")
-    )
-    name: str = Field("", max_length=200, description="Display name (for a measured table)")
-
-    @field_validator("order")
-    @classmethod
-    def _order_needed(cls, v: int | None, info: ValidationInfo) -> int | None:
-        fam = info.data.get("family")
-        if fam in ("none", "table"):
-            if v not in (None, 0):
-                raise ValueError(f"order={v} does not apply to family {fam!r}; leave it out")
-        elif fam is not None and not v:
-            raise ValueError(f"a {fam} filter needs an order between 1 and 20")
-        return v
-
-    @field_validator("cutoff_fraction")
-    @classmethod
-    def _one_cutoff(cls, v: float | None, info: ValidationInfo) -> float | None:
-        if v is not None and info.data.get("cutoff_hz") is not None:
-            raise ValueError("give cutoff_hz or cutoff_fraction, not both")
-        return v
 
 
 class SensorIn(StrictModel):
