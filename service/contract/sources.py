@@ -7,12 +7,10 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from ..core import sources as src
+from .common import MAX_HZ, Hz, Label
 
-__all__ = ["SourceIn", "source_to_core"]
+__all__ = ["SOURCE_MODELS", "SourceIn", "source_to_core"]
 
-MAX_HZ = 1e10
-Hz = Annotated[float, Field(gt=0, le=MAX_HZ, allow_inf_nan=False)]
-Label = Annotated[str, Field(min_length=1, max_length=200)]
 Amplitude = Annotated[float, Field(ge=0, le=1e12, allow_inf_nan=False)]
 Harmonics = Annotated[int, Field(ge=1, le=100, description="Number of harmonics, 1 to 100")]
 
@@ -144,6 +142,14 @@ SourceIn = Annotated[
     ShaftIn | GearMeshIn | BearingIn | BladePassIn | LineIn | PwmIn | ResonanceIn | TonesIn,
     Field(discriminator="type"),
 ]
+
+
+#: JSON ``type`` → model: the one description of every source type, from which the page
+#: forms take their fields.
+SOURCE_MODELS: dict[str, type[BaseModel]] = {
+    m.model_fields["type"].annotation.__args__[0]: m  # type: ignore[union-attr]
+    for m in (ShaftIn, GearMeshIn, BearingIn, BladePassIn, LineIn, PwmIn, ResonanceIn, TonesIn)
+}
 
 
 def source_to_core(s: Any) -> Any:
