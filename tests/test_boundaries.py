@@ -43,7 +43,9 @@ LAYERS: dict[str, Layer] = {
         service=_s("", "core", "contract", "usecases", "inputs", "config"),
         forbidden=frozenset(WEB_STACK),
     ),
-    "http": Layer(allowed=None, service=_s("", "config", "core", "usecases", "storage", "http")),
+    "http": Layer(
+        allowed=None, service=_s("", "config", "core", "contract", "usecases", "storage", "http")
+    ),
     "api": Layer(allowed=None, service=None, forbidden=_s("service.web")),
     "web": Layer(allowed=None, service=None, forbidden=_s("service.api", "service.app")),
 }

@@ -6,7 +6,16 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field, model_validator
 
-from .fold import AnalogFilterIn, Hz, HzOrZero, StageIn, StrictModel, ToneIn
+from .common import (
+    Hz,
+    HzOrZero,
+    Rate,
+    StrictModel,
+    exactly_one,
+    not_together,
+    strict_with_rules,
+)
+from .fold import AnalogFilterIn, StageIn, ToneIn
 from .saved import SavedLinkOut
 from .sources import SourceIn
 
@@ -20,14 +29,16 @@ __all__ = [
     "UploadIn",
 ]
 
-Finite = Annotated[float, Field(allow_inf_nan=False)]
+#: A measured value in any unit (or dB): up to 1e12 in size, so sums of squares over the
+#: longest record stay far inside float64.
+Finite = Annotated[float, Field(ge=-1e12, le=1e12, allow_inf_nan=False)]
 Window = Literal["hann", "flattop", "rectangular", "hamming", "blackmanharris"]
 
 
 class SpectrumIn(StrictModel):
     """A measured amplitude spectrum: frequency and amplitude arrays."""
 
-    freq_hz: list[Annotated[float, Field(ge=0, allow_inf_nan=False)]] = Field(
+    freq_hz: list[HzOrZero] = Field(
         min_length=16, description="Frequencies, Hz, strictly increasing"
     )
     amplitude: list[Finite] = Field(min_length=16, description="Amplitude per line")
@@ -54,7 +65,7 @@ class TimeRecordIn(StrictModel):
     """A time record sent inline (for files, use the multipart form)."""
 
     samples: list[Finite] = Field(min_length=64, description="Samples, any unit")
-    sample_rate_hz: Hz | None = Field(
+    sample_rate_hz: Rate | None = Field(
         None, description="Rate of the samples, Hz; default the chain's final rate"
     )
 
@@ -83,7 +94,7 @@ class UploadIn(StrictModel):
         "spectrum, with one column a time record",
     )
     channel: int = Field(0, ge=0, le=1023, description="Channel of a multichannel file, from 0")
-    sample_rate_hz: Hz | None = Field(
+    sample_rate_hz: Rate | None = Field(
         None, description="Rate of a text or .npy time record (WAV files carry their own)"
     )
     unit: Literal["auto", "linear", "db"] = "auto"
@@ -91,13 +102,25 @@ class UploadIn(StrictModel):
 
 
 class _ChainOptional(StrictModel):
-    sample_rate_hz: Hz | None = Field(None, description="Shorthand: the sample rate, Hz")
+    sample_rate_hz: Rate | None = Field(None, description="Shorthand: the sample rate, Hz")
     anti_alias: AnalogFilterIn | None = None
     chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
 
 
 class DiagnoseIn(_ChainOptional):
-    """Which peaks of a spectrum are aliases, of what, and how sure."""
+    """Which peaks of a spectrum are aliases, of what, and how sure.
+
+    A JSON body carries exactly one of ``spectrum`` and ``time_record``; with a multipart
+    upload the file takes their place.
+    """
+
+    model_config = strict_with_rules(
+        [
+            exactly_one("spectrum", "time_record"),
+            not_together("chain", "sample_rate_hz"),
+            not_together("chain", "anti_alias"),
+        ]
+    )
 
     spectrum: SpectrumIn | None = None
     time_record: TimeRecordIn | None = None
@@ -135,6 +158,14 @@ class DiagnoseIn(_ChainOptional):
 
 class CaptureIn(_ChainOptional):
     """One capture of the two-rate test: its chain and its spectrum or time record."""
+
+    model_config = strict_with_rules(
+        [
+            exactly_one("spectrum", "time_record"),
+            not_together("chain", "sample_rate_hz"),
+            not_together("chain", "anti_alias"),
+        ]
+    )
 
     spectrum: SpectrumIn | None = None
     time_record: TimeRecordIn | None = None

@@ -8,7 +8,19 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, Field, TypeAdapter, model_validator
 
 from ..core import chain as ch
-from .common import MAX_HZ, Db, Hz, HzOrZero, Label, StrictModel
+from .common import (
+    MAX_HZ,
+    Db,
+    Hz,
+    HzOrZero,
+    Label,
+    Rate,
+    StrictModel,
+    at_least_one,
+    exactly_one,
+    not_together,
+    strict_with_rules,
+)
 from .filters import AnalogFilterIn, FilterFamily
 from .sources import SourceIn
 
@@ -46,7 +58,7 @@ class AnalogStageIn(AnalogFilterIn):
 
 class SampleStageIn(StrictModel):
     stage: Literal["sample"]
-    rate_hz: Hz = Field(description="Converter sample rate, Hz (S/s)")
+    rate_hz: Rate = Field(description="Converter sample rate, Hz (S/s)")
 
     def to_core(self) -> ch.Sample:
         return ch.Sample(rate_hz=self.rate_hz)
@@ -114,7 +126,7 @@ class ChainIn(StrictModel):
     """The acquisition chain: a shorthand (sample rate and optional anti-alias filter) or
     a full ordered list of stages."""
 
-    sample_rate_hz: Hz | None = Field(None, description="Shorthand: the sample rate, Hz")
+    sample_rate_hz: Rate | None = Field(None, description="Shorthand: the sample rate, Hz")
     anti_alias: AnalogFilterIn | None = Field(
         None, description="Shorthand: the analog anti-alias filter before the converter"
     )
@@ -169,6 +181,15 @@ class ToneIn(StrictModel):
 
 class FoldIn(ChainIn):
     """Predict where each tone lands after the acquisition chain."""
+
+    model_config = strict_with_rules(
+        [
+            exactly_one("sample_rate_hz", "chain"),
+            at_least_one("tones", "sources"),
+            not_together("chain", "anti_alias"),
+        ],
+        {"anti_alias": ["sample_rate_hz"]},
+    )
 
     tones: list[ToneIn] | None = Field(
         None, min_length=1, description="Explicit tones (label, freq_hz, optional amplitude)"

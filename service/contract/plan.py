@@ -10,9 +10,20 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, Field, ValidationInfo, field_validator
+from pydantic import BaseModel, Discriminator, Field, Tag, ValidationInfo, field_validator
 
-from .common import Hz, HzOrZero, Label, StrictModel
+from .common import (
+    Hz,
+    HzOrZero,
+    Label,
+    Rate,
+    StrictModel,
+    at_least_one,
+    by_json_type,
+    exactly_one,
+    not_together,
+    strict_with_rules,
+)
 from .filters import FilterIn
 from .fold import StageIn, ToneIn
 from .sources import SourceIn
@@ -37,6 +48,12 @@ MAX_RUNUP_SPEEDS = 5000
 Rpm = Annotated[float, Field(ge=0, le=6e6, allow_inf_nan=False, description="rpm, >= 0")]
 Lines = Annotated[int, Field(ge=1, le=1_048_576, description="Analysis lines")]
 Order = Annotated[float, Field(gt=0, le=1000, allow_inf_nan=False, description="Order, > 0")]
+#: A line of interest: a tone label, or a numeric order (checked by its JSON type, so a 0
+#: is reported as an order out of range, not as "not a string").
+OrderOrLabel = Annotated[
+    Annotated[Label, Tag("as-text")] | Annotated[Order, Tag("as-number")],
+    Discriminator(by_json_type),
+]
 
 Window = Literal["rectangular", "hann", "hamming", "blackmanharris", "flattop"]
 
@@ -51,7 +68,7 @@ class SensorIn(StrictModel):
 class RunUpIn(StrictModel):
     """Ask for the run-up through the recommended chain."""
 
-    orders_of_interest: list[Label | Order] | None = Field(
+    orders_of_interest: list[OrderOrLabel] | None = Field(
         None,
         max_length=MAX_ORDERS_OF_INTEREST,
         description="Lines an alias must not hide: tone labels ('label' or 'source: label') "
@@ -70,6 +87,16 @@ class RunUpIn(StrictModel):
 
 class PlanIn(StrictModel):
     """Choose the cheapest sample rate and anti-alias filter for the given sources."""
+
+    model_config = strict_with_rules(
+        [
+            at_least_one("tones", "sources"),
+            exactly_one("rejection_db", "floor"),
+            not_together("speed_range_rpm", "speed_tolerance_pct"),
+            not_together("rates_hz", "rate_series"),
+        ],
+        {"speed_range_rpm": ["nominal_rpm"]},
+    )
 
     band_hz: tuple[HzOrZero, HzOrZero] = Field(description="Band of interest [low, high], Hz")
     tones: list[ToneIn] | None = Field(
@@ -122,7 +149,7 @@ class PlanIn(StrictModel):
         "speed in the range",
     )
     window: Window = Field("hann", description="Analysis window (sets the main-lobe width)")
-    rates_hz: list[Hz] | None = Field(
+    rates_hz: list[Rate] | None = Field(
         None, min_length=1, max_length=MAX_RATES, description="Candidate sample rates, Hz"
     )
     rate_series: Literal["converter", "analyser"] | None = Field(

@@ -16,7 +16,8 @@ from fastapi.responses import JSONResponse, Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from starlette.requests import ClientDisconnect
 
-from ..core.errors import InputError
+from ..contract.common import UNION_TAG_PREFIX
+from ..core.errors import InputError, plain
 
 __all__ = [
     "ANSWERABLE",
@@ -138,7 +139,9 @@ def _field_path(loc: Sequence[Any]) -> str:
     for p in parts:
         if isinstance(p, int):
             out += f"[{p}]"
-        elif (isinstance(p, str) and p.startswith("function-")) or p in ("tagged-union",):
+        elif (isinstance(p, str) and p.startswith(("function-", UNION_TAG_PREFIX))) or p in (
+            "tagged-union",
+        ):
             continue
         else:
             out += ("." if out else "") + str(p)
@@ -160,7 +163,8 @@ def _validation_problem(exc: RequestValidationError) -> Problem:
             return Problem(400, detail, field="body", title="Malformed JSON", kind="malformed-json")
         field = _field_path(e.get("loc", ()))
         ctx = e.get("ctx") or {}
-        limit = next((f"{k} {ctx[k]}" for k in _LIMIT_KEYS if k in ctx), None)
+        # Plain numbers: "ge 1", not "ge 1.0".
+        limit = next((f"{k} {plain(ctx[k])}" for k in _LIMIT_KEYS if k in ctx), None)
         msg = str(e.get("msg", "invalid"))
         if msg.startswith("Value error, "):
             msg = msg[len("Value error, ") :]

@@ -1,0 +1,130 @@
+"""Numbers are bounded by what the physics and the machine can honour, and cross-field
+rules are written into the published schema, where clients and fuzzers can see them."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import pytest
+from fastapi.testclient import TestClient
+
+from service.demo import demo_fold_request, demo_plan_request
+
+PROBLEM = "application/problem+json"
+
+
+def _schema(client: TestClient, name: str) -> dict[str, Any]:
+    schema: dict[str, Any] = client.get("/openapi.json").json()["components"]["schemas"][name]
+    return schema
+
+
+class TestBounds:
+    def test_basic(self, client: TestClient) -> None:
+        # The schema-fuzzing find: a 1e-10 S/s rate is refused by the model, naming the
+        # field and the limit in plain numbers, before any computation.
+        body = {"sample_rate_hz": 1e-10, "tones": [{"label": "a", "freq_hz": 1e10}]}
+        r = client.post("/api/v1/fold", json=body)
+        assert r.status_code == 422 and r.headers["content-type"] == PROBLEM
+        err = r.json()["errors"][0]
+        assert err["field"] == "sample_rate_hz" and err["limit"] == "ge 1"
+
+    def test_edges(self, client: TestClient) -> None:
+        # The slowest and fastest rates and the highest tone still compute; the Nyquist
+        # zone of 1e10 Hz at 1 S/s is 2e10 (f / (fs/2)), well inside an int64.
+        for fs, f in ((1.0, 1e10), (1e10, 1e10)):
+            body = {"sample_rate_hz": fs, "tones": [{"label": "a", "freq_hz": f}]}
+            r = client.post("/api/v1/fold", json=body)
+            assert r.status_code == 200, r.text
+            # Reference: fold(f, fs) = |f - fs*round(f/fs)| by hand: both are whole
+            # multiples of fs, so each lands at 0 Hz.
+            assert r.json()["tones"][0]["apparent_hz"] == pytest.approx(0.0, abs=1e-6)
+
+    def test_errors(self, client: TestClient) -> None:
+        # A measured value beyond 1e12 (any unit) is refused by the model, not left to
+        # overflow in the spectrum's sums of squares.
+        body = {
+            "sample_rate_hz": 1000.0,
+            "time_record": {"samples": [1.7e308] + [0.0] * 63},
+        }
+        r = client.post("/api/v1/diagnose", json=body)
+        assert r.status_code == 422
+        assert r.json()["errors"][0]["field"] == "time_record.samples[0]"
+
+
+class TestMessages:
+    def test_basic(self, client: TestClient) -> None:
+        # A 0 among the orders of interest is an order out of range, not "not a string".
+        body = {**demo_plan_request(), "runup": {"orders_of_interest": [0]}}
+        r = client.post("/api/v1/plan", json=body)
+        assert r.status_code == 422
+        errors = r.json()["errors"]
+        assert errors == [
+            {
+                "field": "runup.orders_of_interest[0]",
+                "message": "Input should be greater than 0",
+                "value": 0,
+                "limit": "gt 0",
+            }
+        ]
+
+    def test_edges(self, client: TestClient) -> None:
+        # Text is still a tone label: an empty one is reported as text too short.
+        body = {**demo_plan_request(), "runup": {"orders_of_interest": [""]}}
+        r = client.post("/api/v1/plan", json=body)
+        assert r.status_code == 422
+        assert "at least 1 character" in r.json()["errors"][0]["message"]
+
+
+class TestSchemaRules:
+    """Each cross-field rule is in the published schema and the server holds to it."""
+
+    @pytest.mark.parametrize(
+        ("model", "rule", "path", "body"),
+        [
+            (
+                "FoldIn",
+                {"oneOf": [{"required": ["sample_rate_hz"]}, {"required": ["chain"]}]},
+                "/api/v1/fold",
+                {"tones": [{"label": "a", "freq_hz": 1.0}]},
+            ),
+            (
+                "FoldIn",
+                {"anyOf": [{"required": ["tones"]}, {"required": ["sources"]}]},
+                "/api/v1/fold",
+                {"sample_rate_hz": 100.0},
+            ),
+            (
+                "DiagnoseIn",
+                {"oneOf": [{"required": ["spectrum"]}, {"required": ["time_record"]}]},
+                "/api/v1/diagnose",
+                {"sample_rate_hz": 100.0},
+            ),
+            (
+                "PlanIn",
+                {"oneOf": [{"required": ["rejection_db"]}, {"required": ["floor"]}]},
+                "/api/v1/plan",
+                {**demo_plan_request(), "floor": 0.001},
+            ),
+        ],
+    )
+    def test_basic(
+        self, client: TestClient, model: str, rule: dict[str, Any], path: str, body: Any
+    ) -> None:
+        assert rule in _schema(client, model)["allOf"]
+        assert client.post(path, json=body).status_code == 422
+
+    def test_edges(self, client: TestClient) -> None:
+        deps = _schema(client, "FoldIn")["dependentRequired"]
+        assert deps == {"anti_alias": ["sample_rate_hz"]}
+        chain = [{"stage": "sample", "rate_hz": 100.0}]
+        body = {**demo_fold_request(), "chain": chain}
+        body.pop("sample_rate_hz")
+        assert client.post("/api/v1/fold", json=body).status_code == 422  # anti_alias left
+
+    def test_errors(self, client: TestClient) -> None:
+        assert _schema(client, "PlanIn")["dependentRequired"] == {
+            "speed_range_rpm": ["nominal_rpm"]
+        }
+        body = {**demo_plan_request()}
+        body.pop("nominal_rpm")
+        assert client.post("/api/v1/plan", json=body).status_code == 422
