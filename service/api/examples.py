@@ -20,7 +20,8 @@ from ..demo import (
     demo_spectrum,
 )
 from ..http.bodies import register_models
-from ..usecases.diagnose import compare_payload, diagnose_payload
+from ..usecases.compare import compare_payload
+from ..usecases.diagnose import diagnose_payload
 from ..usecases.fold import fold_payload
 from ..usecases.plan import plan_payload
 

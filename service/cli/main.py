@@ -230,7 +230,8 @@ def _print_diagnosis(out: dict[str, Any]) -> None:
 def _cmd_diagnose(ns: argparse.Namespace) -> int:
     from ..config import get_settings
     from ..contract.diagnose import DiagnoseIn
-    from ..usecases.diagnose import Upload, diagnose_payload
+    from ..usecases.diagnose import diagnose_payload
+    from ..usecases.measure import Upload
 
     def run() -> None:
         path = Path(ns.file)
@@ -248,7 +249,8 @@ def _cmd_diagnose(ns: argparse.Namespace) -> int:
 def _cmd_compare(ns: argparse.Namespace) -> int:
     from ..config import get_settings
     from ..contract.diagnose import CompareIn
-    from ..usecases.diagnose import Upload, compare_payload
+    from ..usecases.compare import compare_payload
+    from ..usecases.measure import Upload
 
     def run() -> None:
         uploads = {}

@@ -19,7 +19,8 @@ from ..config import Settings
 from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..contract.fold import FoldIn
 from ..contract.plan import PlanIn
-from .diagnose import compare_payload, diagnose_payload
+from .compare import compare_payload
+from .diagnose import diagnose_payload
 from .errors import RequestError
 from .fold import fold_payload
 from .plan import plan_payload

@@ -18,7 +18,7 @@ from pydantic import ValidationError
 
 from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..http.problems import Problem
-from ..usecases.diagnose import Upload
+from ..usecases.measure import Upload
 from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, _problem_field
 
 __all__ = [

@@ -29,8 +29,10 @@ from ..demo import demo_diagnose_request
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..http.security import require_api_key
 from ..http.store_access import StoreAccess
-from ..usecases.diagnose import Measured, Upload, compare_payload, diagnose_payload
+from ..usecases.compare import compare_payload
+from ..usecases.diagnose import diagnose_payload
 from ..usecases.fold import fold_payload
+from ..usecases.measure import Measured, Upload
 from ..usecases.save import SaveParts, saved_parts, stored_request
 from . import figures
 from .diagnose_forms import (

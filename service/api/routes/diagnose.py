@@ -13,7 +13,9 @@ from ...http.bodies import body_openapi, parse_json_body, read_body, refuse_decl
 from ...http.problems import Problem
 from ...http.responses import FastJSON
 from ...http.store_access import StoreAccess
-from ...usecases.diagnose import Upload, compare_payload, diagnose_payload
+from ...usecases.compare import compare_payload
+from ...usecases.diagnose import diagnose_payload
+from ...usecases.measure import Upload
 from ...usecases.save import saved_parts
 from ..examples import COMPARE_EXAMPLES, DIAGNOSE_EXAMPLES
 
