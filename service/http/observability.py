@@ -22,9 +22,8 @@ import os
 import re
 import sys
 import time
-from collections.abc import Awaitable, Callable, Iterator, MutableMapping, Sequence
+from collections.abc import Iterator, Sequence
 from datetime import UTC, datetime
-from typing import Any
 
 import orjson
 from fastapi import FastAPI
@@ -42,7 +41,8 @@ from prometheus_client.registry import Collector
 from starlette.routing import BaseRoute, Mount
 
 from ..config import Settings
-from .security import needs_api_key
+from .asgi import ASGIApp, Message, Receive, Scope, Send
+from .keys import needs_api_key
 
 __all__ = [
     "ACCESS_LOGGER",
@@ -54,11 +54,6 @@ __all__ = [
     "route_template",
 ]
 
-Scope = MutableMapping[str, Any]
-Message = MutableMapping[str, Any]
-Receive = Callable[[], Awaitable[Message]]
-Send = Callable[[Message], Awaitable[None]]
-ASGIApp = Callable[[Scope, Receive, Send], Awaitable[None]]
 
 ACCESS_LOGGER = "foldwise.access"
 REQUEST_ID_HEADER = "X-Request-ID"

@@ -26,8 +26,8 @@ from ..contract.fold import FoldIn, chain_from_request
 from ..core.chain import Chain
 from ..core.spectrum import noise_floor
 from ..demo import demo_diagnose_request
+from ..http.keys import require_api_key
 from ..http.problems import ANSWERABLE, Problem, as_problem
-from ..http.security import require_api_key
 from ..http.store_access import StoreAccess
 from ..usecases.compare import compare_payload
 from ..usecases.diagnose import diagnose_payload
