@@ -13,14 +13,18 @@ from typing import Any, TypeVar
 from fastapi import Request
 from fastapi.exceptions import RequestValidationError
 from pydantic import BaseModel, ValidationError
+from starlette.datastructures import UploadFile
 
+from ..usecases.measure import Upload
 from .problems import Problem
 
 __all__ = [
     "ResponseCache",
     "body_openapi",
+    "is_multipart",
     "parse_json_body",
     "read_body",
+    "read_multipart",
     "refuse_declared_size",
     "register_models",
 ]
@@ -144,3 +148,61 @@ def register_models(schema: dict[str, Any], models: list[type[BaseModel]]) -> No
         for name, sub in js.pop("$defs", {}).items():
             comps.setdefault(name, sub)
         comps.setdefault(model.__name__, js)
+
+
+async def read_multipart(
+    request: Request, names: tuple[str, ...], max_bytes: int
+) -> tuple[bytes, dict[str, Upload]]:
+    """A multipart upload: the files ``names`` (each under ``max_bytes``, none empty)
+    and the raw ``request`` JSON field (``{}`` when absent)."""
+    refuse_declared_size(request, max_bytes, field="file", noun="upload")
+    try:
+        form = await request.form(max_files=len(names), max_fields=4, max_part_size=1024 * 1024)
+    except Exception as exc:  # malformed multipart, too many parts, part too large
+        raise Problem(400, f"the multipart form cannot be read: {exc}", field="body") from exc
+    try:
+        uploads: dict[str, Upload] = {}
+        for key in form:
+            if key not in (*names, "request"):
+                raise Problem(
+                    422,
+                    f"unexpected form field {key!r}; expected {', '.join((*names, 'request'))}",
+                    field=key,
+                )
+        for name in names:
+            item = form.get(name)
+            if item is None:
+                continue
+            if not isinstance(item, UploadFile):
+                raise Problem(422, f"form field {name!r} must be a file", field=name)
+            if item.size is not None and item.size > max_bytes:
+                raise Problem(
+                    413,
+                    f"{name} is {item.size} bytes; the limit is {max_bytes}",
+                    field=name,
+                    value=item.size,
+                    limit=max_bytes,
+                )
+            data = await item.read()
+            if len(data) > max_bytes:
+                raise Problem(
+                    413,
+                    f"{name} is over the limit of {max_bytes} bytes",
+                    field=name,
+                    limit=max_bytes,
+                )
+            if not data:
+                raise Problem(422, f"{name} is empty", field=name)
+            uploads[name] = Upload(data=data, filename=item.filename or name)
+        raw = form.get("request")
+        if isinstance(raw, UploadFile):
+            raw_bytes = await raw.read()
+        else:
+            raw_bytes = (raw or "{}").encode()
+        return raw_bytes, uploads
+    finally:
+        await form.close()
+
+
+def is_multipart(request: Request) -> bool:
+    return request.headers.get("content-type", "").startswith("multipart/form-data")

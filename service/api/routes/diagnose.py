@@ -6,10 +6,9 @@ from typing import Any
 
 from fastapi import APIRouter, Query, Request
 from starlette.concurrency import run_in_threadpool
-from starlette.datastructures import UploadFile
 
 from ...contract.diagnose import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
-from ...http.bodies import body_openapi, parse_json_body, read_body, refuse_declared_size
+from ...http.bodies import body_openapi, is_multipart, parse_json_body, read_body, read_multipart
 from ...http.problems import Problem
 from ...http.responses import FastJSON
 from ...http.store_access import StoreAccess
@@ -51,62 +50,6 @@ def _doc(model: Any, examples: dict[str, Any], files: dict[str, Any]) -> dict[st
     return out
 
 
-async def _multipart(
-    request: Request, names: tuple[str, ...], max_bytes: int
-) -> tuple[bytes, dict[str, Upload]]:
-    refuse_declared_size(request, max_bytes, field="file", noun="upload")
-    try:
-        form = await request.form(max_files=len(names), max_fields=4, max_part_size=1024 * 1024)
-    except Exception as exc:  # malformed multipart, too many parts, part too large
-        raise Problem(400, f"the multipart form cannot be read: {exc}", field="body") from exc
-    try:
-        uploads: dict[str, Upload] = {}
-        for key in form:
-            if key not in (*names, "request"):
-                raise Problem(
-                    422,
-                    f"unexpected form field {key!r}; expected {', '.join((*names, 'request'))}",
-                    field=key,
-                )
-        for name in names:
-            item = form.get(name)
-            if item is None:
-                continue
-            if not isinstance(item, UploadFile):
-                raise Problem(422, f"form field {name!r} must be a file", field=name)
-            if item.size is not None and item.size > max_bytes:
-                raise Problem(
-                    413,
-                    f"{name} is {item.size} bytes; the limit is {max_bytes}",
-                    field=name,
-                    value=item.size,
-                    limit=max_bytes,
-                )
-            data = await item.read()
-            if len(data) > max_bytes:
-                raise Problem(
-                    413,
-                    f"{name} is over the limit of {max_bytes} bytes",
-                    field=name,
-                    limit=max_bytes,
-                )
-            if not data:
-                raise Problem(422, f"{name} is empty", field=name)
-            uploads[name] = Upload(data=data, filename=item.filename or name)
-        raw = form.get("request")
-        if isinstance(raw, UploadFile):
-            raw_bytes = await raw.read()
-        else:
-            raw_bytes = (raw or "{}").encode()
-        return raw_bytes, uploads
-    finally:
-        await form.close()
-
-
-def _is_multipart(request: Request) -> bool:
-    return request.headers.get("content-type", "").startswith("multipart/form-data")
-
-
 async def _save(
     request: Request, kind: str, req: Any, payload: dict[str, Any], measured: Any, title: str | None
 ) -> dict[str, Any]:
@@ -133,8 +76,8 @@ async def diagnose(
 ) -> FastJSON:
     settings = request.app.state.settings
     upload = None
-    if _is_multipart(request):
-        raw, files = await _multipart(request, ("file",), settings.max_upload_bytes)
+    if is_multipart(request):
+        raw, files = await read_multipart(request, ("file",), settings.max_upload_bytes)
         upload = files.get("file")
         if upload is None:
             raise Problem(422, "the multipart form needs a file field 'file'", field="file")
@@ -179,8 +122,8 @@ async def compare(
 ) -> FastJSON:
     settings = request.app.state.settings
     uploads: dict[str, Upload] = {}
-    if _is_multipart(request):
-        raw, files = await _multipart(request, ("file_a", "file_b"), settings.max_upload_bytes)
+    if is_multipart(request):
+        raw, files = await read_multipart(request, ("file_a", "file_b"), settings.max_upload_bytes)
         uploads = {k[-1]: v for k, v in files.items()}
     else:
         raw = await read_body(request, settings.max_body_bytes)
