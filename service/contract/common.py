@@ -19,6 +19,7 @@ __all__ = [
     "by_json_type",
     "exactly_one",
     "not_together",
+    "omit_nulls",
     "strict_with_rules",
 ]
 
@@ -45,8 +46,28 @@ def by_json_type(value: Any) -> str:
     return "as-text" if isinstance(value, str) else "as-number"
 
 
+def omit_nulls(schema: dict[str, Any]) -> None:
+    """Publish optional request members as "leave it out", not "send null".
+
+    The server still reads a null as absent; saying so in the schema lets the
+    ``required``-based rules (``oneOf``, ``dependentRequired``) mean what they say."""
+    for prop in schema.get("properties", {}).values():
+        branches = prop.get("anyOf")
+        if "default" in prop and prop["default"] is None and branches:
+            rest = [b for b in branches if b != {"type": "null"}]
+            if len(rest) < len(branches):
+                del prop["anyOf"], prop["default"]
+                if len(rest) == 1:  # the member's own words win over the type's
+                    for key, value in rest[0].items():
+                        prop.setdefault(key, value)
+                else:
+                    prop["anyOf"] = rest
+
+
 class StrictModel(BaseModel):
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
+    model_config = ConfigDict(
+        extra="forbid", allow_inf_nan=False, frozen=True, json_schema_extra=omit_nulls
+    )
 
 
 def exactly_one(*names: str) -> dict[str, Any]:
@@ -70,7 +91,11 @@ def strict_with_rules(
     """The strict model config plus cross-field rules written into the published schema
     (``allOf`` of the rules, ``dependentRequired``), so clients and schema-driven tools
     see them; the validators in code still give the messages."""
-    extra: dict[str, Any] = {"allOf": rules}
-    if depends:
-        extra["dependentRequired"] = depends
+
+    def extra(schema: dict[str, Any]) -> None:
+        omit_nulls(schema)
+        schema["allOf"] = rules
+        if depends:
+            schema["dependentRequired"] = depends
+
     return ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True, json_schema_extra=extra)

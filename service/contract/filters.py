@@ -9,18 +9,47 @@ planner may choose, which may also be "none" and may follow the sample rate
 
 from __future__ import annotations
 
-from typing import Literal
+from typing import Any, Literal
 
 from pydantic import Field, ValidationInfo, field_validator, model_validator
 
 from ..core import chain as ch
-from .common import Db, Hz, StrictModel
+from .common import Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
 
 __all__ = ["AnalogFilterIn", "FilterFamily", "FilterFields", "FilterIn", "PlanFilterFamily"]
 
 FilterFamily = Literal["butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel"]
 PlanFilterFamily = Literal[
     "none", "butterworth", "bessel", "chebyshev1", "chebyshev2", "elliptic", "table"
+]
+
+
+DESIGN_FAMILIES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel")
+
+
+def _needs_when(families: tuple[str, ...], member: str) -> dict[str, Any]:
+    """JSON Schema: a filter of one of ``families`` must give ``member``."""
+    return {
+        "if": {"properties": {"family": {"enum": list(families)}}, "required": ["family"]},
+        "then": {"required": [member]},
+    }
+
+
+def _forbids_when(families: tuple[str, ...], member: str) -> dict[str, Any]:
+    """JSON Schema: a filter of one of ``families`` must leave ``member`` out."""
+    return {
+        "if": {"properties": {"family": {"enum": list(families)}}, "required": ["family"]},
+        "then": {"not": {"required": [member]}},
+    }
+
+
+#: Ripple belongs to chebyshev1 and elliptic, stopband attenuation to chebyshev2 and
+#: elliptic; the core refuses either where it does not belong.
+_RIPPLE_AND_STOP = [
+    _needs_when(("chebyshev1", "elliptic"), "ripple_db"),
+    _needs_when(("chebyshev2", "elliptic"), "stop_atten_db"),
+    _forbids_when(("butterworth", "bessel", "chebyshev2", "none", "table"), "ripple_db"),
+    _forbids_when(("butterworth", "bessel", "chebyshev1", "none", "table"), "stop_atten_db"),
 ]
 
 
@@ -55,6 +84,18 @@ class FilterFields(StrictModel):
 
 class AnalogFilterIn(FilterFields):
     """An analog low-pass: a named family design, or a measured response table."""
+
+    model_config = strict_with_rules(
+        [
+            exactly_one("family", "table_hz"),
+            *_RIPPLE_AND_STOP,
+        ],
+        {
+            "family": ["order", "cutoff_hz"],
+            "table_hz": ["table_gain_db"],
+            "table_gain_db": ["table_hz"],
+        },
+    )
 
     family: FilterFamily | None = Field(
         None,
@@ -106,6 +147,17 @@ class AnalogFilterIn(FilterFields):
 
 class FilterIn(FilterFields):
     """One analog anti-alias filter the planner may choose."""
+
+    model_config = strict_with_rules(
+        [
+            not_together("cutoff_hz", "cutoff_fraction"),
+            _needs_when(DESIGN_FAMILIES, "order"),
+            _needs_when(("table",), "table_hz"),
+            _forbids_when(("none", "table"), "order"),
+            *_RIPPLE_AND_STOP,
+        ],
+        {"table_hz": ["table_gain_db"], "table_gain_db": ["table_hz"]},
+    )
 
     family: PlanFilterFamily = Field(
         description="'none' (no filter), a design family, or 'table' (a measured response)"

@@ -67,6 +67,11 @@ class SampleStageIn(StrictModel):
 class DigitalStageIn(StrictModel):
     """A digital low-pass at the current rate: a design spec, or explicit coefficients."""
 
+    model_config = strict_with_rules(
+        [exactly_one("passband_hz", "b")],
+        {"passband_hz": ["stopband_hz", "atten_db"], "a": ["b"]},
+    )
+
     stage: Literal["digital_lowpass"]
     passband_hz: Hz | None = None
     stopband_hz: Hz | None = None

@@ -7,7 +7,15 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from ..core import sources as src
-from .common import MAX_HZ, Hz, Label
+from .common import (
+    MAX_HZ,
+    Hz,
+    Label,
+    exactly_one,
+    not_together,
+    omit_nulls,
+    strict_with_rules,
+)
 
 __all__ = ["SOURCE_MODELS", "SourceIn", "source_to_core"]
 
@@ -16,7 +24,9 @@ Harmonics = Annotated[int, Field(ge=1, le=100, description="Number of harmonics,
 
 
 class _SourceBase(BaseModel):
-    model_config = ConfigDict(extra="forbid", allow_inf_nan=False, frozen=True)
+    model_config = ConfigDict(
+        extra="forbid", allow_inf_nan=False, frozen=True, json_schema_extra=omit_nulls
+    )
 
     label: Label
     amplitude: Amplitude | None = Field(
@@ -33,7 +43,14 @@ class _WithHarmonicAmplitudes(BaseModel):
     )
 
 
+_SPEEDS = ("speed_hz", "speed_rpm", "speed_cpm")
+
+
 class _Speed(_SourceBase):
+    model_config = strict_with_rules(
+        [exactly_one(*_SPEEDS), not_together("amplitude", "harmonic_amplitudes")]
+    )
+
     speed_hz: Hz | None = Field(None, description="Shaft speed, Hz (give one of the three)")
     speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
     speed_cpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
@@ -59,6 +76,14 @@ class ShaftIn(_Speed, _WithHarmonicAmplitudes):
 
 
 class GearMeshIn(_Speed, _WithHarmonicAmplitudes):
+    model_config = strict_with_rules(
+        [
+            exactly_one(*_SPEEDS),
+            not_together("amplitude", "harmonic_amplitudes"),
+            not_together("mating_speed_hz", "mating_speed_rpm"),
+        ]
+    )
+
     type: Literal["gear_mesh"]
     teeth: int = Field(ge=1, le=10_000, description="Teeth on the gear whose shaft speed is given")
     harmonics: Harmonics = 3
@@ -90,6 +115,8 @@ class BladePassIn(_Speed, _WithHarmonicAmplitudes):
 
 
 class LineIn(_SourceBase, _WithHarmonicAmplitudes):
+    model_config = strict_with_rules([not_together("amplitude", "harmonic_amplitudes")])
+
     type: Literal["line"]
     line_hz: Hz = 50.0
     harmonics: Harmonics | list[Annotated[int, Field(ge=1, le=10_000)]] = Field(
@@ -99,9 +126,20 @@ class LineIn(_SourceBase, _WithHarmonicAmplitudes):
 
 
 class PwmIn(_SourceBase):
+    model_config = strict_with_rules(
+        [
+            exactly_one("fundamental_hz", "pole_pairs"),
+            {"if": {"required": ["pole_pairs"]}, "then": exactly_one(*_SPEEDS)},
+            {
+                "if": {"required": ["fundamental_hz"]},
+                "then": {"not": {"anyOf": [{"required": [n]} for n in _SPEEDS]}},
+            },
+        ]
+    )
+
     type: Literal["pwm"]
     carrier_hz: Hz = Field(description="Switching (carrier) frequency, Hz")
-    fundamental_hz: Annotated[float, Field(ge=0, le=MAX_HZ, allow_inf_nan=False)] | None = Field(
+    fundamental_hz: Annotated[float, Field(gt=0, le=MAX_HZ, allow_inf_nan=False)] | None = Field(
         None, description="Electrical output frequency f1, Hz (or give pole_pairs and a speed)"
     )
     pole_pairs: int | None = Field(None, ge=1, le=1000)

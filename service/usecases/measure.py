@@ -21,6 +21,7 @@ from ..contract.diagnose import (
 )
 from ..contract.fold import ChainIn, chain_from_request
 from ..core.chain import Chain
+from ..core.errors import plain
 from ..core.spectrum import amplitude_spectrum, detect_unit, to_linear
 from ..inputs import parse_spectrum_text, parse_time_record
 from .errors import RequestError, input_errors
@@ -69,7 +70,7 @@ def _from_spectrum(
         i = int(np.flatnonzero(np.diff(freq) <= 0)[0]) + 1
         raise RequestError(
             status=422,
-            message=f"{field}.freq_hz[{i}]={freq[i]!r} is not above the value before "
+            message=f"{field}.freq_hz[{i}]={plain(freq[i])} is not above the value before "
             "it; frequencies must strictly increase",
             field=f"{field}.freq_hz",
         )

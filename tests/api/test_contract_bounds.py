@@ -128,3 +128,31 @@ class TestSchemaRules:
         body = {**demo_plan_request()}
         body.pop("nominal_rpm")
         assert client.post("/api/v1/plan", json=body).status_code == 422
+
+
+class TestOptionalMembers:
+    def test_basic(self, client: TestClient) -> None:
+        # Optional request members are published as "leave it out", so the required-based
+        # rules above mean what they say ...
+        prop = _schema(client, "FoldIn")["properties"]["sample_rate_hz"]
+        assert "anyOf" not in prop and prop["type"] == "number" and prop["minimum"] == 1
+        assert prop["description"] == "Shorthand: the sample rate, Hz"
+        # ... and the server still reads a null as absent.
+        body = {"sample_rate_hz": 100.0, "chain": None, "tones": [{"label": "a", "freq_hz": 70.0}]}
+        r = client.post("/api/v1/fold", json=body)
+        assert r.status_code == 200, r.text
+        # Reference: fold(70, 100) = |70 - 100*round(0.7)| = 30 Hz, by hand.
+        assert r.json()["tones"][0]["apparent_hz"] == pytest.approx(30.0)
+
+    def test_edges(self, client: TestClient) -> None:
+        # Result models keep their nulls: an answer may carry them.
+        prop = _schema(client, "FoldToneOut")["properties"]["family"]
+        assert {"type": "null"} in prop["anyOf"]
+
+    def test_errors(self, client: TestClient) -> None:
+        rules = _schema(client, "ShaftIn")["allOf"]
+        speeds = {"oneOf": [{"required": [n]} for n in ("speed_hz", "speed_rpm", "speed_cpm")]}
+        assert speeds in rules
+        src = {"type": "shaft", "label": "m", "speed_hz": 10.0, "speed_rpm": 600.0}
+        r = client.post("/api/v1/fold", json={"sample_rate_hz": 100.0, "sources": [src]})
+        assert r.status_code == 422
