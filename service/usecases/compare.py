@@ -97,8 +97,7 @@ def compare_payload(
         rates[side] = chain.final_rate_hz
     if rates["a"] == rates["b"]:
         raise RequestError(
-            status=422,
-            message=f"both captures are at {rates['a']:g} S/s; the two-rate test needs "
+            f"both captures are at {rates['a']:g} S/s; the two-rate test needs "
             "two different sample rates",
             field="b.sample_rate_hz",
         )

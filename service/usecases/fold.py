@@ -30,8 +30,7 @@ def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
     if req.tones:
         if len(req.tones) > max_tones:
             raise RequestError(
-                status=422,
-                message=f"{len(req.tones)} tones is more than the limit of {max_tones}",
+                f"{len(req.tones)} tones is more than the limit of {max_tones}",
                 field="tones",
                 value=len(req.tones),
                 limit=max_tones,
@@ -53,8 +52,7 @@ def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
     tones = ToneSet.concat(parts)
     if len(tones) > max_tones:
         raise RequestError(
-            status=422,
-            message=f"the tones and sources expand to {len(tones)} tones, more than the limit of "
+            f"the tones and sources expand to {len(tones)} tones, more than the limit of "
             f"{max_tones}; ask for fewer harmonics or sidebands",
             field="sources",
             value=len(tones),

@@ -69,15 +69,13 @@ def _from_spectrum(
     if not np.all(np.diff(freq) > 0):
         i = int(np.flatnonzero(np.diff(freq) <= 0)[0]) + 1
         raise RequestError(
-            status=422,
-            message=f"{field}.freq_hz[{i}]={plain(freq[i])} is not above the value before "
+            f"{field}.freq_hz[{i}]={plain(freq[i])} is not above the value before "
             "it; frequencies must strictly increase",
             field=f"{field}.freq_hz",
         )
     if float(np.ptp(amp)) == 0.0:
         raise RequestError(
-            status=422,
-            message=f"{field}.amplitude is constant: there are no peaks to explain",
+            f"{field}.amplitude is constant: there are no peaks to explain",
             field=f"{field}.amplitude",
         )
     bin_width = float(np.median(np.diff(freq)))
@@ -109,9 +107,7 @@ def _from_samples(
             averages=opts.averages,
         )
     if float(np.ptp(s.amplitude)) == 0.0:
-        raise RequestError(
-            status=422, message=f"{field} is constant: there are no peaks to explain", field=field
-        )
+        raise RequestError(f"{field} is constant: there are no peaks to explain", field=field)
     return Measured(
         s.freq_hz,
         s.amplitude,
@@ -156,8 +152,7 @@ def measure(
     given = sum(x is not None for x in (spectrum, time_record, upload))
     if given != 1:
         raise RequestError(
-            status=422,
-            message=f"give exactly one of {pre}spectrum, {pre}time_record or a file (got {given})",
+            f"give exactly one of {pre}spectrum, {pre}time_record or a file (got {given})",
             field=f"{pre}spectrum",
         )
     if spectrum is not None:
@@ -181,8 +176,7 @@ def measure(
         rate = time_record.sample_rate_hz or chain_rate_hz
         if rate is None:
             raise RequestError(
-                status=422,
-                message="the time record needs sample_rate_hz (or a chain)",
+                "the time record needs sample_rate_hz (or a chain)",
                 field=f"{pre}time_record.sample_rate_hz",
             )
         samples = np.asarray(time_record.samples, dtype=np.float64)
@@ -252,8 +246,7 @@ def capture_chain(c: DiagnoseIn | CaptureIn, record_rate: float | None, pre: str
     rate = c.sample_rate_hz or record_rate
     if rate is None:
         raise RequestError(
-            status=422,
-            message="give sample_rate_hz (with optional anti_alias) or a chain: a "
+            "give sample_rate_hz (with optional anti_alias) or a chain: a "
             "spectrum cannot be diagnosed without the rate it was sampled at",
             field=f"{pre}sample_rate_hz",
         )
@@ -273,8 +266,7 @@ def check_extent(m: Measured, chain: Chain, pre: str) -> None:
     top = float(m.freq_hz[-1])
     if top > nyq * (1 + 1e-6) + m.bin_width_hz:
         raise RequestError(
-            status=422,
-            message=f"the spectrum reaches {top:g} Hz but the chain's final Nyquist frequency is "
+            f"the spectrum reaches {top:g} Hz but the chain's final Nyquist frequency is "
             f"{nyq:g} Hz; check the sample rate (a spectrum cannot extend above fs/2)",
             field=f"{pre}sample_rate_hz",
             value=top,
@@ -285,8 +277,7 @@ def check_extent(m: Measured, chain: Chain, pre: str) -> None:
         and abs(m.record_rate_hz - chain.final_rate_hz) > 1e-6 * chain.final_rate_hz
     ):
         raise RequestError(
-            status=422,
-            message=f"the time record is sampled at {m.record_rate_hz:g} S/s but the chain ends at "
+            f"the time record is sampled at {m.record_rate_hz:g} S/s but the chain ends at "
             f"{chain.final_rate_hz:g} S/s; they must agree",
             field=f"{pre}sample_rate_hz",
             value=m.record_rate_hz,

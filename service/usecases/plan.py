@@ -378,8 +378,7 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
     lo, hi = plan.speed_range
     if hi <= lo:
         raise RequestError(
-            status=422,
-            message="a run-up needs a speed range: give speed_range_rpm (with nominal_rpm) or "
+            "a run-up needs a speed range: give speed_range_rpm (with nominal_rpm) or "
             "speed_tolerance_pct above 0",
             field="runup",
         )
@@ -396,8 +395,7 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
             else "name a few orders_of_interest, or plan for fewer sources"
         )
         raise RequestError(
-            status=422,
-            message=f"a run-up of {n_lines} lines against {n_targets} lines of interest at {n} "
+            f"a run-up of {n_lines} lines against {n_targets} lines of interest at {n} "
             f"speeds is {work:,} comparisons, more than the limit of {RUNUP_MAX_WORK:,}; " + fewer,
             field="runup.n_speeds" if limit >= 2 else "runup.orders_of_interest",
             value=n,
@@ -434,8 +432,7 @@ def _check_work(req: PlanIn, n_tones: int) -> None:
     else:
         field = "sources" if req.sources else "tones"
     raise RequestError(
-        status=422,
-        message=f"{n_tones:,} tones × {n_rates} rates × {n_filters} filters is {work:,} "
+        f"{n_tones:,} tones × {n_rates} rates × {n_filters} filters is {work:,} "
         f"combinations to search, more than the limit of {PLAN_MAX_WORK:,}; offer fewer "
         "rates or filters, or plan for fewer tones",
         field=field,
