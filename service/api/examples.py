@@ -150,6 +150,23 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     }
 
 
+#: The request model of each saveable kind, as the OpenAPI document names it.
+SAVED_KINDS = {"fold": "FoldIn", "diagnose": "DiagnoseIn", "compare": "CompareIn", "plan": "PlanIn"}
+
+
+def _save_request_by_kind(schema: dict[str, Any]) -> None:
+    """Publish ``SaveIn.request`` as the request model its ``kind`` names (the route
+    checks it the same way, with errors rooted at ``request``)."""
+    save = schema["components"]["schemas"]["SaveIn"]
+    save["allOf"] = [
+        {
+            "if": {"properties": {"kind": {"const": kind}}, "required": ["kind"]},
+            "then": {"properties": {"request": {"$ref": f"#/components/schemas/{model}"}}},
+        }
+        for kind, model in SAVED_KINDS.items()
+    ]
+
+
 def install_examples(app: Any, settings: Any) -> None:
     """Add the computed response examples to the app's OpenAPI document."""
     original = app.openapi
@@ -160,6 +177,7 @@ def install_examples(app: Any, settings: Any) -> None:
         schema = original()
 
         register_models(schema, [FoldIn, DiagnoseIn, CompareIn, PlanIn])
+        _save_request_by_kind(schema)
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]
             code = next(c for c in ("200", "201") if c in op["responses"])

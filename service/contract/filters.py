@@ -60,16 +60,18 @@ class FilterFields(StrictModel):
     family: str | None = None
     order: int | None = None
     cutoff_hz: Hz | None = None
+    # At least 0.001 dB: below that the design is a Butterworth in all but name, and
+    # scipy's prototypes divide by a ripple factor that rounds to zero (found by fuzzing).
     ripple_db: float | None = Field(
         None,
-        gt=0,
+        ge=0.001,
         le=6,
         allow_inf_nan=False,
         description="Passband ripple, dB (chebyshev1, elliptic)",
     )
     stop_atten_db: float | None = Field(
         None,
-        gt=0,
+        ge=1,
         le=200,
         allow_inf_nan=False,
         description="Stopband attenuation, dB (chebyshev2, elliptic)",

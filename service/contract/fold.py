@@ -75,7 +75,7 @@ class DigitalStageIn(StrictModel):
     stage: Literal["digital_lowpass"]
     passband_hz: Hz | None = None
     stopband_hz: Hz | None = None
-    atten_db: float | None = Field(None, gt=0, le=200, allow_inf_nan=False)
+    atten_db: float | None = Field(None, ge=1, le=200, allow_inf_nan=False)
     b: list[Annotated[float, Field(allow_inf_nan=False)]] | None = Field(
         None, min_length=1, max_length=8192, description="Numerator coefficients"
     )

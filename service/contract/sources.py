@@ -19,6 +19,10 @@ from .common import (
 
 __all__ = ["SOURCE_MODELS", "SourceIn", "source_to_core"]
 
+#: Shaft speeds from 0.001 rpm (a slow kiln) to 6,000,000 rpm: below, the machine is
+#: standing still and the tones' arithmetic turns to denormals (found by fuzzing).
+Rpm = Annotated[float, Field(ge=1e-3, le=6e6, allow_inf_nan=False)]
+SpeedHz = Annotated[float, Field(ge=1e-3 / 60, le=1e5, allow_inf_nan=False)]
 Amplitude = Annotated[float, Field(ge=0, le=1e12, allow_inf_nan=False)]
 Harmonics = Annotated[int, Field(ge=1, le=100, description="Number of harmonics, 1 to 100")]
 
@@ -51,9 +55,9 @@ class _Speed(_SourceBase):
         [exactly_one(*_SPEEDS), not_together("amplitude", "harmonic_amplitudes")]
     )
 
-    speed_hz: Hz | None = Field(None, description="Shaft speed, Hz (give one of the three)")
-    speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
-    speed_cpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
+    speed_hz: SpeedHz | None = Field(None, description="Shaft speed, Hz (give one of the three)")
+    speed_rpm: Rpm | None = None
+    speed_cpm: Rpm | None = None
 
     @model_validator(mode="after")
     def _one_speed(self) -> _Speed:
@@ -88,10 +92,10 @@ class GearMeshIn(_Speed, _WithHarmonicAmplitudes):
     teeth: int = Field(ge=1, le=10_000, description="Teeth on the gear whose shaft speed is given")
     harmonics: Harmonics = 3
     sidebands: int = Field(2, ge=0, le=50, description="± shaft-speed sidebands per harmonic")
-    mating_speed_hz: Hz | None = Field(
+    mating_speed_hz: SpeedHz | None = Field(
         None, description="Mating shaft speed, Hz, for its sidebands"
     )
-    mating_speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
+    mating_speed_rpm: Rpm | None = None
 
 
 class BearingIn(_Speed, _WithHarmonicAmplitudes):
@@ -100,7 +104,7 @@ class BearingIn(_Speed, _WithHarmonicAmplitudes):
     element_diameter: float = Field(
         gt=0, le=1e4, allow_inf_nan=False, description="Any length unit"
     )
-    pitch_diameter: float = Field(gt=0, le=1e5, allow_inf_nan=False, description="Same unit")
+    pitch_diameter: float = Field(ge=1e-6, le=1e5, allow_inf_nan=False, description="Same unit")
     contact_angle_deg: float = Field(0.0, ge=0, lt=90, allow_inf_nan=False)
     harmonics: Harmonics = 3
     defects: list[Literal["FTF", "BPFO", "BPFI", "BSF"]] | None = Field(
@@ -143,9 +147,9 @@ class PwmIn(_SourceBase):
         None, description="Electrical output frequency f1, Hz (or give pole_pairs and a speed)"
     )
     pole_pairs: int | None = Field(None, ge=1, le=1000)
-    speed_cpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
-    speed_hz: Hz | None = None
-    speed_rpm: Annotated[float, Field(gt=0, le=6e6, allow_inf_nan=False)] | None = None
+    speed_cpm: Rpm | None = None
+    speed_hz: SpeedHz | None = None
+    speed_rpm: Rpm | None = None
     carrier_multiples: int = Field(3, ge=1, le=50)
     sidebands: int = Field(4, ge=0, le=50)
     line_to_line: bool = Field(

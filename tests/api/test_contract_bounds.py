@@ -156,3 +156,43 @@ class TestOptionalMembers:
         src = {"type": "shaft", "label": "m", "speed_hz": 10.0, "speed_rpm": 600.0}
         r = client.post("/api/v1/fold", json={"sample_rate_hz": 100.0, "sources": [src]})
         assert r.status_code == 422
+
+
+class TestFuzzFinds:
+    """Bodies schema fuzzing found to reach a crash in the core, now refused by the model."""
+
+    def test_basic(self, client: TestClient) -> None:
+        # A 5e-324 dB ripple made scipy's Chebyshev prototype divide by zero.
+        aa = {"family": "chebyshev1", "order": 1, "cutoff_hz": 1000.0, "ripple_db": 5e-324}
+        body = {
+            "sample_rate_hz": 10_000.0,
+            "anti_alias": aa,
+            "tones": [{"label": "a", "freq_hz": 1.0}],
+        }
+        r = client.post("/api/v1/fold", json=body)
+        assert r.status_code == 422
+        assert r.json()["errors"][0]["field"] == "anti_alias.ripple_db"
+
+    def test_edges(self, client: TestClient) -> None:
+        # The smallest ripple and speed allowed still compute.
+        aa = {"family": "chebyshev1", "order": 4, "cutoff_hz": 1000.0, "ripple_db": 0.001}
+        src = {"type": "shaft", "label": "kiln", "speed_rpm": 0.001, "orders": [1]}
+        body = {"sample_rate_hz": 10_000.0, "anti_alias": aa, "sources": [src]}
+        r = client.post("/api/v1/fold", json=body)
+        assert r.status_code == 200, r.text
+        # Reference: 0.001 rpm is 0.001/60 Hz, far below Nyquist: it stays where it is.
+        assert r.json()["tones"][0]["apparent_hz"] == pytest.approx(0.001 / 60)
+
+    def test_errors(self, client: TestClient) -> None:
+        # A shaft turning at 7.9e-230 cpm sent the zone computation a NaN.
+        src = {
+            "type": "bearing",
+            "label": "b",
+            "speed_cpm": 7.9e-230,
+            "n_elements": 3,
+            "element_diameter": 1.0,
+            "pitch_diameter": 5.0,
+        }
+        r = client.post("/api/v1/fold", json={"sample_rate_hz": 1e9, "sources": [src]})
+        assert r.status_code == 422
+        assert r.json()["errors"][0]["field"] == "sources[0].bearing.speed_cpm"
