@@ -107,6 +107,17 @@ class _ChainOptional(StrictModel):
     chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
 
 
+#: A measured input: one spectrum or one time record (in JSON), and one way to give the
+#: chain.
+_MEASURED_INPUT = strict_with_rules(
+    [
+        exactly_one("spectrum", "time_record"),
+        not_together("chain", "sample_rate_hz"),
+        not_together("chain", "anti_alias"),
+    ]
+)
+
+
 class DiagnoseIn(_ChainOptional):
     """Which peaks of a spectrum are aliases, of what, and how sure.
 
@@ -114,13 +125,7 @@ class DiagnoseIn(_ChainOptional):
     upload the file takes their place.
     """
 
-    model_config = strict_with_rules(
-        [
-            exactly_one("spectrum", "time_record"),
-            not_together("chain", "sample_rate_hz"),
-            not_together("chain", "anti_alias"),
-        ]
-    )
+    model_config = _MEASURED_INPUT
 
     spectrum: SpectrumIn | None = None
     time_record: TimeRecordIn | None = None
@@ -159,13 +164,7 @@ class DiagnoseIn(_ChainOptional):
 class CaptureIn(_ChainOptional):
     """One capture of the two-rate test: its chain and its spectrum or time record."""
 
-    model_config = strict_with_rules(
-        [
-            exactly_one("spectrum", "time_record"),
-            not_together("chain", "sample_rate_hz"),
-            not_together("chain", "anti_alias"),
-        ]
-    )
+    model_config = _MEASURED_INPUT
 
     spectrum: SpectrumIn | None = None
     time_record: TimeRecordIn | None = None

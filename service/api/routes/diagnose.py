@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 from fastapi import APIRouter, Query, Request
@@ -50,12 +51,25 @@ def _doc(model: Any, examples: dict[str, Any], files: dict[str, Any]) -> dict[st
     return out
 
 
-async def _save(
-    request: Request, kind: str, req: Any, payload: dict[str, Any], measured: Any, title: str | None
-) -> dict[str, Any]:
-    access: StoreAccess = request.app.state.store_access
-    arrays = (measured.freq_hz, measured.amplitude) if measured is not None else None
-    return await access.save(kind, saved_parts(kind, req, payload, arrays), title)
+async def _answer(
+    request: Request,
+    kind: str,
+    req: Any,
+    compute: Callable[..., tuple[dict[str, Any], Any]],
+    files: Any,
+    save: bool,
+    title: str | None,
+) -> FastJSON:
+    """Compute off the event loop; with ``save``, store the result and add its link."""
+    settings = request.app.state.settings
+    payload, measured = await run_in_threadpool(compute, req, settings, files)
+    if save:
+        # A comparison keeps its peaks, not its spectra (one spectrum per record).
+        spectrum = (measured.freq_hz, measured.amplitude) if kind == "diagnose" else None
+        access: StoreAccess = request.app.state.store_access
+        parts = saved_parts(kind, req, payload, spectrum)
+        payload["saved"] = await access.save(kind, parts, title)
+    return FastJSON(payload)
 
 
 @router.post(
@@ -84,10 +98,7 @@ async def diagnose(
     else:
         raw = await read_body(request, settings.max_body_bytes)
     req = parse_json_body(DiagnoseIn, raw)
-    payload, measured = await run_in_threadpool(diagnose_payload, req, settings, upload)
-    if save:
-        payload["saved"] = await _save(request, "diagnose", req, payload, measured, title)
-    return FastJSON(payload)
+    return await _answer(request, "diagnose", req, diagnose_payload, upload, save, title)
 
 
 @router.post(
@@ -128,7 +139,4 @@ async def compare(
     else:
         raw = await read_body(request, settings.max_body_bytes)
     req = parse_json_body(CompareIn, raw)
-    payload, _ = await run_in_threadpool(compare_payload, req, settings, uploads)
-    if save:
-        payload["saved"] = await _save(request, "compare", req, payload, None, title)
-    return FastJSON(payload)
+    return await _answer(request, "compare", req, compare_payload, uploads, save, title)
