@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+from typing import get_args
+
 import pytest
 
+from service.contract.filters import FilterFamily
 from service.contract.sources import SOURCE_MODELS
 from service.web import forms
 
@@ -28,3 +31,10 @@ class TestSourceForms:
     def test_errors(self) -> None:
         with pytest.raises(KeyError):
             forms._field("gear_mesh", "cogs", "Cogs")
+
+
+class TestFilterFamilies:
+    def test_basic(self) -> None:
+        # The page offers exactly the contract's filter families (plus "no filter").
+        offered = {name for name, _ in forms.FILTER_FAMILIES}
+        assert offered == {"", *get_args(FilterFamily)}
