@@ -13,7 +13,21 @@ from __future__ import annotations
 import functools
 from typing import Any
 
-__all__ = ["DEMO_RPM", "demo_anti_alias", "demo_fold_request", "demo_sources"]
+import numpy as np
+
+from .contract.fold import AnalogFilterIn
+from .core.chain import Chain
+from .core.sources import expand_sources, source_from_dict
+from .core.spectrum import amplitude_spectrum
+
+__all__ = [
+    "DEMO_RPM",
+    "DEMO_TOP_RPM",
+    "demo_anti_alias",
+    "demo_fold_request",
+    "demo_plan_request",
+    "demo_sources",
+]
 
 DEMO_RPM = 9000.0
 POLE_PAIRS = 4
@@ -125,12 +139,6 @@ def demo_time_record(
     decimated by 2 by slicing, as the second channel's script does. Unknown harmonic
     amplitudes are set to a fifth of their source's main line.
     """
-    import numpy as np
-
-    from .api.schemas import AnalogFilterIn
-    from .core.chain import Chain
-    from .core.sources import expand_sources, source_from_dict
-
     tones = expand_sources([source_from_dict(s) for s in demo_sources(rpm)])
     amp = tones.amplitude.copy()
     for src in set(tones.source.tolist()):
@@ -159,8 +167,6 @@ def demo_spectrum(lines: int = 1600, sliced: bool = False) -> tuple[Any, Any, fl
 
     The same for every call (fixed seed), so it is simulated once per process; the arrays
     are read-only."""
-    from .core.spectrum import amplitude_spectrum
-
     x, rate = demo_time_record(sliced=sliced)
     s = amplitude_spectrum(x, rate, lines=lines)
     return s.freq_hz, s.amplitude, rate
@@ -179,4 +185,18 @@ def demo_diagnose_request(lines: int = 1600) -> dict[str, Any]:
         },
         "sources": demo_sources(),
         "speed_tolerance_pct": 1.0,
+    }
+
+
+DEMO_TOP_RPM = 12_000.0
+
+
+def demo_plan_request() -> dict[str, Any]:
+    """The drive-unit bench: 1,000 to 12,000 rpm, band 0-5 kHz, 60 dB alias rejection."""
+    return {
+        "band_hz": [0.0, 5000.0],
+        "sources": demo_sources(DEMO_TOP_RPM),
+        "nominal_rpm": DEMO_TOP_RPM,
+        "speed_range_rpm": [1000.0, DEMO_TOP_RPM],
+        "rejection_db": 60.0,
     }

@@ -59,7 +59,7 @@ def serve(host: str, port: int, workers: int, log_level: str, loop: Loop = "asyn
     if loop not in LOOPS:
         raise ValueError(f"loop={loop!r} must be one of {', '.join(LOOPS)}")
     uvicorn.run(
-        "service.api.app:create_app",
+        "service.app:create_app",
         factory=True,
         host=host,
         port=port,

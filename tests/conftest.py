@@ -20,7 +20,7 @@ import psycopg
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.app import create_app
+from service.app import create_app
 from service.config import Settings
 
 

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import argparse
 import json
 from collections.abc import Iterator
 from pathlib import Path
@@ -11,34 +10,16 @@ from typing import Any
 import pytest
 from fastapi.testclient import TestClient
 
-from service import cli, cli_plan
-from service.api.app import create_app
-from service.api.plan_schemas import PLAN_EXAMPLES, demo_plan_request
-from service.api.routes import plan as plan_routes
+from service import cli
+from service.api.examples import PLAN_EXAMPLES
+from service.app import create_app
 from service.config import Settings
-
-
-@pytest.fixture(autouse=True)
-def with_plan_command(monkeypatch: pytest.MonkeyPatch) -> None:
-    """``foldwise`` with the ``plan`` sub-command, registered as cli.py is to register it."""
-    original = cli.build_parser
-
-    def build_parser() -> argparse.ArgumentParser:
-        parser = original()
-        sub = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
-        if "plan" not in sub.choices:
-            cli_plan.register(sub)
-        return parser
-
-    monkeypatch.setattr(cli, "build_parser", build_parser)
+from service.demo import demo_plan_request
 
 
 @pytest.fixture
 def api(settings: Settings) -> Iterator[TestClient]:
-    app = create_app(settings)
-    if not any(getattr(r, "path", "") == "/api/v1/plan" for r in app.routes):
-        app.include_router(plan_routes.router)
-    with TestClient(app) as c:
+    with TestClient(create_app(settings)) as c:
         yield c
 
 

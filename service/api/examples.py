@@ -6,16 +6,24 @@ from typing import Any
 
 from fastapi import Body
 
+from .. import COMPUTATION_VERSION, __version__
+from ..contract.diagnose import CompareIn, DiagnoseIn
+from ..contract.fold import FoldIn
+from ..contract.plan import PlanIn
 from ..demo import (
     DEMO_RPM,
     demo_anti_alias,
     demo_diagnose_request,
     demo_fold_request,
+    demo_plan_request,
     demo_sliced_chain,
     demo_spectrum,
 )
-from .bodies import register_models
-from .schemas import FoldIn
+from ..http.bodies import register_models
+from ..usecases.compare import compare_payload
+from ..usecases.diagnose import diagnose_payload
+from ..usecases.fold import fold_payload
+from ..usecases.plan import plan_payload
 
 FOLD_EXAMPLES: dict[str, Any] = {
     "drive_unit": {
@@ -81,15 +89,12 @@ COMPARE_EXAMPLES: dict[str, Any] = {
 def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     """Real responses to the first example of each endpoint, computed by the app itself so
     the documentation can never drift from the code. Long lists are shortened."""
-    from .compute import fold_payload
 
     fold = fold_payload(FoldIn.model_validate(demo_fold_request()), settings)
     fold["tones"] = [t for t in fold["tones"] if t["aliased"]][:4] + [
         t for t in fold["tones"] if not t["aliased"]
     ][:2]
     fold["collisions"] = fold["collisions"][:3]
-    from .diagnose_schemas import CompareIn, DiagnoseIn
-    from .diagnosis import compare_payload, diagnose_payload
 
     diag, _ = diagnose_payload(
         DiagnoseIn.model_validate(DIAGNOSE_EXAMPLES["drive_unit"]["value"]), settings
@@ -102,9 +107,6 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     )
     for side in ("a", "b"):
         cmp[side]["peaks"] = cmp[side]["peaks"][:3]
-    from .. import COMPUTATION_VERSION, __version__
-    from .plan_compute import plan_payload
-    from .plan_schemas import PlanIn, demo_plan_request
 
     plan = plan_payload(PlanIn.model_validate(demo_plan_request()), settings)
     plan["rejected"] = plan["rejected"][-3:]
@@ -148,6 +150,23 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     }
 
 
+#: The request model of each saveable kind, as the OpenAPI document names it.
+SAVED_KINDS = {"fold": "FoldIn", "diagnose": "DiagnoseIn", "compare": "CompareIn", "plan": "PlanIn"}
+
+
+def _save_request_by_kind(schema: dict[str, Any]) -> None:
+    """Publish ``SaveIn.request`` as the request model its ``kind`` names (the route
+    checks it the same way, with errors rooted at ``request``)."""
+    save = schema["components"]["schemas"]["SaveIn"]
+    save["allOf"] = [
+        {
+            "if": {"properties": {"kind": {"const": kind}}, "required": ["kind"]},
+            "then": {"properties": {"request": {"$ref": f"#/components/schemas/{model}"}}},
+        }
+        for kind, model in SAVED_KINDS.items()
+    ]
+
+
 def install_examples(app: Any, settings: Any) -> None:
     """Add the computed response examples to the app's OpenAPI document."""
     original = app.openapi
@@ -156,10 +175,9 @@ def install_examples(app: Any, settings: Any) -> None:
         if app.openapi_schema:
             return app.openapi_schema  # type: ignore[no-any-return]
         schema = original()
-        from .diagnose_schemas import CompareIn, DiagnoseIn
-        from .plan_schemas import PlanIn
 
         register_models(schema, [FoldIn, DiagnoseIn, CompareIn, PlanIn])
+        _save_request_by_kind(schema)
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]
             code = next(c for c in ("200", "201") if c in op["responses"])
@@ -183,3 +201,40 @@ SAVE_EXAMPLES: Any = Body(
         }
     }
 )
+
+
+PLAN_EXAMPLES: dict[str, Any] = {
+    "drive_unit": {
+        "summary": "Drive-unit bench up to 12,000 rpm, 0-5 kHz, 60 dB",
+        "description": "Every source of the bench, a run-up from 1,000 to 12,000 rpm; the "
+        "planner tries the usual converter rates and its default filters.",
+        "value": demo_plan_request(),
+    },
+    "resolve_sideband": {
+        "summary": "Also resolve the first mesh from its shaft sideband",
+        "value": {
+            **demo_plan_request(),
+            "resolve": ["first mesh 17/53: GMF 1×", "first mesh 17/53: GMF 1× + 1×shaft"],
+        },
+    },
+    "offered_rates": {
+        "summary": "Only the bench converter's rates, an absolute floor, with the run-up",
+        "value": {
+            **{k: v for k, v in demo_plan_request().items() if k != "rejection_db"},
+            "floor": 0.001,
+            "rates_hz": [12_800.0, 25_600.0, 51_200.0],
+            "runup": {"orders_of_interest": ["first mesh 17/53: GMF 1×", 1], "n_speeds": 200},
+        },
+    },
+    "carrier_only": {
+        "summary": "Keep a 10 kHz inverter carrier out of 0-2 kHz",
+        "value": {
+            "band_hz": [0.0, 2000.0],
+            "tones": [
+                {"label": "inverter carrier", "freq_hz": 10_000.0, "amplitude": 0.5},
+                {"label": "first mesh", "freq_hz": 1700.0, "amplitude": 0.8},
+            ],
+            "rejection_db": 80.0,
+        },
+    },
+}

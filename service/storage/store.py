@@ -32,9 +32,13 @@ from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Literal
+from typing import Any, Literal
 
 import numpy as np
+from alembic import command
+from alembic.config import Config
+from alembic.runtime.migration import MigrationContext
+from alembic.script import ScriptDirectory
 from sqlalchemy import Connection, Engine, create_engine, delete, event, select, text
 from sqlalchemy import exc as sa_exc
 from sqlalchemy.engine import make_url
@@ -42,9 +46,6 @@ from sqlalchemy.orm import Session
 
 from service.storage.models import KINDS, SavedDiagnosisRow
 from service.storage.packing import pack_spectrum, unpack_spectrum
-
-if TYPE_CHECKING:
-    from alembic.config import Config
 
 __all__ = [
     "DEFAULT_MAX_JSON_BYTES",
@@ -244,8 +245,6 @@ class Store:
     def _alembic_config() -> Config:
         # Alembic is imported only when migrating: it is slow to import and the request
         # path never needs it.
-        from alembic.config import Config
-
         cfg = Config()
         # ConfigParser interpolation treats '%' specially.
         cfg.set_main_option("script_location", str(_MIGRATIONS_DIR).replace("%", "%%"))
@@ -260,8 +259,6 @@ class Store:
         transaction-scoped advisory lock on PostgreSQL), so the second process waits and
         then finds nothing left to do.
         """
-        from alembic import command
-
         cfg = self._alembic_config()
         with self._unavailable_as_error(), self._write_engine.begin() as conn:
             if self._backend == "postgresql":
@@ -273,16 +270,12 @@ class Store:
 
     def schema_revision(self) -> str | None:
         """The schema revision the database is at, or None before the first migration."""
-        from alembic.runtime.migration import MigrationContext
-
         with self._unavailable_as_error(), self._engine.connect() as conn:
             return MigrationContext.configure(conn).get_current_revision()
 
     @staticmethod
     def head_revision() -> str:
         """The newest schema revision shipped with this code."""
-        from alembic.script import ScriptDirectory
-
         head = ScriptDirectory.from_config(Store._alembic_config()).get_current_head()
         assert head is not None
         return head

@@ -3,7 +3,7 @@
 The chain, sources and tone list are the predict form's own fields (``forms``), so a
 bench described once reads the same on every page. A pasted spectrum becomes an upload
 named ``pasted.csv`` read as spectrum text, so pasted and uploaded spectra follow one path
-(and one set of error messages) through ``service.api.diagnosis``.
+(and one set of error messages) through ``service.usecases.diagnose``.
 """
 
 from __future__ import annotations
@@ -16,9 +16,9 @@ from typing import Any
 
 from pydantic import ValidationError
 
-from ..api.diagnose_schemas import CompareIn, DiagnoseIn
-from ..api.diagnosis import Upload
-from ..api.problems import Problem
+from ..contract.diagnose import CompareIn, DiagnoseIn
+from ..http.problems import Problem
+from ..usecases.measure import Upload
 from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, _problem_field
 
 __all__ = [

@@ -1,6 +1,6 @@
 """The diagnose and compare pages, and saving any result under a link.
 
-Both pages compute through ``service.api.diagnosis`` (the JSON API's own functions), in a
+Both pages compute through ``service.usecases.diagnose`` (the JSON API's own functions), in a
 worker thread. A result is shown, and saved, from the API payload plus the measured
 spectrum; a saved page is rendered from the stored record alone, so a link shows the
 same verdicts after a restart or an upgrade.
@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import json
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import numpy as np
@@ -20,18 +20,20 @@ from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import FormData, UploadFile
 
-from .. import COMPUTATION_VERSION, __version__
-from ..api.compute import fold_payload
-from ..api.diagnose_schemas import DiagnoseIn
-from ..api.diagnosis import Measured, Upload, compare_payload, diagnose_payload
-from ..api.problems import Problem
-from ..api.schemas import FoldIn, chain_from_request
-from ..api.security import require_api_key
-from ..api.store_access import StoreAccess
 from ..config import Settings
+from ..contract.diagnose import DiagnoseIn
+from ..contract.fold import FoldIn, chain_from_request
 from ..core.chain import Chain
 from ..core.spectrum import noise_floor
 from ..demo import demo_diagnose_request
+from ..http.keys import require_api_key
+from ..http.problems import ANSWERABLE, Problem, as_problem
+from ..http.store_access import StoreAccess
+from ..usecases.compare import compare_payload
+from ..usecases.diagnose import diagnose_payload
+from ..usecases.fold import fold_payload
+from ..usecases.measure import Measured, Upload
+from ..usecases.save import SaveParts, saved_parts, stored_request
 from . import figures
 from .diagnose_forms import (
     COMPARE_LABELS,
@@ -46,11 +48,14 @@ from .diagnose_forms import (
     share_fields,
 )
 from .forms import FormState, form_from_request
+from .rendering import render
 
 __all__ = [
     "compare_result_context",
     "diagnose_result_context",
     "error_page",
+    "read_share_form",
+    "recompute_shared",
     "request_json",
     "router",
     "save_result",
@@ -72,8 +77,6 @@ COMPARE_TEXTS = ("a_spectrum_text", "b_spectrum_text")
 def _render(
     request: Request, name: str, ctx: dict[str, Any], status_code: int = 200
 ) -> HTMLResponse:
-    from .pages import render
-
     return render(request, name, ctx, status_code=status_code)
 
 
@@ -137,12 +140,7 @@ def _text_fields(form: FormData) -> dict[str, str]:
 
 
 async def save_result(
-    request: Request,
-    kind: str,
-    stored_request: dict[str, Any],
-    result: dict[str, Any],
-    spectrum: tuple[np.ndarray, np.ndarray] | None,
-    title: str | None,
+    request: Request, kind: str, parts: SaveParts, title: str | None
 ) -> dict[str, str]:
     """Save a result as the JSON API does; returns the link and the delete token.
 
@@ -152,28 +150,15 @@ async def save_result(
     """
     await require_api_key(request)
     access: StoreAccess = request.app.state.store_access
-    try:
-        rid, token = await access.call(
-            access.store.create,
-            kind,
-            stored_request,
-            result,
-            COMPUTATION_VERSION,
-            __version__,
-            spectrum=spectrum,
-            title=title,
-        )
-    except ValueError as exc:
-        raise Problem(413, str(exc), field="request") from exc
+    link = await access.save(kind, parts, title)
+    # The page shows the link a colleague can open: absolute, on this host.
     base = str(request.base_url).rstrip("/")
-    return {"id": rid, "token": token, "url": f"{base}/d/{rid}", "path": f"/d/{rid}"}
-
-
-def _stored_request(req: Any) -> dict[str, Any]:
-    dumped: dict[str, Any] = req.model_dump(
-        mode="json", exclude_none=True, exclude={"spectrum", "time_record"}
-    )
-    return dumped
+    return {
+        "id": link["id"],
+        "token": link["delete_token"],
+        "url": base + link["url"],
+        "path": link["url"],
+    }
 
 
 # --------------------------------------------------------------------------- diagnose view
@@ -335,7 +320,7 @@ async def diagnose_form(request: Request, demo: str | None = None) -> HTMLRespon
     settings: Settings = request.app.state.settings
     req, out, m = await run_in_threadpool(_compute_demo, settings)
     ctx = await run_in_threadpool(
-        diagnose_result_context, out, (m.freq_hz, m.amplitude), _stored_request(req)
+        diagnose_result_context, out, (m.freq_hz, m.amplitude), stored_request("diagnose", req)
     )
     return await _diagnose_page(request, _demo_form(), ctx, demo=True)
 
@@ -345,7 +330,8 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
     settings: Settings = request.app.state.settings
     try:
         form, files = await _read_form(request, ("file",))
-    except Problem as p:
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         st = blank_diagnose_form()
         st.add_error("file", DIAGNOSE_LABELS["file"], p.detail)
         return await _diagnose_page(request, st, None, status_code=p.status)
@@ -356,18 +342,19 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
         return await _diagnose_page(request, f.state, None, status_code=422)
     try:
         out, m = await run_in_threadpool(diagnose_payload, f.req, settings, f.upload)
-    except Problem as p:
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         attach_diagnose_problem(f, p)
         return await _diagnose_page(request, f.state, None, status_code=422)
-    stored = _stored_request(f.req)
+    stored = stored_request("diagnose", f.req)
     ctx = await run_in_threadpool(diagnose_result_context, out, (m.freq_hz, m.amplitude), stored)
     saved = None
     if f.share:
         try:
-            saved = await save_result(
-                request, "diagnose", stored, out, (m.freq_hz, m.amplitude), f.title
-            )
-        except Problem as p:
+            parts = SaveParts(stored, out, (m.freq_hz, m.amplitude))
+            saved = await save_result(request, "diagnose", parts, f.title)
+        except ANSWERABLE as exc:
+            p = as_problem(exc)
             return error_page(request, p)
     elif f.pasted:
         ctx["share_inputs"] = share_fields(fields, DIAGNOSE_TEXTS)
@@ -444,7 +431,8 @@ async def compare_submit(request: Request) -> HTMLResponse:
     settings: Settings = request.app.state.settings
     try:
         form, files = await _read_form(request, ("a_file", "b_file"))
-    except Problem as p:
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         st = blank_compare_form()
         st.add_error("a_file", COMPARE_LABELS["a_file"], p.detail)
         return await _compare_page(request, st, None, status_code=p.status)
@@ -455,7 +443,8 @@ async def compare_submit(request: Request) -> HTMLResponse:
         return await _compare_page(request, f.state, None, status_code=422)
     try:
         out, measured = await run_in_threadpool(compare_payload, f.req, settings, f.uploads)
-    except Problem as p:
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         attach_compare_problem(f, p)
         return await _compare_page(request, f.state, None, status_code=422)
     spectra = {s: (m.freq_hz, m.amplitude) for s, m in measured.items()}
@@ -465,9 +454,10 @@ async def compare_submit(request: Request) -> HTMLResponse:
         try:
             # One spectrum per record: a saved comparison keeps its peaks, not its spectra.
             saved = await save_result(
-                request, "compare", _stored_request(f.req), out, None, f.title
+                request, "compare", saved_parts("compare", f.req, out, None), f.title
             )
-        except Problem as p:
+        except ANSWERABLE as exc:
+            p = as_problem(exc)
             return error_page(request, p)
     else:
         if all(f.pasted.values()):
@@ -504,13 +494,13 @@ async def _share_pasted(
             raise _invalid_inputs(f.state)
         out, m = await run_in_threadpool(diagnose_payload, f.req, settings, f.upload)
         spectrum = (m.freq_hz, m.amplitude)
-        return await save_result(request, kind, _stored_request(f.req), out, spectrum, title)
+        return await save_result(request, kind, saved_parts(kind, f.req, out, spectrum), title)
     c = parse_compare_form(read_share_fields(inputs, COMPARE_TEXTS), {})
     if c.req is None:
         raise _invalid_inputs(c.state)
     out, _ = await run_in_threadpool(compare_payload, c.req, settings, c.uploads)
     # As the tick box: a saved comparison keeps its peaks, not its spectra.
-    return await save_result(request, kind, _stored_request(c.req), out, None, title)
+    return await save_result(request, kind, saved_parts(kind, c.req, out, None), title)
 
 
 @router.post("/share", response_class=HTMLResponse)
@@ -519,19 +509,13 @@ async def share(request: Request) -> HTMLResponse:
     request JSON travels in the form), a diagnosis or comparison of pasted text (the
     page's form fields travel in the form) or the demo diagnosis (made by the app)."""
     settings: Settings = request.app.state.settings
-    form = await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
-    kind = str(form.get("kind", ""))
-    title = str(form.get("title", "")).strip()[:200] or None
     try:
+        form = await read_share_form(request)
+        kind = str(form.get("kind", ""))
+        title = str(form.get("title", "")).strip()[:200] or None
         if kind == "fold":
-            try:
-                stored, result = await run_in_threadpool(
-                    _share_fold, str(form.get("request", "")), settings
-                )
-            except ValidationError as exc:
-                msg = exc.errors()[0]["msg"]
-                raise Problem(422, f"the saved request is not valid: {msg}") from None
-            saved = await save_result(request, "fold", stored, result, None, title)
+            parts = await recompute_shared(_share_fold, str(form.get("request", "")), settings)
+            saved = await save_result(request, "fold", parts, title)
         elif kind in ("diagnose", "compare"):
             saved = await _share_pasted(request, kind, str(form.get("inputs", "")), title)
         elif kind == "diagnose_demo":
@@ -539,16 +523,38 @@ async def share(request: Request) -> HTMLResponse:
             saved = await save_result(
                 request,
                 "diagnose",
-                _stored_request(req),
-                out,
-                (m.freq_hz, m.amplitude),
+                saved_parts("diagnose", req, out, (m.freq_hz, m.amplitude)),
                 title or "Demo bench diagnosis",
             )
         else:
             raise Problem(422, f"kind={kind!r} cannot be shared from this form", field="kind")
-    except Problem as p:
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         return error_page(request, p)
     return _render(request, "shared.html", {"active": "", "saved": saved, "kind": kind})
+
+
+async def read_share_form(request: Request) -> FormData:
+    """A share action's small form (no files); 400 when it cannot be read."""
+    settings: Settings = request.app.state.settings
+    try:
+        return await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
+    except Exception as exc:  # malformed or oversized form
+        raise Problem(400, f"the form cannot be read: {exc}") from exc
+
+
+async def recompute_shared(
+    compute: Callable[[str, Settings], tuple[dict[str, Any], dict[str, Any]]],
+    text: str,
+    settings: Settings,
+) -> SaveParts:
+    """Recompute a shared request (the form carries it as JSON) for saving."""
+    try:
+        stored, result = await run_in_threadpool(compute, text, settings)
+    except ValidationError as exc:
+        msg = exc.errors()[0]["msg"]
+        raise Problem(422, f"the saved request is not valid: {msg}") from None
+    return SaveParts(stored, result)
 
 
 def request_json(req: Any) -> str:

@@ -13,12 +13,13 @@ import math
 import re
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, get_args, get_origin
 
 from pydantic import ValidationError
 
-from ..api.problems import Problem
-from ..api.schemas import FoldIn
+from ..contract.fold import FoldIn
+from ..contract.sources import SOURCE_MODELS
+from ..http.problems import Problem
 
 __all__ = [
     "FILTER_FAMILIES",
@@ -48,17 +49,36 @@ class SourceField:
     hint: str = ""
 
 
+def _kind(annotation: Any) -> str:
+    """How a form box reads a contract field: a list, a whole number or a number."""
+    seen: list[Any] = []
+    todo = [annotation]
+    while todo:
+        t = todo.pop()
+        seen.append(get_origin(t) or t)
+        todo += list(get_args(t))
+    if list in seen:
+        return "list"
+    return "int" if int in seen else "number"
+
+
+def _field(source_type: str, name: str, label: str, hint: str = "") -> SourceField:
+    """A form box for ``name`` of a source type, its kind read from the contract model
+    (a name the model does not have fails at import, not in a user's face)."""
+    model = SOURCE_MODELS[source_type]
+    return SourceField(name, label, _kind(model.model_fields[name].annotation), hint)
+
+
 _LABEL = SourceField("label", "Name", "text", "what it is, e.g. motor shaft")
 _SPEED = SourceField("speed", "Speed", "speed", "shaft speed")
 _AMP = SourceField("amplitude", "Amplitude", "number", "at the sensor, any unit")
-_HARM = SourceField("harmonics", "Harmonics", "int")
 
 #: One small form per source type: (type, heading, fields).
 SOURCE_FORMS: list[tuple[str, str, list[SourceField]]] = [
     (
         "shaft",
         "Shaft speed and orders",
-        [_LABEL, _SPEED, SourceField("orders", "Orders", "list", "e.g. 1, 2, 3, 0.5"), _AMP],
+        [_LABEL, _SPEED, _field("shaft", "orders", "Orders", "e.g. 1, 2, 3, 0.5"), _AMP],
     ),
     (
         "gear_mesh",
@@ -66,9 +86,9 @@ SOURCE_FORMS: list[tuple[str, str, list[SourceField]]] = [
         [
             _LABEL,
             _SPEED,
-            SourceField("teeth", "Teeth", "int", "on the gear whose speed is given"),
-            _HARM,
-            SourceField("sidebands", "Sidebands", "int", "± shaft speed, per harmonic"),
+            _field("gear_mesh", "teeth", "Teeth", "on the gear whose speed is given"),
+            _field("gear_mesh", "harmonics", "Harmonics"),
+            _field("gear_mesh", "sidebands", "Sidebands", "± shaft speed, per harmonic"),
             _AMP,
         ],
     ),
@@ -78,26 +98,32 @@ SOURCE_FORMS: list[tuple[str, str, list[SourceField]]] = [
         [
             _LABEL,
             _SPEED,
-            SourceField("n_elements", "Rolling elements", "int"),
-            SourceField("element_diameter", "Element diameter", "number", "any length unit"),
-            SourceField("pitch_diameter", "Pitch diameter", "number", "same unit"),
-            SourceField("contact_angle_deg", "Contact angle, °", "number"),
-            _HARM,
+            _field("bearing", "n_elements", "Rolling elements"),
+            _field("bearing", "element_diameter", "Element diameter", "any length unit"),
+            _field("bearing", "pitch_diameter", "Pitch diameter", "same unit"),
+            _field("bearing", "contact_angle_deg", "Contact angle, °"),
+            _field("bearing", "harmonics", "Harmonics"),
             _AMP,
         ],
     ),
     (
         "blade_pass",
         "Blade or vane pass",
-        [_LABEL, _SPEED, SourceField("blades", "Blades", "int"), _HARM, _AMP],
+        [
+            _LABEL,
+            _SPEED,
+            _field("blade_pass", "blades", "Blades"),
+            _field("blade_pass", "harmonics", "Harmonics"),
+            _AMP,
+        ],
     ),
     (
         "line",
         "Supply line harmonics",
         [
             _LABEL,
-            SourceField("line_hz", "Line frequency, Hz", "number"),
-            SourceField("harmonics", "Harmonics", "list", "a count, or a list: 1, 3, 5, 7"),
+            _field("line", "line_hz", "Line frequency, Hz"),
+            _field("line", "harmonics", "Harmonics", "a count, or a list: 1, 3, 5, 7"),
             _AMP,
         ],
     ),
@@ -106,12 +132,12 @@ SOURCE_FORMS: list[tuple[str, str, list[SourceField]]] = [
         "Inverter PWM",
         [
             _LABEL,
-            SourceField("carrier_hz", "Carrier (switching), Hz", "number"),
-            SourceField("fundamental_hz", "Fundamental f1, Hz", "number", "or pole pairs + rpm"),
-            SourceField("pole_pairs", "Pole pairs", "int"),
-            SourceField("speed_rpm", "Speed, rpm", "number"),
-            SourceField("carrier_multiples", "Carrier multiples", "int"),
-            SourceField("sidebands", "Sidebands", "int", "± n·f1 per multiple"),
+            _field("pwm", "carrier_hz", "Carrier (switching), Hz"),
+            _field("pwm", "fundamental_hz", "Fundamental f1, Hz", "or pole pairs + rpm"),
+            _field("pwm", "pole_pairs", "Pole pairs"),
+            _field("pwm", "speed_rpm", "Speed, rpm"),
+            _field("pwm", "carrier_multiples", "Carrier multiples"),
+            _field("pwm", "sidebands", "Sidebands", "± n·f1 per multiple"),
             _AMP,
         ],
     ),
@@ -311,14 +337,22 @@ def _parse_tone_list(text: str, st: FormState) -> tuple[list[dict[str, Any]], li
     return tones, line_no
 
 
-def _json_box(st: FormState, name: str, want: type) -> Any:
+def json_field(st: FormState, name: str, label: str) -> tuple[bool, Any]:
+    """The JSON in a text box: (False, None) when empty or unreadable (the error is put
+    beside the box), else (True, value)."""
     text = st.values.get(name, "").strip()
     if not text:
-        return None
+        return False, None
     try:
-        value = json.loads(text)
+        return True, json.loads(text)
     except json.JSONDecodeError as exc:
-        st.add_error(name, FIELD_LABELS[name], f"not valid JSON: {exc.msg} at character {exc.pos}")
+        st.add_error(name, label, f"not valid JSON: {exc.msg} at character {exc.pos}")
+        return False, None
+
+
+def _json_box(st: FormState, name: str, want: type) -> Any:
+    ok, value = json_field(st, name, FIELD_LABELS[name])
+    if not ok:
         return None
     if not isinstance(value, want):
         st.add_error(

@@ -1,7 +1,7 @@
 """The server-rendered pages: home, predict, and saved results.
 
 ``install_pages(app)`` mounts ``/static``, the Plotly bundle route and the page router.
-Each page computes through the same functions as the JSON API (``service.api.compute``),
+Each page computes through the same functions as the JSON API (``service.usecases.fold``),
 builds its figures in :mod:`service.web.figures` and hands them to a template as JSON.
 """
 
@@ -12,24 +12,19 @@ import math
 from collections.abc import Awaitable, Callable
 from typing import Any
 
-import orjson
 from fastapi import APIRouter, FastAPI, Request
 from fastapi.responses import HTMLResponse
 from fastapi.staticfiles import StaticFiles
-from fastapi.templating import Jinja2Templates
-from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
-from markupsafe import Markup
 from starlette.concurrency import run_in_threadpool
 
-from .. import COMPUTATION_VERSION, __version__
-from ..api.caution import CAUTION
-from ..api.compute import fold_payload
-from ..api.problems import Problem
-from ..api.schemas import FoldIn, chain_from_request
+from .. import COMPUTATION_VERSION
 from ..config import Settings
+from ..contract.caution import CAUTION
+from ..contract.fold import FoldIn, chain_from_request
 from ..demo import DEMO_RPM, demo_fold_request
+from ..http.problems import ANSWERABLE, as_problem
+from ..usecases.fold import fold_payload
 from . import assets, figures
-from .diagnose_forms import COMPARE_LABELS, DIAGNOSE_LABELS, READ_KINDS, UNITS, WINDOWS
 from .diagnose_pages import (
     compare_result_context,
     diagnose_result_context,
@@ -38,41 +33,22 @@ from .diagnose_pages import (
 )
 from .diagnose_pages import router as diagnose_router
 from .forms import (
-    FIELD_LABELS,
-    FILTER_FAMILIES,
-    SOURCE_FORMS,
-    SPEED_UNITS,
     FormState,
     attach_problem,
     form_from_request,
     parse_fold_form,
 )
+from .plan_page import plan_result_context
+from .plan_page import router as plan_router
+from .rendering import WAYS_IN, render, templates
 
 __all__ = [
     "CAUTION",
-    "SECURITY_HEADERS",
-    "WAYS_IN",
-    "create_app_with_pages",
     "install_pages",
     "render",
     "router",
     "templates",
 ]
-
-#: DESIGN.md §7, shown wherever a result or verdict is shown, and in the footer.
-
-#: Scripts only from this origin: no inline script, no eval. Plotly sets inline styles on
-#: its SVG from script, which needs 'unsafe-inline' for styles (not for scripts).
-CSP = (
-    "default-src 'self'; script-src 'self'; style-src 'self' 'unsafe-inline'; "
-    "img-src 'self' data: blob:; font-src 'self'; connect-src 'self'; object-src 'none'; "
-    "base-uri 'self'; form-action 'self'; frame-ancestors 'none'"
-)
-SECURITY_HEADERS = {
-    "Content-Security-Policy": CSP,
-    "X-Content-Type-Options": "nosniff",
-    "Referrer-Policy": "same-origin",
-}
 
 #: Hook for saved results: ``app.state.saved_lookup = async fn(id) -> record | None``.
 #: The record needs ``kind``, ``request``, ``result``, ``created_at`` and ``title``
@@ -80,114 +56,7 @@ SECURITY_HEADERS = {
 SavedLookup = Callable[[str], Awaitable[Any]]
 
 
-def _figure_json(fig: dict[str, Any]) -> Markup:
-    """Figure JSON safe inside ``<script type="application/json">``: no ``<``, ``>`` or
-    ``&`` can end the element or open a comment."""
-    text = orjson.dumps(fig).decode()
-    text = text.replace("<", "\\u003c").replace(">", "\\u003e").replace("&", "\\u0026")
-    return Markup(text)
-
-
-def _hz(v: float | None) -> str:
-    if v is None or (isinstance(v, float) and not math.isfinite(v)):
-        return "–"
-    if v >= 10_000:
-        text, unit = f"{v / 1000:,.3f}", "kHz"
-    else:
-        text, unit = f"{v:,.1f}", "Hz"
-    return f"{text.rstrip('0').rstrip('.')} {unit}"
-
-
-def _db(amplitude: float | None) -> str:
-    if amplitude is None or not amplitude > 0:
-        return "–"
-    return f"{20 * math.log10(amplitude):.1f}"
-
-
-def _make_env() -> Environment:
-    env = Environment(
-        loader=FileSystemLoader(str(assets.web_dir("templates"))),
-        autoescape=select_autoescape(default=True, default_for_string=True),
-        undefined=StrictUndefined,
-        trim_blocks=True,
-        lstrip_blocks=True,
-    )
-    env.filters["figjson"] = _figure_json
-    env.filters["hz"] = _hz
-    env.filters["db"] = _db
-    env.globals.update(
-        CAUTION=CAUTION,
-        PLOTLY_URL=assets.PLOTLY_URL,
-        VERSION=__version__,
-        COMPUTATION_VERSION=COMPUTATION_VERSION,
-        FILTER_FAMILIES=FILTER_FAMILIES,
-        SOURCE_FORMS=SOURCE_FORMS,
-        SPEED_UNITS=SPEED_UNITS,
-        FIELD_LABELS=FIELD_LABELS,
-        READ_KINDS=READ_KINDS,
-        UNITS=UNITS,
-        WINDOWS=WINDOWS,
-        DIAGNOSE_LABELS=DIAGNOSE_LABELS,
-        COMPARE_LABELS=COMPARE_LABELS,
-        VERDICT_STYLES=figures.VERDICT_STYLES,
-    )
-    return env
-
-
-templates = Jinja2Templates(env=_make_env())
 router = APIRouter(include_in_schema=False)
-
-#: The ways in, in the order the home page lists them. ``path`` None: not built yet.
-WAYS_IN = [
-    {
-        "key": "predict",
-        "title": "Predict",
-        "path": "/predict",
-        "text": "Before a test: where will each shaft order, gear mesh, bearing tone, blade "
-        "pass, supply harmonic and inverter line land with this sample rate and anti-alias "
-        "filter, and how strong will it be?",
-    },
-    {
-        "key": "diagnose",
-        "title": "Diagnose",
-        "path": "/diagnose",
-        "text": "After a test: which peaks of a measured spectrum are probably aliases, of "
-        "what, and how sure is that?",
-    },
-    {
-        "key": "compare",
-        "title": "Compare two rates",
-        "path": "/compare",
-        "text": "The same signal captured at two sample rates: peaks that stay put are real, "
-        "peaks that move are aliases.",
-    },
-    {
-        "key": "plan",
-        "title": "Plan",
-        "path": "/plan",
-        "text": "Which sample rate, anti-alias filter and analysis lines keep the band of "
-        "interest clean, and how long the record must be.",
-    },
-]
-
-
-def _nav(active: str) -> list[dict[str, Any]]:
-    items = [{"key": "home", "title": "Home", "path": "/"}]
-    items += [w for w in WAYS_IN if w["path"]]
-    items.append({"key": "api", "title": "JSON API", "path": "/docs"})
-    return [{**i, "active": i["key"] == active} for i in items]
-
-
-def render(
-    request: Request, name: str, context: dict[str, Any], status_code: int = 200
-) -> HTMLResponse:
-    """A page with the navigation and the security headers."""
-    keys_on = bool(request.app.state.settings.api_key_set)
-    ctx = {"nav": _nav(context.get("active", "")), "api_keys_on": keys_on, **context}
-    response: HTMLResponse = templates.TemplateResponse(
-        request, name, ctx, status_code=status_code, headers=SECURITY_HEADERS
-    )
-    return response
 
 
 # --------------------------------------------------------------------------- home
@@ -264,7 +133,8 @@ async def _predict_response(
     if req is not None:
         try:
             ctx["result"] = await run_in_threadpool(_compute, req, settings)
-        except Problem as p:
+        except ANSWERABLE as exc:
+            p = as_problem(exc)
             if origin is not None:
                 attach_problem(state, origin, p)
             else:
@@ -301,7 +171,8 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
     lookup: SavedLookup | None = getattr(request.app.state, "saved_lookup", None)
     try:
         record = await lookup(record_id) if lookup is not None else None
-    except Problem as p:
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         return error_page(request, p)
     if record is None:
         return render(
@@ -331,8 +202,6 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
     elif record.kind == "compare":
         ctx["cmp"] = compare_result_context(record.result, {"a": None, "b": None})
     elif record.kind == "plan":
-        from .plan_page import plan_result_context
-
         ctx["plan"] = await run_in_threadpool(plan_result_context, record.request, record.result)
     return render(request, "saved.html", ctx)
 
@@ -343,18 +212,9 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
 def install_pages(app: FastAPI) -> None:
     """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages.
 
-    Calling it again on the same app does nothing."""
-    if getattr(app.state, "pages_installed", False):
-        return
-    app.state.pages_installed = True
+    The app factory calls it once."""
     app.mount("/static", StaticFiles(directory=assets.web_dir("static")), name="static")
     app.include_router(assets.router)
     app.include_router(router)
     app.include_router(diagnose_router)
-
-
-def create_app_with_pages() -> FastAPI:
-    """An app factory with the pages (for ``uvicorn --factory`` and the browser tests)."""
-    from ..api.app import create_app
-
-    return create_app()  # the factory installs the pages itself
+    app.include_router(plan_router)

@@ -7,7 +7,7 @@ error goes back to the form field it came from. The machine sources and the tone
 the predict form's own fields (``forms``), so a bench described once reads the same on
 every page.
 
-``install_plan_page(app)`` adds GET/POST ``/plan`` and POST ``/plan/share``. A saved plan
+Its ``router`` has GET/POST ``/plan`` and POST ``/plan/share``. A saved plan
 (kind ``"plan"``) is drawn by the saved-result page from ``plan_result_context`` and the
 template partial ``_plan_result.html``.
 """
@@ -21,18 +21,28 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from fastapi import APIRouter, FastAPI, Request
+from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
 
-from ..api.plan_compute import PlanProblem, plan_payload
-from ..api.plan_schemas import PlanIn, demo_plan_request
-from ..api.problems import Problem
 from ..config import Settings
-from .diagnose_pages import error_page, save_result
-from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, form_from_request
+from ..contract.plan import PlanIn
+from ..demo import demo_plan_request
+from ..http.problems import ANSWERABLE, Problem, as_problem
+from ..usecases.plan import plan_payload
+from .diagnose_pages import error_page, read_share_form, recompute_shared, save_result
+from .forms import (
+    FIELD_LABELS,
+    FormState,
+    _build_request,
+    _locate,
+    _Origin,
+    form_from_request,
+    json_field,
+)
 from .plan_figures import runup_figure
+from .rendering import render
 
 __all__ = [
     "MAX_TABLE_CROSSINGS",
@@ -40,7 +50,6 @@ __all__ = [
     "PlanForm",
     "attach_plan_problem",
     "blank_plan_form",
-    "install_plan_page",
     "parse_plan_form",
     "plan_form_from_request",
     "plan_result_context",
@@ -206,13 +215,8 @@ def _order_or_label(text: str) -> str | float:
 
 
 def _json_list(st: FormState, name: str) -> list[Any] | None:
-    text = st.values.get(name, "").strip()
-    if not text:
-        return None
-    try:
-        value = json.loads(text)
-    except json.JSONDecodeError as exc:
-        st.add_error(name, PLAN_LABELS[name], f"not valid JSON: {exc.msg} at character {exc.pos}")
+    ok, value = json_field(st, name, PLAN_LABELS[name])
+    if not ok:
         return None
     if isinstance(value, dict):
         value = [value]
@@ -366,7 +370,7 @@ def attach_plan_problem(f: PlanForm, p: Problem) -> None:
     """Show a problem the computation raised on the form; keep a plan's suggestions."""
     fid, words = _locate_plan(_loc_of(p.field or ""), f.origin)
     detail = p.detail
-    if isinstance(p, PlanProblem):
+    if p.suggestions is not None:
         f.suggestions = list(p.suggestions)
         detail = detail.split(". What would make it possible:")[0]
     f.state.add_error(fid, words, detail)
@@ -446,8 +450,6 @@ def plan_result_context(
 def _render(
     request: Request, name: str, ctx: dict[str, Any], status_code: int = 200
 ) -> HTMLResponse:
-    from .pages import render
-
     return render(request, name, ctx, status_code=status_code)
 
 
@@ -487,7 +489,8 @@ async def _answer(request: Request, f: PlanForm, demo: bool = False) -> HTMLResp
     if f.req is not None:
         try:
             result = await run_in_threadpool(_compute, f.req, settings, True)
-        except Problem as p:
+        except ANSWERABLE as exc:
+            p = as_problem(exc)
             attach_plan_problem(f, p)
     return await _page(request, f, result, demo=demo)
 
@@ -524,35 +527,14 @@ async def plan_share(request: Request) -> HTMLResponse:
     """Save a plan under a link: its request travels in the form and is recomputed."""
     settings: Settings = request.app.state.settings
     try:
-        try:
-            form = await request.form(
-                max_files=0, max_fields=8, max_part_size=settings.max_body_bytes
-            )
-        except Exception as exc:  # malformed or oversized form
-            raise Problem(400, f"the form cannot be read: {exc}") from exc
+        form = await read_share_form(request)
         title = str(form.get("title", "")).strip()[:200] or None
-        try:
-            stored, result = await run_in_threadpool(
-                _share_plan, str(form.get("request", "")), settings
-            )
-        except ValidationError as exc:
-            msg = exc.errors()[0]["msg"]
-            raise Problem(422, f"the saved request is not valid: {msg}") from None
-        saved = await save_result(request, "plan", stored, result, None, title)
-    except Problem as p:
+        parts = await recompute_shared(_share_plan, str(form.get("request", "")), settings)
+        saved = await save_result(request, "plan", parts, title)
+    except ANSWERABLE as exc:
+        p = as_problem(exc)
         return error_page(request, p)
     return _render(request, "shared.html", {"active": "", "saved": saved, "kind": "plan"})
 
 
 # --------------------------------------------------------------------------- install
-
-
-def install_plan_page(app: FastAPI) -> None:
-    """Add the plan page (GET/POST /plan) and its share action (POST /plan/share).
-
-    The app must have the pages installed (``install_pages``: static files, templates'
-    navigation). Calling it again on the same app does nothing."""
-    if getattr(app.state, "plan_page_installed", False):
-        return
-    app.state.plan_page_installed = True
-    app.include_router(router)

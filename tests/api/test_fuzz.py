@@ -16,7 +16,7 @@ import schemathesis
 from hypothesis import HealthCheck, Phase, settings
 from schemathesis import checks
 
-from service.api.app import create_app
+from service.app import create_app
 from service.config import Settings
 
 EXAMPLES_PER_OPERATION = 30

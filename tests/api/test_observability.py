@@ -12,9 +12,9 @@ import pytest
 from fastapi.testclient import TestClient
 from prometheus_client.parser import text_string_to_metric_families
 
-from service.api.app import create_app
-from service.api.observability import ACCESS_LOGGER
+from service.app import create_app
 from service.config import Settings
+from service.http.observability import ACCESS_LOGGER
 
 FOLD = {"sample_rate_hz": 1000, "tones": [{"label": "a", "freq_hz": 700}]}
 SAVE = {"kind": "fold", "request": FOLD}

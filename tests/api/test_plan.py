@@ -19,12 +19,14 @@ from fastapi.testclient import TestClient
 from numpy.typing import NDArray
 from scipy import signal
 
-from service.api.app import create_app
-from service.api.compute import tones_from_request
-from service.api.plan_schemas import PLAN_EXAMPLES, PlanIn, demo_plan_request
+from service.api.examples import PLAN_EXAMPLES
+from service.app import create_app
 from service.config import Settings
+from service.contract.plan import PlanIn
 from service.core.folding import fold
 from service.core.tones import ToneSet
+from service.demo import demo_plan_request
+from service.usecases.fold import tones_from_request
 
 PROBLEM = "application/problem+json"
 URL = "/api/v1/plan"
@@ -131,7 +133,7 @@ class TestPlanDemo:
             "band_loss_db",
         ):
             assert key in rec
-        assert rec["filter"]["name"] and rec["chain"][-1]["type"] == "sample"
+        assert rec["filter"]["name"] and rec["chain"][-1]["stage"] == "sample"
         assert out["caution"].startswith("An alias verdict is a hypothesis")
         assert out["computation_version"] and out["residual_risk"]
 
@@ -507,3 +509,36 @@ class TestPlanOpenAPI:
         r = _post(plan_client, PLAN_EXAMPLES[name]["value"])
         assert r.status_code == 200, r.text
         assert (r.json()["runup"] is not None) == ("runup" in PLAN_EXAMPLES[name]["value"])
+
+
+class TestRecommendedChain:
+    """The recommended chain is written in the request's chain model (stages say
+    ``stage``), so it can be pasted into /api/v1/fold as it is."""
+
+    def test_basic(self, plan_client: TestClient) -> None:
+        rec = _post(plan_client, demo_plan_request()).json()["recommendation"]
+        assert [s["stage"] for s in rec["chain"]][-1] == "sample"
+        body = {"chain": rec["chain"], "tones": [{"label": "a", "freq_hz": 7300.0}]}
+        r = plan_client.post("/api/v1/fold", json=body)
+        assert r.status_code == 200, r.text
+        out = r.json()
+        assert out["sample_rate_hz"] == rec["sample_rate_hz"]
+        # Reference: fold(f, fs) = |f - fs*round(f/fs)| by hand for the recommended rate
+        # (12.8 kS/s: 7.3 kHz lands at 5.5 kHz), not through the service's own fold().
+        fs = rec["sample_rate_hz"]
+        assert out["tones"][0]["apparent_hz"] == pytest.approx(
+            abs(7300.0 - fs * round(7300.0 / fs))
+        )
+
+    def test_edges(self, plan_client: TestClient) -> None:
+        # The stage list is exactly what the fold request accepts: no ``type`` key left.
+        rec = _post(plan_client, PLAN_EXAMPLES["carrier_only"]["value"]).json()["recommendation"]
+        assert all("type" not in s for s in rec["chain"])
+        r = plan_client.post(
+            "/api/v1/diagnose",
+            json={
+                "chain": rec["chain"],
+                "spectrum": {"freq_hz": list(range(32)), "amplitude": [1.0] * 31 + [5.0]},
+            },
+        )
+        assert r.status_code == 200, r.text

@@ -11,7 +11,7 @@ import pytest
 from fastapi.testclient import TestClient
 
 from service import COMPUTATION_VERSION
-from service.api.app import create_app
+from service.app import create_app
 from service.config import Settings
 from service.demo import demo_fold_request
 

@@ -16,10 +16,10 @@ import pytest
 from fastapi.responses import PlainTextResponse
 from fastapi.testclient import TestClient
 
-from service.api import security
-from service.api.app import create_app
-from service.api.security import RateLimit, key_matches, needs_api_key
+from service.app import create_app
 from service.config import Settings
+from service.http import security
+from service.http.security import RateLimit, key_matches, needs_api_key
 
 PROBLEM = "application/problem+json"
 FOLD = {"sample_rate_hz": 1000, "tones": [{"label": "a", "freq_hz": 700}]}

@@ -42,7 +42,7 @@ def server_url(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
         sys.executable,
         "-m",
         "uvicorn",
-        "service.web.pages:create_app_with_pages",
+        "service.app:create_app",
         "--factory",
         "--host",
         "127.0.0.1",

@@ -11,16 +11,14 @@ from typing import Any
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.app import create_app
+from service.app import create_app
 from service.config import Settings
 from service.web.forms import FormState
-from service.web.pages import install_pages
 
 
 @pytest.fixture
 def page_client(settings: Settings) -> Iterator[TestClient]:
-    app = create_app(settings)
-    install_pages(app)
+    app = create_app(settings)  # the factory installs the pages
     with TestClient(app, raise_server_exceptions=True) as c:
         yield c
 

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.app import create_app
+from service.app import create_app
 from service.config import Settings
 from service.demo import demo_fold_request
 from service.storage import StoreUnavailable
@@ -186,7 +186,10 @@ class TestDiagnosePage:
         text = _sampled_spectrum(10_000.0, [(1000.0, 1.0)])
         r = page_client.post("/diagnose", data={"sample_rate_hz": "-5", "spectrum_text": text})
         assert r.status_code == 422
-        assert "Sample rate (sample_rate_hz): Input should be greater than 0" in _summary(r.text)
+        assert (
+            "Sample rate (sample_rate_hz): Input should be greater than or equal to 1"
+            in _summary(r.text)
+        )
         # The spectrum reaches 5 kHz: a 4 kS/s rate cannot have made it (from the computation).
         r = page_client.post("/diagnose", data={"sample_rate_hz": "4000", "spectrum_text": text})
         assert r.status_code == 422

@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from service.api.compute import fold_payload
-from service.api.schemas import FoldIn, chain_from_request
 from service.config import Settings
+from service.contract.fold import FoldIn, chain_from_request
+from service.usecases.fold import fold_payload
 from service.web.figures import (
     chain_gain_curve,
     folding_diagram,

@@ -85,7 +85,10 @@ class TestPredictPage:
     def test_errors(self, page_client: TestClient) -> None:
         r = page_client.post("/predict", data={"sample_rate_hz": "-5", "tone_list": "a, 100, 1"})
         assert r.status_code == 422 and r.headers["content-type"].startswith(HTML)
-        assert "Sample rate (sample_rate_hz): Input should be greater than 0" in _summary(r.text)
+        assert (
+            "Sample rate (sample_rate_hz): Input should be greater than or equal to 1"
+            in _summary(r.text)
+        )
         assert re.search(r'id="sample_rate_hz"[^>]*aria-invalid="true"', r.text)
         assert 'value="-5"' in r.text  # what was typed comes back
         r = page_client.post("/predict", data={"sample_rate_hz": "fast", "tone_list": "a, 1"})

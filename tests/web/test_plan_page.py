@@ -13,13 +13,13 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
-from service.api.app import create_app
-from service.api.caution import CAUTION
-from service.api.plan_schemas import demo_plan_request
+from service.app import create_app
 from service.config import Settings
+from service.contract.caution import CAUTION
+from service.demo import demo_plan_request
 from service.web.pages import templates
 from service.web.plan_figures import runup_figure
-from service.web.plan_page import install_plan_page, plan_form_from_request, plan_result_context
+from service.web.plan_page import plan_form_from_request, plan_result_context
 
 from .conftest import assert_strict_page, controls_without_label, figures_of, form_data, parse_page
 
@@ -33,7 +33,6 @@ FOLDING_ORDER = 51.0
 @pytest.fixture
 def plan_client(settings: Settings) -> Iterator[TestClient]:
     app = create_app(settings)
-    install_plan_page(app)
     with TestClient(app, raise_server_exceptions=True) as c:
         yield c
 

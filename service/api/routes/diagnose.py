@@ -2,20 +2,22 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 from fastapi import APIRouter, Query, Request
 from starlette.concurrency import run_in_threadpool
-from starlette.datastructures import UploadFile
 
-from ... import COMPUTATION_VERSION, __version__
-from ..bodies import body_openapi, parse_json_body, read_body
-from ..diagnose_schemas import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
-from ..diagnosis import Measured, Upload, compare_payload, diagnose_payload
+from ...contract.diagnose import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
+from ...http.bodies import body_openapi, is_multipart, parse_json_body, read_body, read_multipart
+from ...http.problems import Problem
+from ...http.responses import FastJSON
+from ...http.store_access import StoreAccess
+from ...usecases.compare import compare_payload
+from ...usecases.diagnose import diagnose_payload
+from ...usecases.measure import Upload
+from ...usecases.save import saved_parts
 from ..examples import COMPARE_EXAMPLES, DIAGNOSE_EXAMPLES
-from ..problems import Problem
-from ..responses import FastJSON
-from ..store_access import StoreAccess
 
 router = APIRouter(prefix="/api/v1", tags=["diagnose"])
 
@@ -49,99 +51,25 @@ def _doc(model: Any, examples: dict[str, Any], files: dict[str, Any]) -> dict[st
     return out
 
 
-async def _multipart(
-    request: Request, names: tuple[str, ...], max_bytes: int
-) -> tuple[bytes, dict[str, Upload]]:
-    declared = request.headers.get("content-length")
-    if declared is not None and declared.isdigit() and int(declared) > max_bytes:
-        raise Problem(
-            413,
-            f"the upload is {int(declared)} bytes; the limit is {max_bytes}",
-            field="file",
-            value=int(declared),
-            limit=max_bytes,
-        )
-    try:
-        form = await request.form(max_files=len(names), max_fields=4, max_part_size=1024 * 1024)
-    except Exception as exc:  # malformed multipart, too many parts, part too large
-        raise Problem(400, f"the multipart form cannot be read: {exc}", field="body") from exc
-    try:
-        uploads: dict[str, Upload] = {}
-        for key in form:
-            if key not in (*names, "request"):
-                raise Problem(
-                    422,
-                    f"unexpected form field {key!r}; expected {', '.join((*names, 'request'))}",
-                    field=key,
-                )
-        for name in names:
-            item = form.get(name)
-            if item is None:
-                continue
-            if not isinstance(item, UploadFile):
-                raise Problem(422, f"form field {name!r} must be a file", field=name)
-            if item.size is not None and item.size > max_bytes:
-                raise Problem(
-                    413,
-                    f"{name} is {item.size} bytes; the limit is {max_bytes}",
-                    field=name,
-                    value=item.size,
-                    limit=max_bytes,
-                )
-            data = await item.read()
-            if len(data) > max_bytes:
-                raise Problem(
-                    413,
-                    f"{name} is over the limit of {max_bytes} bytes",
-                    field=name,
-                    limit=max_bytes,
-                )
-            if not data:
-                raise Problem(422, f"{name} is empty", field=name)
-            uploads[name] = Upload(data=data, filename=item.filename or name)
-        raw = form.get("request")
-        if isinstance(raw, UploadFile):
-            raw_bytes = await raw.read()
-        else:
-            raw_bytes = (raw or "{}").encode()
-        return raw_bytes, uploads
-    finally:
-        await form.close()
-
-
-def _is_multipart(request: Request) -> bool:
-    return request.headers.get("content-type", "").startswith("multipart/form-data")
-
-
-async def _save(
+async def _answer(
     request: Request,
     kind: str,
     req: Any,
-    payload: dict[str, Any],
-    spectrum: Measured | None,
+    compute: Callable[..., tuple[dict[str, Any], Any]],
+    files: Any,
+    save: bool,
     title: str | None,
-) -> dict[str, Any]:
-    access: StoreAccess = request.app.state.store_access
-    side = {"spectrum", "time_record"}
-    exclude: Any = side if kind == "diagnose" else {"a": side, "b": side}
-    stored_request = req.model_dump(mode="json", exclude_none=True, exclude=exclude)
-    arrays = (spectrum.freq_hz, spectrum.amplitude) if spectrum is not None else None
-    rid, token = await access.call(
-        access.store.create,
-        kind,
-        stored_request,
-        payload,
-        COMPUTATION_VERSION,
-        __version__,
-        spectrum=arrays,
-        title=title,
-    )
-    return {
-        "id": rid,
-        "delete_token": token,
-        "url": f"/d/{rid}",
-        "api_url": f"/api/v1/diagnoses/{rid}",
-    }
+) -> FastJSON:
+    """Compute off the event loop; with ``save``, store the result and add its link."""
+    settings = request.app.state.settings
+    payload, measured = await run_in_threadpool(compute, req, settings, files)
+    if save:
+        # A comparison keeps its peaks, not its spectra (one spectrum per record).
+        spectrum = (measured.freq_hz, measured.amplitude) if kind == "diagnose" else None
+        access: StoreAccess = request.app.state.store_access
+        parts = saved_parts(kind, req, payload, spectrum)
+        payload["saved"] = await access.save(kind, parts, title)
+    return FastJSON(payload)
 
 
 @router.post(
@@ -162,18 +90,15 @@ async def diagnose(
 ) -> FastJSON:
     settings = request.app.state.settings
     upload = None
-    if _is_multipart(request):
-        raw, files = await _multipart(request, ("file",), settings.max_upload_bytes)
+    if is_multipart(request):
+        raw, files = await read_multipart(request, ("file",), settings.max_upload_bytes)
         upload = files.get("file")
         if upload is None:
             raise Problem(422, "the multipart form needs a file field 'file'", field="file")
     else:
         raw = await read_body(request, settings.max_body_bytes)
     req = parse_json_body(DiagnoseIn, raw)
-    payload, measured = await run_in_threadpool(diagnose_payload, req, settings, upload)
-    if save:
-        payload["saved"] = await _save(request, "diagnose", req, payload, measured, title)
-    return FastJSON(payload)
+    return await _answer(request, "diagnose", req, diagnose_payload, upload, save, title)
 
 
 @router.post(
@@ -208,13 +133,10 @@ async def compare(
 ) -> FastJSON:
     settings = request.app.state.settings
     uploads: dict[str, Upload] = {}
-    if _is_multipart(request):
-        raw, files = await _multipart(request, ("file_a", "file_b"), settings.max_upload_bytes)
+    if is_multipart(request):
+        raw, files = await read_multipart(request, ("file_a", "file_b"), settings.max_upload_bytes)
         uploads = {k[-1]: v for k, v in files.items()}
     else:
         raw = await read_body(request, settings.max_body_bytes)
     req = parse_json_body(CompareIn, raw)
-    payload, _ = await run_in_threadpool(compare_payload, req, settings, uploads)
-    if save:
-        payload["saved"] = await _save(request, "compare", req, payload, None, title)
-    return FastJSON(payload)
+    return await _answer(request, "compare", req, compare_payload, uploads, save, title)

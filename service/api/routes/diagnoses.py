@@ -2,56 +2,21 @@
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal
+from typing import Annotated
 
 from fastapi import APIRouter, Header, Query, Request, Response
-from pydantic import BaseModel, ConfigDict, Field
 from starlette.concurrency import run_in_threadpool
 
-from ... import COMPUTATION_VERSION, __version__
-from ..deps import SettingsDep
+from ... import COMPUTATION_VERSION
+from ...contract.saved import SavedOut, SavedRecordOut, SaveIn
+from ...http.deps import SettingsDep
+from ...http.problems import Problem
+from ...http.responses import FastJSON
+from ...http.store_access import StoreAccess
+from ...usecases.save import SAVEABLE, saved_record, validate_for_kind
 from ..examples import SAVE_EXAMPLES
-from ..problems import Problem
-from ..responses import FastJSON
-from ..saving import SAVEABLE, validate_for_kind
-from ..store_access import StoreAccess
 
 router = APIRouter(prefix="/api/v1/diagnoses", tags=["saved results"])
-
-
-class SaveIn(BaseModel):
-    model_config = ConfigDict(extra="forbid")
-
-    kind: Literal["fold", "diagnose", "compare", "plan"] = Field(
-        description="Which computation: the request is what that endpoint takes"
-    )
-    request: dict[str, Any] = Field(description="The request body of that endpoint")
-    title: str | None = Field(None, max_length=200, description="A short title for the link")
-
-
-class SavedOut(BaseModel):
-    id: str = Field(description="Unguessable id (192 random bits)")
-    delete_token: str = Field(description="Keep this: it is the only way to delete the result")
-    url: str = Field(description="Page a colleague can open")
-    api_url: str
-    kind: str
-    computation_version: str
-    result: dict[str, Any]
-
-
-class SavedRecordOut(BaseModel):
-    id: str
-    kind: str
-    title: str | None
-    created_at: str
-    computation_version: str = Field(description="Version of the computation that made it")
-    app_version: str
-    current_computation_version: str
-    request: dict[str, Any]
-    result: dict[str, Any]
-    spectrum: dict[str, list[float]] | None = Field(
-        None, description="The measured spectrum, if the result has one (freq_hz, amplitude)"
-    )
 
 
 def _access(request: Request) -> StoreAccess:
@@ -78,49 +43,14 @@ async def save(
     req = validate_for_kind(body.kind, body.request)
     _, compute = SAVEABLE[body.kind]
     parts = await run_in_threadpool(compute, req, settings)
-    access = _access(request)
-    try:
-        rid, token = await access.call(
-            access.store.create,
-            body.kind,
-            parts.request,
-            parts.result,
-            COMPUTATION_VERSION,
-            __version__,
-            spectrum=parts.spectrum,
-            title=body.title,
-        )
-    except ValueError as exc:
-        raise Problem(413, str(exc), field="request") from exc
+    link = await _access(request).save(body.kind, parts, body.title)
     out = {
-        "id": rid,
-        "delete_token": token,
-        "url": f"/d/{rid}",
-        "api_url": f"/api/v1/diagnoses/{rid}",
+        **link,
         "kind": body.kind,
         "computation_version": COMPUTATION_VERSION,
         "result": parts.result,
     }
-    return FastJSON(out, status_code=201, headers={"Location": f"/api/v1/diagnoses/{rid}"})
-
-
-def record_to_dict(rec: Any, include_spectrum: bool = True) -> dict[str, Any]:
-    spectrum = None
-    if include_spectrum and rec.spectrum is not None:
-        f, a = rec.spectrum
-        spectrum = {"freq_hz": f.tolist(), "amplitude": a.tolist()}
-    return {
-        "id": rec.id,
-        "kind": rec.kind,
-        "title": rec.title,
-        "created_at": rec.created_at.isoformat(),
-        "computation_version": rec.computation_version,
-        "app_version": rec.app_version,
-        "current_computation_version": COMPUTATION_VERSION,
-        "request": rec.request,
-        "result": rec.result,
-        "spectrum": spectrum,
-    }
+    return FastJSON(out, status_code=201, headers={"Location": link["api_url"]})
 
 
 def _not_found(rid: str) -> Problem:
@@ -142,7 +72,7 @@ async def read(
     rec = await access.call(access.store.get, rid)
     if rec is None:
         raise _not_found(rid)
-    return FastJSON(record_to_dict(rec, include_spectrum=spectrum))
+    return FastJSON(saved_record(rec, include_spectrum=spectrum))
 
 
 @router.delete(

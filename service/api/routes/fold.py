@@ -2,15 +2,15 @@
 
 from __future__ import annotations
 
-import orjson
 from fastapi import APIRouter, Request, Response
 from starlette.concurrency import run_in_threadpool
 
 from ...config import Settings
-from ..bodies import body_openapi, parse_json_body, read_body
-from ..compute import fold_payload
+from ...contract.fold import FoldIn, FoldOut
+from ...http.bodies import body_openapi, parse_json_body, read_body
+from ...http.responses import json_bytes
+from ...usecases.fold import fold_payload
 from ..examples import FOLD_EXAMPLES
-from ..schemas import FoldIn, FoldOut
 
 router = APIRouter(prefix="/api/v1", tags=["predict"])
 
@@ -24,7 +24,7 @@ def _tone_count(req: FoldIn) -> int:
 
 
 def _render(req: FoldIn, settings: Settings) -> bytes:
-    return orjson.dumps(fold_payload(req, settings), option=orjson.OPT_SERIALIZE_NUMPY)
+    return json_bytes(fold_payload(req, settings))
 
 
 @router.post(

@@ -8,7 +8,7 @@ from fastapi import APIRouter, Request
 from starlette.concurrency import run_in_threadpool
 
 from ... import COMPUTATION_VERSION, __version__
-from ..problems import Problem
+from ...http.problems import Problem
 
 router = APIRouter(tags=["health"])
 log = logging.getLogger("foldwise.health")

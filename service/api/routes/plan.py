@@ -2,22 +2,23 @@
 
 from __future__ import annotations
 
-import orjson
 from fastapi import APIRouter, Request, Response
 from starlette.concurrency import run_in_threadpool
 
 from ...config import Settings
-from ..bodies import body_openapi, parse_json_body, read_body
-from ..deps import SettingsDep
-from ..plan_compute import plan_payload
-from ..plan_schemas import PLAN_EXAMPLES, PlanIn, PlanOut
-from ..problems import PROBLEM_JSON
+from ...contract.plan import PlanIn, PlanOut
+from ...http.bodies import body_openapi, parse_json_body, read_body
+from ...http.deps import SettingsDep
+from ...http.problems import PROBLEM_JSON
+from ...http.responses import json_bytes
+from ...usecases.plan import plan_payload
+from ..examples import PLAN_EXAMPLES
 
 router = APIRouter(prefix="/api/v1", tags=["plan"])
 
 
 def _render(req: PlanIn, settings: Settings) -> bytes:
-    return orjson.dumps(plan_payload(req, settings), option=orjson.OPT_SERIALIZE_NUMPY)
+    return json_bytes(plan_payload(req, settings))
 
 
 @router.post(

@@ -1,0 +1,1 @@
+"""The pydantic request and result models shared by the API, the pages and the CLI."""

@@ -1,0 +1,62 @@
+"""The use-cases' errors: :class:`InputError` placed on a request field.
+
+A use-case never answers HTTP: it raises :class:`RequestError` (an
+:class:`~service.core.errors.InputError` whose ``field`` is the request's path, such as
+``sources[2]`` or ``spectrum.amplitude``), and the edges render it — a problem+json, a
+message beside a form field, or a CLI line and exit status.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
+
+from ..core.errors import InputError
+
+__all__ = ["InputError", "PlanImpossibleError", "RequestError", "input_errors"]
+
+
+class RequestError(InputError):
+    """An input error whose ``field`` already names the request field.
+
+    ``title`` and ``kind`` refine the problem type an API adapter answers with; the
+    default comes from ``status``.
+    """
+
+    title: str | None = None
+    kind: str | None = None
+
+    def __init__(self, message: str, *, status: int = 422, **kw: Any) -> None:
+        super().__init__(message, status=status, **kw)
+        # Values keep the type they were given: answers show them as before.
+        self.value = kw.get("value")
+        self.limit = kw.get("limit")
+
+    @property
+    def detail(self) -> str:
+        return str(self)
+
+
+class PlanImpossibleError(RequestError):
+    """No offered setup meets the plan's requirements; ``suggestions`` say what would."""
+
+    title = "No setup meets the requirements"
+    kind = "plan-impossible"
+
+    def __init__(self, message: str, suggestions: list[str], *, field: str) -> None:
+        super().__init__(message, field=field, code="plan_impossible")
+        self.suggestions = suggestions
+
+
+@contextmanager
+def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
+    """A ``ValueError`` from the core or the readers becomes a :class:`RequestError`
+    naming ``field``; errors already placed on a request field pass unchanged."""
+    try:
+        yield
+    except RequestError:
+        raise
+    except ValueError as exc:
+        code = exc.code if isinstance(exc, InputError) else "invalid"
+        raise RequestError(str(exc), field=field, status=status, code=code) from exc
