@@ -33,8 +33,9 @@ FloatArray = NDArray[np.float64]
 
 #: Largest true frequency, as a multiple of the sample rate, that is folded. Beyond it
 #: ``f / fs`` keeps too few fractional digits in double precision (machine epsilon
-#: 2.2e-16 × 1e9 ≈ 2e-7 of fs) for the apparent frequency and zone to mean anything.
-MAX_FOLD_RATIO = 1e9
+#: 2.2e-16 × 1e12 ≈ 2e-4 of fs) for the apparent frequency to mean anything. The API's
+#: own bounds (rates from 1 S/s, tones up to 1e10 Hz) stay well inside it.
+MAX_FOLD_RATIO = 1e12
 
 
 def check_fold_range(f: FloatArray, sample_rate_hz: float, name: str = "freq_hz") -> None:

@@ -22,6 +22,7 @@ from ._common import (
     to_bytes,
 )
 from .npy import read_npy
+from .spectrum import FREQ_NAME  # the one definition of a frequency column name
 from .text import read_table, sniff_table
 from .wav import read_wav
 
@@ -204,14 +205,12 @@ def guess_text_kind(data: bytes) -> str:
     commas are handled as the readers handle them. Content that is not a table is
     called a spectrum, so the spectrum reader words the error.
     """
-    from .spectrum import _FREQ_NAME  # the one definition of a frequency column name
-
     shape = sniff_table(data)
     if shape is None:
         return "spectrum"
     columns, names = shape
     if _time_column(names) is not None:
         return "time_record"
-    if any(n and _FREQ_NAME.search(n) for n in names):
+    if any(n and FREQ_NAME.search(n) for n in names):
         return "spectrum"
     return "time_record" if columns == 1 else "spectrum"

@@ -86,7 +86,7 @@ class ParsedSpectrum:
 
 _WHAT = "frequency and amplitude"
 _DB = re.compile(r"(?<![a-z])db", re.IGNORECASE)
-_FREQ_NAME = re.compile(
+FREQ_NAME = re.compile(
     r"freq|frequenz|fr[ée]quence|frecuencia|hz\b|cpm\b|rpm\b|^f$|^f\s*[\s(\[/_]|^x$|^x\s*[(\[]",
     re.IGNORECASE,
 )
@@ -213,7 +213,7 @@ def _choose_columns(
             code="too_few_columns",
             remedy="Give the frequency in the first column and the amplitude in another",
         )
-    freq_named = [i for i, nm in enumerate(names) if nm and _FREQ_NAME.search(nm)]
+    freq_named = [i for i, nm in enumerate(names) if nm and FREQ_NAME.search(nm)]
     freq_named = [i for i in freq_named if not _AMP_NAME.search(names[i]) or i == 0]
     fcol = freq_named[0] if freq_named else 0
     if amplitude_column is not None:
