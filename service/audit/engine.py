@@ -150,7 +150,10 @@ def run_audit(
 
         n_workers = max(1, len(client.scheduler_info()["workers"]))
         done = store.done_keys()
-        done_ref: Any = client.scatter(frozenset(done), broadcast=True) if done else frozenset()
+        # One copy of the done-index on every worker (a list, so the set stays whole).
+        done_ref: Any = (
+            client.scatter([frozenset(done)], broadcast=True)[0] if done else frozenset()
+        )
         del done
         pending = _chunks(to_run, chunk_size)
         limit = window or 4 * n_workers
