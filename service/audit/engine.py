@@ -73,7 +73,7 @@ def run_audit(
     progress: bool = True,
     *,
     settings: Settings | None = None,
-    chunk_size: int = 4,
+    chunk_size: int = 8,
     window: int | None = None,
     flush_rows: int = 256,
     memory_limit: str = "1GiB",

@@ -31,6 +31,7 @@ from __future__ import annotations
 import hashlib
 import json
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -130,7 +131,7 @@ def _read_table(path: Path) -> pd.DataFrame:
     return pd.read_csv(path, dtype={"path": str, "chain_id": str, "sources_id": str})
 
 
-def _cell(row: pd.Series, name: str) -> Any:
+def _cell(row: Mapping[str, Any], name: str) -> Any:
     v = row.get(name)
     if v is None or (isinstance(v, float) and math.isnan(v)) or v is pd.NA:
         return None
@@ -171,7 +172,7 @@ def _scaled_sources(entry: Any, speed_rpm: float | None, sid: str) -> list[dict[
     return out
 
 
-def build_request(row: pd.Series, lib: Library) -> tuple[dict[str, Any], str]:
+def build_request(row: Mapping[str, Any], lib: Library) -> tuple[dict[str, Any], str]:
     """The diagnose request (without the data) for one manifest row, and its setup name.
 
     Raises ValueError naming the column and value when the row cannot be resolved.
@@ -245,7 +246,7 @@ def read_manifest(manifest: str | Path, library: Library, folder: str | Path) ->
     base = Path(folder)
     tasks = []
     for i, row in enumerate(table.to_dict("records")):
-        s = pd.Series(row, dtype=object)
+        s = row
         rec = str(_cell(s, "path") or "")
         try:
             channel = int(_cell(s, "channel") or 0)
