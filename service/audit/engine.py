@@ -16,6 +16,9 @@ from itertools import islice
 from pathlib import Path
 from typing import Any
 
+import pyarrow as pa
+import pyarrow.compute as pc
+
 from ..config import Settings, get_settings
 from .library import AuditTask, read_library, read_manifest
 from .results import PartStore
@@ -39,6 +42,12 @@ class AuditSummary:
     elapsed_s: float
     peaks_path: Path
     recordings_path: Path
+
+
+def _chunk_size(rows: int, workers: int) -> int:
+    """Rows per task: large enough that scheduling costs little beside the diagnosis,
+    small enough that every worker gets several tasks and a lost one costs little."""
+    return max(1, min(32, rows // (8 * workers)))
 
 
 def _chunks(tasks: list[AuditTask], size: int) -> Iterator[list[AuditTask]]:
@@ -73,7 +82,7 @@ def run_audit(
     progress: bool = True,
     *,
     settings: Settings | None = None,
-    chunk_size: int = 8,
+    chunk_size: int | None = None,
     window: int | None = None,
     flush_rows: int = 256,
     memory_limit: str = "1GiB",
@@ -92,7 +101,7 @@ def run_audit(
     workers : size of the local cluster.
     progress : show a progress bar (tqdm, on stderr).
     settings : limits per recording (default: the service's settings).
-    chunk_size : rows per Dask task.
+    chunk_size : rows per Dask task (default: up to 32, at least 8 tasks per worker).
     window : chunks in flight at once (default 4 per worker).
     flush_rows : finished rows kept in memory before they are written to a part file.
     memory_limit : per worker of the local cluster (Dask pauses, then restarts, above it).
@@ -108,19 +117,16 @@ def run_audit(
     keys: dict[int, str] = {}
     errors: dict[int, dict[str, Any]] = {}
     buf_sum: list[dict[str, Any]] = []
-    buf_peaks: list[dict[str, list]] = []
+    buf_peaks: list[Any] = []  # Arrow tables, one per chunk
 
     def record(res: dict[str, Any]) -> None:
         row = res["row"]
-        if row in status:  # a chunk run twice after a lost worker: count the row once
-            return
         status[row] = res["status"]
         keys[row] = res["key"]
         if res["status"] == "error":
             errors[row] = res["summary"]
         elif res["status"] == "computed":
             buf_sum.append(res["summary"])
-            buf_peaks.append(res["peaks"])
 
     def flush() -> None:
         store.write_part(buf_sum, buf_peaks)
@@ -155,7 +161,7 @@ def run_audit(
             client.scatter([frozenset(done)], broadcast=True)[0] if done else frozenset()
         )
         del done
-        pending = _chunks(to_run, chunk_size)
+        pending = _chunks(to_run, chunk_size or _chunk_size(len(to_run), n_workers))
         limit = window or 4 * n_workers
         futures: dict[Any, list[AuditTask]] = {}
 
@@ -171,8 +177,9 @@ def run_audit(
         for fut in ac:
             chunk = futures.pop(fut)
             try:
-                results = fut.result()
+                results, peaks = fut.result()
             except Exception as exc:  # e.g. a chunk that kept killing workers
+                peaks = None
                 results = [
                     {
                         "row": t.row,
@@ -183,8 +190,15 @@ def run_audit(
                     for t in chunk
                 ]
             fut.release()
-            for res in results:
+            # Each row counted once, even if its chunk were ever delivered twice.
+            fresh = [r for r in results if r["row"] not in status]
+            for res in fresh:
                 record(res)
+            if peaks is not None and peaks.num_rows:
+                if len(fresh) < len(results):
+                    keep = [r["key"] for r in fresh if r["status"] == "computed"]
+                    peaks = peaks.filter(pc.is_in(peaks.column("key"), pa.array(keep, pa.string())))
+                buf_peaks.append(peaks)
             if len(buf_sum) >= flush_rows:
                 flush()
             if bar is not None:

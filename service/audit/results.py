@@ -79,17 +79,14 @@ class PartStore:
             keys.update(k for k, s in zip(t["key"], t["status"], strict=True) if s == "ok")
         return keys
 
-    def write_part(self, summaries: list[dict[str, Any]], peaks: list[dict[str, list]]) -> None:
+    def write_part(self, summaries: list[dict[str, Any]], peaks: list[pa.Table]) -> None:
         """One flushed batch: peaks first, then the summary that marks the batch done."""
         if not summaries:
             return
         pid = f"{time.time_ns():020d}-{secrets.token_hex(4)}"
-        cols: dict[str, list] = {n: [] for n in PEAK_SCHEMA.names}
-        for p in peaks:
-            for n in PEAK_SCHEMA.names:
-                cols[n].extend(p[n])
+        table = pa.concat_tables(peaks) if peaks else PEAK_SCHEMA.empty_table()
         with atomic_parquet(self.parts / f"peaks-{pid}.parquet", PEAK_SCHEMA) as write:
-            write(pa.table(cols, schema=PEAK_SCHEMA))
+            write(table)
         with atomic_parquet(self.parts / f"summary-{pid}.parquet", SUMMARY_SCHEMA) as write:
             write(pa.Table.from_pylist(summaries, schema=SUMMARY_SCHEMA))
 

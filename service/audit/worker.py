@@ -12,10 +12,12 @@ import os
 from collections.abc import Iterable
 from typing import Any
 
+import pyarrow as pa
+
 from ..config import Settings
 from .diagnose_one import DiagnosisFailed, diagnose_recording
 from .library import AuditTask
-from .rows import error_summary, peak_rows, summary_row
+from .rows import PEAK_SCHEMA, error_summary, peak_rows, summary_row
 
 __all__ = ["audit_chunk", "audit_one", "row_key"]
 
@@ -66,6 +68,17 @@ def audit_one(task: AuditTask, settings: Settings, done: Iterable[str] = ()) -> 
 
 def audit_chunk(
     tasks: list[AuditTask], settings: Settings, done: Iterable[str] = ()
-) -> list[dict[str, Any]]:
-    """A few rows in one Dask task, so scheduling costs little beside the diagnosis."""
-    return [audit_one(t, settings, done) for t in tasks]
+) -> tuple[list[dict[str, Any]], pa.Table]:
+    """A few rows in one Dask task, so scheduling costs little beside the diagnosis.
+
+    Returns the rows' results without their peaks, and the peaks of the chunk as one
+    Arrow table: Arrow buffers cross to the client far cheaper than lists of numbers.
+    """
+    results = [audit_one(t, settings, done) for t in tasks]
+    cols: dict[str, list] = {n: [] for n in PEAK_SCHEMA.names}
+    for r in results:
+        peaks = r.pop("peaks")
+        if peaks is not None:
+            for n in PEAK_SCHEMA.names:
+                cols[n].extend(peaks[n])
+    return results, pa.table(cols, schema=PEAK_SCHEMA)

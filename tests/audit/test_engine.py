@@ -222,3 +222,31 @@ class TestKilledWorker:
         # No recording's peaks written twice: one key per recording, one block per key.
         assert peaks.groupby("recording")["key"].nunique().max() == 1
         assert len(peaks) == rec["n_peaks"].sum()
+
+
+class TestModuleEntry:
+    def test_basic(self, archive, dask_cluster, tmp_path: Path, capsys) -> None:
+        from service.audit.__main__ import main
+
+        _, manifest, library = archive
+        code = main(
+            [
+                str(manifest),
+                "--library",
+                str(library),
+                "--out",
+                str(tmp_path / "o"),
+                "--scheduler",
+                dask_cluster.address,
+                "--no-progress",
+            ]
+        )
+        assert code == 0
+        assert "18 rows: 15 diagnosed, 0 already done, 3 errors" in capsys.readouterr().out
+        assert len(pd.read_parquet(tmp_path / "o" / "recordings.parquet")) == 18
+
+    def test_errors(self, tmp_path: Path, capsys) -> None:
+        from service.audit.__main__ import main
+
+        assert main([str(tmp_path / "none.csv"), "--no-progress"]) == 2
+        assert "none.csv" in capsys.readouterr().err
