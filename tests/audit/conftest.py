@@ -117,6 +117,15 @@ def archive(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, Path]
 
 
 @pytest.fixture(scope="session")
+def archive50(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Path, Path]:
+    """(folder, manifest, library): 50 demo recordings, every row good (the issue's
+    sample size for parity with the single-recording answer)."""
+    folder = tmp_path_factory.mktemp("archive50")
+    manifest, library = make_demo_archive(folder, count=50, seed=7, seconds=0.5, bad_rows=False)
+    return folder, manifest, library
+
+
+@pytest.fixture(scope="session")
 def dask_cluster(tmp_path_factory: pytest.TempPathFactory) -> Iterator[DaskProcesses]:
     procs = start_dask(2, tmp_path_factory.mktemp("dask-logs"))
     yield procs
