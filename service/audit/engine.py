@@ -154,7 +154,7 @@ def run_audit(
     try:
         from distributed import as_completed
 
-        n_workers = max(1, len(client.scheduler_info()["workers"]))
+        n_workers = max(1, len(client.nthreads()))  # every worker, not a sample
         done = store.done_keys()
         # One copy of the done-index on every worker (a list, so the set stays whole).
         done_ref: Any = (
