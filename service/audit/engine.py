@@ -44,6 +44,15 @@ class AuditSummary:
     recordings_path: Path
 
 
+#: The settings a diagnosis on a worker needs: its limits, and nothing else.
+_LIMITS = ("max_tones", "max_upload_bytes", "max_spectrum_lines", "max_time_samples")
+
+
+def _worker_settings(settings: Settings) -> Settings:
+    """The limits only: API keys and the database URL never travel to the workers."""
+    return Settings.model_construct(**{k: getattr(settings, k) for k in _LIMITS})
+
+
 def _chunk_size(rows: int, workers: int) -> int:
     """Rows per task: large enough that scheduling costs little beside the diagnosis,
     small enough that every worker gets several tasks and a lost one costs little."""
@@ -108,7 +117,7 @@ def run_audit(
     on_progress : called with (rows finished, rows in all) after every chunk.
     """
     t0 = time.perf_counter()
-    settings = settings or get_settings()
+    settings = _worker_settings(settings or get_settings())
     out = Path(out)
     store = PartStore(out)
     tasks = read_manifest(manifest, read_library(library), folder)
