@@ -128,14 +128,21 @@ def run_audit(
     buf_sum: list[dict[str, Any]] = []
     buf_peaks: list[Any] = []  # Arrow tables, one per chunk
 
-    def record(res: dict[str, Any]) -> None:
+    stored: set[str] = set()  # keys whose results this run has kept
+
+    def record(res: dict[str, Any]) -> bool:
+        """Count a row; True when its peaks are to be kept (first time its key is seen:
+        two rows with the same file and settings have one diagnosis)."""
         row = res["row"]
         status[row] = res["status"]
         keys[row] = res["key"]
         if res["status"] == "error":
             errors[row] = res["summary"]
-        elif res["status"] == "computed":
+        elif res["status"] == "computed" and res["key"] not in stored:
+            stored.add(res["key"])
             buf_sum.append(res["summary"])
+            return True
+        return False
 
     def flush() -> None:
         store.write_part(buf_sum, buf_peaks)
@@ -201,11 +208,10 @@ def run_audit(
             fut.release()
             # Each row counted once, even if its chunk were ever delivered twice.
             fresh = [r for r in results if r["row"] not in status]
-            for res in fresh:
-                record(res)
-            if peaks is not None and peaks.num_rows:
-                if len(fresh) < len(results):
-                    keep = [r["key"] for r in fresh if r["status"] == "computed"]
+            keep = [r["key"] for r in fresh if record(r)]
+            computed = sum(r["status"] == "computed" for r in results)
+            if peaks is not None and peaks.num_rows and keep:
+                if len(keep) < computed:
                     peaks = peaks.filter(pc.is_in(peaks.column("key"), pa.array(keep, pa.string())))
                 buf_peaks.append(peaks)
             if len(buf_sum) >= flush_rows:

@@ -76,9 +76,11 @@ def audit_chunk(
     """
     results = [audit_one(t, settings, done) for t in tasks]
     cols: dict[str, list] = {n: [] for n in PEAK_SCHEMA.names}
+    seen: set[str] = set()  # a key's peaks once, even if two rows share the key
     for r in results:
         peaks = r.pop("peaks")
-        if peaks is not None:
+        if peaks is not None and r["key"] not in seen:
+            seen.add(r["key"])
             for n in PEAK_SCHEMA.names:
                 cols[n].extend(peaks[n])
     return results, pa.table(cols, schema=PEAK_SCHEMA)

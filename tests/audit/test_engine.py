@@ -260,3 +260,31 @@ class TestModuleEntry:
 
         assert main([str(tmp_path / "none.csv"), "--no-progress"]) == 2
         assert "none.csv" in capsys.readouterr().err
+
+
+class TestDuplicateRows:
+    def test_same_file_and_settings_twice(
+        self, archive, dask_cluster, audit_settings, tmp_path: Path
+    ) -> None:
+        folder, manifest, library = archive
+        table = pd.read_csv(manifest).iloc[[0, 1, 0, 2, 0]]
+        table.to_csv(tmp_path / "m.csv", index=False)
+        for chunk in (1, 5):  # duplicates in separate tasks, then in one task
+            out = tmp_path / f"out{chunk}"
+            s = run_audit(
+                tmp_path / "m.csv",
+                library,
+                folder,
+                out,
+                progress=False,
+                scheduler=dask_cluster.address,
+                settings=audit_settings,
+                chunk_size=chunk,
+            )
+            rec = pd.read_parquet(s.recordings_path)
+            peaks = pd.read_parquet(s.peaks_path)
+            assert s.total == 5 and s.errors == 0
+            n = rec.set_index("row")["n_peaks"]
+            # Every manifest row gets its recording's peaks once: row 0's file three times.
+            assert len(peaks) == n.sum() == 3 * n[0] + n[1] + n[3]
+            assert (peaks.recording == table.path.iloc[0]).sum() == 3 * n[0]
