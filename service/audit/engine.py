@@ -238,14 +238,14 @@ def run_audit(
         if status[row] in ("computed", "skipped"):
             t = by_row[row]
             labels.setdefault(keys[row], []).append((t.recording, t.channel))
-    stored = store.summaries_for(set(labels))
+    saved = store.summaries_for(set(labels))
     summaries = []
     for row in sorted(by_row):
         t = by_row[row]
         if status.get(row) == "error" or row not in status:
             summaries.append(errors.get(row) or error_summary(t, "not run"))
             continue
-        s = dict(stored[keys[row]])
+        s = dict(saved[keys[row]])
         s.update(
             row=t.row,
             recording=t.recording,
