@@ -254,7 +254,7 @@ def read_manifest(manifest: str | Path, library: Library, folder: str | Path) ->
             channel = -1
         speed = _cell(s, "speed_rpm")
         sid = _cell(s, "sources_id")
-        common = {
+        common: dict[str, Any] = {
             "row": i,
             "recording": rec,
             "channel": channel,
