@@ -32,6 +32,7 @@ bench: $(STAMP)
 	$(PY) bench/fold_http.py
 	$(PY) bench/diagnose.py
 	$(PY) bench/plan.py
+	$(PY) bench/audit.py
 
 bench-load: $(STAMP)
 	$(PY) bench/load.py

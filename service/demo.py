@@ -129,7 +129,12 @@ def demo_sliced_chain() -> list[dict[str, Any]]:
 
 
 def demo_time_record(
-    rpm: float = DEMO_RPM, seconds: float = 4.0, sliced: bool = False, seed: int = 1
+    rpm: float = DEMO_RPM,
+    seconds: float = 4.0,
+    sliced: bool = False,
+    seed: int = 1,
+    rate_hz: float = 12_800.0,
+    anti_alias: dict[str, Any] | None = None,
 ) -> tuple[Any, float]:
     """A synthetic accelerometer record of the bench, made by the app itself.
 
@@ -137,7 +142,8 @@ def demo_time_record(
     filter's response and sampled at its true frequency at the converter's instants, so
     aliasing happens exactly as in a real capture. With ``sliced`` the record is then
     decimated by 2 by slicing, as the second channel's script does. Unknown harmonic
-    amplitudes are set to a fifth of their source's main line.
+    amplitudes are set to a fifth of their source's main line. ``rate_hz`` and
+    ``anti_alias`` (default the bench's weak filter) give other acquisition setups.
     """
     tones = expand_sources([source_from_dict(s) for s in demo_sources(rpm)])
     amp = tones.amplitude.copy()
@@ -145,8 +151,8 @@ def demo_time_record(
         sel = tones.source == src
         main = np.nanmax(amp[sel]) if np.any(np.isfinite(amp[sel])) else 0.01
         amp[sel & ~np.isfinite(amp)] = 0.2 * main
-    rate = 12_800.0
-    chain = Chain.shorthand(rate, AnalogFilterIn(**demo_anti_alias()).to_core())
+    rate = float(rate_hz)
+    chain = Chain.shorthand(rate, AnalogFilterIn(**(anti_alias or demo_anti_alias())).to_core())
     gain = 10.0 ** (-chain.evaluate(tones.freq_hz).attenuation_db / 20.0)
     rng = np.random.default_rng(seed)
     n = int(seconds * rate)

@@ -46,6 +46,11 @@ LAYERS: dict[str, Layer] = {
     "http": Layer(
         allowed=None, service=_s("", "config", "core", "contract", "usecases", "storage", "http")
     ),
+    "audit": Layer(
+        allowed=None,
+        service=_s("", "core", "contract", "usecases", "inputs", "config", "demo", "audit"),
+        forbidden=frozenset(WEB_STACK),
+    ),
     "api": Layer(allowed=None, service=None, forbidden=_s("service.web")),
     "web": Layer(allowed=None, service=None, forbidden=_s("service.api", "service.app")),
 }
