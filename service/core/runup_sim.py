@@ -65,7 +65,9 @@ class SimRecord:
         return self.rpm_start + slope * np.asarray(t_s, dtype=np.float64)
 
 
-def drive_lines(*, pole_pairs: int = 4, mesh_teeth: int = 17, carrier_hz: float = 10_000.0):
+def drive_lines(
+    *, pole_pairs: int = 4, mesh_teeth: int = 17, carrier_hz: float = 10_000.0
+) -> tuple[SimLine, ...]:
     """The invented e-drive's lines: orders, gear mesh harmonics, PWM carrier and sidebands.
 
     Sidebands ``fc ± 2·f1`` and ``2·fc ± f1`` (f1 = pole pairs × shaft speed) are the

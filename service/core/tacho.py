@@ -198,7 +198,7 @@ def _repair(edges: FloatArray) -> tuple[FloatArray, int, int]:
             pair = [j for j in (i - 1, i + 1) if 0 <= j < d.size]
             best = min(pair, key=lambda j: abs(d[i] + d[j] - med[i]) if pair else 0.0)
             if abs(d[i] + d[best] - med[i]) < 0.35 * med[i]:
-                drop.append(i + 1 if best > i else i)
+                drop.append(int(i + 1 if best > i else i))
         if drop:
             edges = np.delete(edges, drop)
             extra += len(drop)
@@ -209,9 +209,7 @@ def _repair(edges: FloatArray) -> tuple[FloatArray, int, int]:
         n_miss = np.rint(ratio).astype(np.int64)
         gap = np.flatnonzero((ratio >= MISSING_RATIO) & (np.abs(ratio - n_miss) < 0.3))
         if gap.size:
-            fill = [
-                edges[i] + d[i] * np.arange(1, n_miss[i]) / n_miss[i] for i in gap
-            ]
+            fill = [edges[i] + d[i] * np.arange(1, n_miss[i]) / n_miss[i] for i in gap]
             missing += int(np.sum(n_miss[gap] - 1))
             edges = np.sort(np.concatenate([edges, *fill]))
             changed = True
