@@ -119,6 +119,9 @@ RESONANCE_DB = 10.0
 #: Share of the record's speed range a line must cover for full confidence.
 FULL_SWEEP = 0.25
 
+_UP_HALF = 32  # half-length, input samples, of the upsampling filter
+_UP_PAD = 64  # samples either side of a block for the upsampling filter to settle
+
 
 # --------------------------------------------------------------------------- the map
 
@@ -889,6 +892,7 @@ def order_spectrum(
     revs_per_segment: int = 32,
     rpm_range: tuple[float, float] | None = None,
     block_segments: int = 64,
+    upsample: int = 4,
 ) -> OrderSpectrum:
     """Computed order tracking: resample at constant shaft-angle steps, then transform.
 
@@ -909,13 +913,17 @@ def order_spectrum(
         Analyse only where the speed lies in this range, rpm.
     block_segments : int
         Segments resampled per step (memory bound).
+    upsample : int
+        Band-limited upsampling factor ahead of the linear interpolation (1 to 16);
+        Fyfe and Munck [2]_ found interpolation error the main error of the method and
+        upsampling first the cure.
 
     Notes
     -----
     The shaft angle is a monotone cubic through the tacho pulses (angle known exactly at
     each pulse [2]_), tabulated at 16 points per revolution; time at each equal angle
-    step comes from that table and the signal there from linear interpolation between
-    samples. Content above ``samples_per_rev / 2`` orders folds in the order domain,
+    step comes from that table and the signal there from linear interpolation of the
+    record upsampled ``upsample`` times (scipy.signal.resample_poly). Content above ``samples_per_rev / 2`` orders folds in the order domain,
     and a line folded in time (above fs/2) appears at the non-integer order
     :func:`apparent_order`.
 
@@ -936,6 +944,12 @@ def order_spectrum(
             f"revs_per_segment={revs_per_segment} must be from 2 to 4096",
             field="revs_per_segment", value=revs_per_segment, limit=4096,
             code="out_of_range",
+        )  # fmt: skip
+    upsample = int(upsample)
+    if not 1 <= upsample <= 16:
+        raise InputError(
+            f"upsample={upsample} must be from 1 to 16",
+            field="upsample", value=upsample, limit=16, code="out_of_range",
         )  # fmt: skip
     spr = int(2 ** np.ceil(np.log2(2.56 * max_order)))
     t_k, th_k = speed.angle_time_s, speed.angle_rev
@@ -967,14 +981,29 @@ def order_spectrum(
     t_tab = pchip(th_tab)
     seg_len = rps * spr
     win = scipy.signal.windows.hann(seg_len, sym=False)
+    # Anti-imaging filter of the upsampling: Kaiser β = 8 (about 80 dB), 2·_UP_HALF
+    # input samples long, cut at the record's Nyquist frequency.
+    taps = scipy.signal.firwin(
+        2 * _UP_HALF * upsample + 1, 1.0 / upsample, window=("kaiser", 8.0)
+    )  # resample_poly scales the taps by the upsampling factor itself
     power = np.zeros(seg_len // 2 + 1)
     for a in range(0, n_seg, block_segments):
         b = min(n_seg, a + block_segments)
         th = th_lo + (a * seg_len + np.arange((b - a) * seg_len)) / spr
         pos = np.interp(th, th_tab, t_tab) * fs
-        i0 = np.clip(np.floor(pos).astype(np.int64), 0, sig.size - 2)
-        frac = pos - i0
-        y = sig[i0] * (1 - frac) + sig[i0 + 1] * frac
+        # Band-limited interpolation: upsample the stretch of samples needed (polyphase
+        # FIR), then interpolate linearly on the finer grid. Linear interpolation on the
+        # raw samples would pass the image above fs/2 and rebuild an aliased line at
+        # its true order instead of where the samples put it.
+        a0 = max(0, int(np.floor(pos.min())) - _UP_PAD)
+        a1 = min(sig.size, int(np.ceil(pos.max())) + _UP_PAD + 1)
+        up = scipy.signal.resample_poly(
+            np.asarray(sig[a0:a1], dtype=np.float64), upsample, 1, window=taps
+        )
+        pu = (pos - a0) * upsample
+        i0 = np.clip(np.floor(pu).astype(np.int64), 0, up.size - 2)
+        frac = pu - i0
+        y = up[i0] * (1 - frac) + up[i0 + 1] * frac
         spec = np.fft.rfft(y.reshape(b - a, seg_len) * win, axis=1)
         power += np.sum(np.abs(spec) ** 2, axis=0)
     amp = np.sqrt(power / n_seg) * 2 / win.sum()
