@@ -294,7 +294,11 @@ def _max_rows(out: NDArray[np.float32], idx: NDArray[np.int64], rows: NDArray[np
         return
     start = np.flatnonzero(np.concatenate(([True], idx[1:] != idx[:-1])))
     red = np.maximum.reduceat(rows, start, axis=0)
-    np.maximum.at(out, idx[start], red)
+    dest = idx[start]
+    if np.unique(dest).size == dest.size:  # the usual case: fancy indexing is fast
+        out[dest] = np.maximum(out[dest], red)
+    else:  # the speed came back to a slice within the block
+        np.maximum.at(out, dest, red)
 
 
 def display_map(
@@ -370,18 +374,25 @@ class _Track:
     level: list[float] = field(default_factory=list)
     base: float = 0.0
     sigma: float = 1.0
+    slope: float = 0.0
+    slope_at: int = -1
 
 
 def _slope(tr: _Track, r: FloatArray) -> float:
-    """Recent slope of the unfolded coordinate, Hz per shaft Hz."""
-    if len(tr.s) < 2:
-        return 0.0
+    """Recent slope of the unfolded coordinate, Hz per shaft Hz (cached per length)."""
+    if tr.slope_at == len(tr.s):
+        return tr.slope
     k = min(len(tr.s), 6)
-    rs = r[tr.s[-k:]]
-    us = np.asarray(tr.u[-k:])
-    if np.ptp(rs) <= 0:
-        return 0.0
-    return float(np.polyfit(rs, us, 1)[0])
+    slope = 0.0
+    if k >= 2:  # plain arithmetic: numpy's call overhead dominates for six points
+        rs = [float(r[i]) for i in tr.s[-k:]]
+        us = tr.u[-k:]
+        rm, um = sum(rs) / k, sum(us) / k
+        den = sum((a - rm) ** 2 for a in rs)
+        num = sum((a - rm) * (b - um) for a, b in zip(rs, us, strict=True))
+        slope = num / den if den > 0 else 0.0
+    tr.slope, tr.slope_at = slope, len(tr.s)
+    return slope
 
 
 def _predict(tr: _Track, r_next: float, r: FloatArray, nyq: float) -> tuple[float, float, float]:
@@ -604,7 +615,8 @@ def _blind(tr_r: FloatArray, u: FloatArray, fs: float, bin_hz: float, dr: float)
     hyps: list[_Hyp] = []
     if np.ptp(tr_r) <= 0:
         return hyps
-    b, a, *_ = scipy.stats.theilslopes(u, tr_r)
+    step = max(1, tr_r.size // 200)  # Theil–Sen is O(n²): 200 points are plenty
+    b, a, *_ = scipy.stats.theilslopes(u[::step], tr_r[::step])
     span_hz = abs(b) * float(np.ptp(tr_r))
     f_med = float(np.median(fold(np.abs(u), fs)))
     if span_hz < 2 * bin_hz:
@@ -923,9 +935,9 @@ def order_spectrum(
     The shaft angle is a monotone cubic through the tacho pulses (angle known exactly at
     each pulse [2]_), tabulated at 16 points per revolution; time at each equal angle
     step comes from that table and the signal there from linear interpolation of the
-    record upsampled ``upsample`` times (scipy.signal.resample_poly). Content above ``samples_per_rev / 2`` orders folds in the order domain,
-    and a line folded in time (above fs/2) appears at the non-integer order
-    :func:`apparent_order`.
+    record upsampled ``upsample`` times (scipy.signal.resample_poly). Content above
+    ``samples_per_rev / 2`` orders folds in the order domain, and a line folded in time
+    (above fs/2) appears at the non-integer order :func:`apparent_order`.
 
     References
     ----------

@@ -138,7 +138,7 @@ class TestApparentFrequency:
         assert line.kind == "folded_order"
         assert line.order == pytest.approx(40.0, abs=0.05)
         # Source: Lyons sec. 2.3 — zone 2 starts where 40·rpm/60 = fs/2, i.e. 9600 rpm.
-        z2 = [z for z in line.zones if z.zone == 2][0]
+        z2 = next(z for z in line.zones if z.zone == 2)
         assert z2.inverted
         assert z2.rpm_from == pytest.approx(9600, abs=60)
 
@@ -178,7 +178,7 @@ def _scenarios():
             units,
             dict(rate_hz=25_600.0, analog=("butter", 4, 10_000.0), decimate=4),
             512,
-        ),  # fmt: skip
+        ),
         # Clean: 51.2 kS/s behind an 8th-order Butterworth at 16 kHz; every line below
         # 18 kHz (Nyquist 25.6 kHz).
         "clean": (units, dict(rate_hz=51_200.0, analog=("butter", 8, 16_000.0)), 4096),
@@ -201,7 +201,7 @@ def runs():
 class TestRunUpLines:
     def test_aliased_lines_right_order_and_zone(self, runs):
         total = right = 0
-        for name, (rec, units, blind, with_known) in runs.items():
+        for _name, (rec, units, blind, with_known) in runs.items():
             fs = rec.rate_hz
             for res, pool in ((with_known, units), (blind, [u for u in units if u.fixed_hz == 0])):
                 for ln in pool:
@@ -230,12 +230,12 @@ class TestRunUpLines:
                     assert got.kind == "order" and not got.aliased, (name, u.label)
 
     def test_clean_case_reports_no_alias(self, runs):
-        rec, units, blind, with_known = runs["clean"]
+        _rec, _units, blind, with_known = runs["clean"]
         assert blind.aliased == () and with_known.aliased == ()
         assert all(ln.kind != "unexplained" for ln in blind.lines)
 
     def test_carrier_alias_with_known_sources(self, runs):
-        rec, units, blind, with_known = runs["demo"]
+        _rec, _units, blind, with_known = runs["demo"]
         carrier = [ln for ln in with_known.lines if ln.kind == "fixed_alias"]
         # Source: DESIGN.md §5 fold example — 10 kHz sampled at 12.8 kS/s reads 2.8 kHz,
         # zone 2 (arithmetic: 12.8 − 10 = 2.8 kHz).
@@ -274,8 +274,8 @@ class TestRunUpLines:
 
 class TestDisplayMap:
     def test_bounded_and_keeps_peaks(self, runs):
-        rec, units, blind, _ = runs["clean"]
-        speeds, freqs, db = display_map(blind.map, max_speeds=200, max_freqs=600)
+        _rec, _units, blind, _ = runs["clean"]
+        _speeds, _freqs, db = display_map(blind.map, max_speeds=200, max_freqs=600)
         assert db.shape[0] <= 200 and db.shape[1] <= 600
         # 200 × 600 float32 values are 480 kB raw: under the 1.5 MB display budget.
         assert db.nbytes <= 1.5e6
