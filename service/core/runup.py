@@ -258,7 +258,8 @@ def runup_map(
     t_frames = sft.t(sig.size, p0, p1)
     rpm_frames = speed.rpm_at(t_frames)
     lo, hi = float(rpm_frames.min()), float(rpm_frames.max())
-    ns, nt, nf = int(speed_slices), min(int(time_slices), frames), sft.f.size
+    # No more speed slices than frames: empty slices would break tracks into pieces.
+    ns, nt, nf = min(int(speed_slices), frames), min(int(time_slices), frames), sft.f.size
     width = (hi - lo) / ns if hi > lo else 1.0
     s_idx = np.clip(((rpm_frames - lo) / width).astype(np.int64), 0, ns - 1)
     t_idx = (np.arange(frames) * nt) // frames
