@@ -28,6 +28,9 @@ class Line:
     order: float
     fixed_hz: float
     amplitude: float
+    #: Optional level bump: amplitude × (0.03 + exp(−½((rpm − peak_rpm)/width_rpm)²)).
+    peak_rpm: float | None = None
+    width_rpm: float = 1000.0
 
 
 @dataclass
@@ -75,7 +78,11 @@ def simulate(
             gain, shift = np.abs(h), np.sign(f_inst) * np.angle(h)
         else:
             gain, shift = 1.0, 0.0
-        x += ln.amplitude * gain * np.cos(2 * np.pi * cycles + shift)
+        amp = ln.amplitude
+        if ln.peak_rpm is not None:
+            rpm = 60.0 * shaft_hz[take]
+            amp = amp * (0.03 + np.exp(-0.5 * ((rpm - ln.peak_rpm) / ln.width_rpm) ** 2))
+        x += amp * gain * np.cos(2 * np.pi * cycles + shift)
     rng = np.random.default_rng(seed)
     x += noise_rms * rng.standard_normal(n)
     tacho = np.where(np.mod(angle[take] * pulses_per_rev, 1.0) < 0.3, 4.0, 0.5)

@@ -249,6 +249,30 @@ class TestRunUpLines:
         fixed = [ln for ln in blind.lines if ln.order == 0 and ln.kind != "unexplained"]
         assert fixed and all(not ln.aliased for ln in fixed)
 
+    def test_resonance_and_fixed_line(self):
+        # A fixed 3 kHz line whose level rises 30 dB towards 6000 rpm and falls again
+        # (a resonance), and a steady fixed line at 1.5 kHz, beside order 5.
+        rec = simulate(
+            [Line("resonance", 0, 3000.0, 1.0, peak_rpm=6000.0, width_rpm=1200.0),
+             Line("steady", 0, 1500.0, 0.5), Line("o5", 5, 0.0, 0.5)],
+            duration_s=20.0,
+        )  # fmt: skip
+        res = analyse_run_up(rec.vibration, rec.rate_hz, tacho=rec.tacho)
+        kinds = {round(float(np.median(ln.freq_hz))): ln.kind for ln in res.lines}
+        assert kinds[3000] == "resonance"
+        assert kinds[1500] == "fixed"
+        assert res.aliased == ()
+
+    def test_speed_trace_instead_of_tacho(self, runs):
+        rec, _units, blind, _ = runs["demo"]
+        t = np.linspace(0, rec.duration_s, 50)
+        res = analyse_run_up(rec.vibration, rec.rate_hz, speed_time_s=t, speed_rpm=rec.rpm_at(t),
+                             nperseg=1024)  # fmt: skip
+        orders = sorted(round(ln.order, 1) for ln in res.lines if ln.fixed_hz == 0)
+        expected = sorted(round(ln.order, 1) for ln in blind.lines if ln.fixed_hz == 0)
+        # Reference: the simulated orders (1, 2, 8, 17, 34, 51, 68 of the e-drive).
+        assert orders == expected == [1.0, 2.0, 8.0, 17.0, 34.0, 51.0, 68.0]
+
     def test_known_lines_from_tones(self):
         tones = ToneSet(label=strings(["mesh"]), source=strings(["gear"]),
                         kind=strings(["gear_mesh"]), fixed_hz=[0.0], speed_hz=[17 * 50.0],
