@@ -63,7 +63,13 @@ from numpy.typing import ArrayLike, NDArray
 
 from .errors import InputError
 from .folding import fold
-from .tacho import SpeedTrace, speed_from_tacho, speed_from_trace
+from .tacho import (
+    MIDDLE_FRACTION_MAX,
+    SpeedTrace,
+    signal_levels,
+    speed_from_tacho,
+    speed_from_trace,
+)
 from .tones import ToneSet
 
 __all__ = [
@@ -1108,6 +1114,15 @@ def analyse_run_up(
                 code="length_mismatch",
             )  # fmt: skip
         speed = speed_from_tacho(tach, fs, pulses_per_rev)
+        lo, hi, mid = signal_levels(sig)
+        if hi > lo and mid < MIDDLE_FRACTION_MAX:
+            raise InputError(
+                f"the vibration channel spends only {mid:.0%} of its samples between its "
+                "two levels, like a pulse train; it looks like a second tacho",
+                field="vibration", value=round(mid, 3), limit=MIDDLE_FRACTION_MAX,
+                code="not_a_vibration",
+                remedy="Check that the tacho and vibration channels are not swapped",
+            )  # fmt: skip
     else:
         if speed_time_s is None or speed_rpm is None:
             raise InputError(

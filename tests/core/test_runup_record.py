@@ -290,6 +290,12 @@ class TestRunUpLines:
         with pytest.raises(InputError) as e:
             analyse_run_up(sweep.vibration, sweep.rate_hz, tacho=sweep.tacho[:-5])
         assert e.value.code == "length_mismatch"
+        with pytest.raises(InputError) as e:  # channels swapped
+            analyse_run_up(sweep.tacho, sweep.rate_hz, tacho=sweep.vibration)
+        assert e.value.code == "not_a_tacho"
+        with pytest.raises(InputError) as e:  # the tacho given twice
+            analyse_run_up(sweep.tacho, sweep.rate_hz, tacho=sweep.tacho)
+        assert e.value.code == "not_a_vibration"
         s = speed_from_tacho(sweep.tacho, sweep.rate_hz)
         with pytest.raises(InputError) as e:
             runup_map(sweep.vibration[:20_000], sweep.rate_hz, s, nperseg=8192)
