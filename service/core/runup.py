@@ -52,7 +52,7 @@ References
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -198,6 +198,7 @@ def runup_map(
     overlap: float = 0.75,
     speed_slices: int = 800,
     time_slices: int = 600,
+    progress: Callable[[float], None] | None = None,
 ) -> RunUpMap:
     """Short-time amplitude spectra of a record, reduced by speed and by time.
 
@@ -214,7 +215,11 @@ def runup_map(
     overlap : float
         Overlap of consecutive frames, 0 to 0.95.
     speed_slices, time_slices : int
-        Number of speed and time slices kept (2 to 4096 each).
+        Number of speed and time slices kept (2 to 4096 each; no more speed slices
+        than frames).
+    progress : callable, optional
+        Called after each block of frames with the share done (0 to 1), e.g. for a
+        command line's progress bar.
 
     Returns
     -------
@@ -276,6 +281,8 @@ def runup_map(
         mag = np.abs(sft.stft(sig, p0 + a, p0 + b)).astype(np.float32).T
         _max_rows(speed_level, s_idx[a:b], mag)
         _max_rows(time_level, t_idx[a:b], mag)
+        if progress is not None:
+            progress(b / frames)
     counts = np.bincount(s_idx, minlength=ns)
     speed_level[counts == 0] = np.nan
     t_counts = np.bincount(t_idx, minlength=nt)
@@ -1077,6 +1084,7 @@ def analyse_run_up(
     overlap: float = 0.75,
     speed_slices: int = 800,
     time_slices: int = 600,
+    progress: Callable[[float], None] | None = None,
 ) -> RunUpResult:
     """Speed, map and classified lines of a run-up record.
 
@@ -1132,6 +1140,6 @@ def analyse_run_up(
         speed = speed_from_trace(speed_time_s, speed_rpm)
     m = runup_map(
         sig, fs, speed, nperseg=nperseg, overlap=overlap,
-        speed_slices=speed_slices, time_slices=time_slices,
+        speed_slices=speed_slices, time_slices=time_slices, progress=progress,
     )  # fmt: skip
     return RunUpResult(speed=speed, map=m, lines=find_lines(m, known), sample_rate_hz=fs)

@@ -283,6 +283,14 @@ class TestRunUpLines:
         with pytest.raises(InputError):
             known_lines_from_tones(tones, 0.0)
 
+    def test_progress(self, sweep):
+        seen: list[float] = []
+        s = speed_from_tacho(sweep.tacho, sweep.rate_hz)
+        m = runup_map(sweep.vibration, sweep.rate_hz, s, nperseg=256, progress=seen.append)
+        # 128,000 samples, hop 64: about 2000 frames, so several blocks of 512.
+        assert len(seen) >= 3 and seen == sorted(seen) and seen[-1] == 1.0
+        assert m.frames > 3 * 512
+
     def test_errors(self, sweep):
         with pytest.raises(InputError) as e:
             analyse_run_up(sweep.vibration, sweep.rate_hz)
