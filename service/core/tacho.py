@@ -159,23 +159,29 @@ def signal_levels(x: NDArray[np.floating]) -> tuple[float, float, float]:
 
 
 def _rising_edges(x: NDArray[np.floating], low: float, high: float, fs: float) -> FloatArray:
-    """Times, s, of rising edges with hysteresis, interpolated at the high threshold."""
+    """Times, s, of rising edges with hysteresis, interpolated at the high threshold.
+
+    The trigger only changes state at crossings, so it runs on the (sparse) list of
+    upward crossings of ``high`` and downward crossings of ``low``: an upward crossing
+    is an edge when the crossing before it was a downward one.
+    """
     out: list[FloatArray] = []
-    state = bool(x[0] > high)
-    for a in range(0, x.size, _BLOCK):
-        seg = np.asarray(x[a : a + _BLOCK + 1], dtype=np.float64)  # one sample of overlap
-        blk = seg[:-1] if a + _BLOCK < x.size else seg
-        n = blk.size
-        code = np.zeros(n, dtype=np.int8)  # 1 above high, -1 below low, 0 between
-        code[blk > high] = 1
-        code[blk < low] = -1
-        idx = np.where(code != 0, np.arange(n), -1)
-        np.maximum.accumulate(idx, out=idx)
-        st = np.where(idx >= 0, code[np.maximum(idx, 0)] > 0, state)
-        prev = np.concatenate(([state], st[:-1]))
-        i = np.flatnonzero(st & ~prev) + a
-        state = bool(st[-1])
-        i = i[i > 0]
+    last = 1 if x[0] > high else -1  # +1: last event went high, -1: went low
+    for a in range(0, x.size - 1, _BLOCK):
+        seg = x[a : a + _BLOCK + 1]  # one sample of overlap: crossings at block starts
+        above = seg > high
+        below = seg < low
+        up = np.flatnonzero(above[1:] & ~above[:-1]) + 1
+        down = np.flatnonzero(below[1:] & ~below[:-1]) + 1
+        if up.size == 0 and down.size == 0:
+            continue
+        pos = np.concatenate((up, down))
+        lab = np.concatenate((np.ones(up.size, np.int8), -np.ones(down.size, np.int8)))
+        order = np.argsort(pos, kind="stable")
+        pos, lab = pos[order], lab[order]
+        prev = np.concatenate(([last], lab[:-1]))
+        i = pos[(lab == 1) & (prev == -1)] + a
+        last = int(lab[-1])
         if i.size:
             x0 = np.asarray(x[i - 1], dtype=np.float64)
             x1 = np.asarray(x[i], dtype=np.float64)
