@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 
 from service.core.errors import InputError
-from service.core.runup import (
+from service.core.runup_record import (
     KnownLine,
     analyse_run_up,
     apparent_order,
