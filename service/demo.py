@@ -129,13 +129,18 @@ def demo_sliced_chain() -> list[dict[str, Any]]:
 
 
 def demo_time_record(
-    rpm: float = DEMO_RPM, seconds: float = 4.0, sliced: bool = False, seed: int = 1
+    rpm: float = DEMO_RPM,
+    seconds: float = 4.0,
+    sliced: bool = False,
+    seed: int = 1,
+    rate: float = 12_800.0,
 ) -> tuple[Any, float]:
     """A synthetic accelerometer record of the bench, made by the app itself.
 
     Each tone (from the demo sources, amplitudes invented) is weighted by the analog
     filter's response and sampled at its true frequency at the converter's instants, so
-    aliasing happens exactly as in a real capture. With ``sliced`` the record is then
+    aliasing happens exactly as in a real capture (``rate``: the converter's rate, S/s;
+    the bench's is 12.8 kS/s). With ``sliced`` the record is then
     decimated by 2 by slicing, as the second channel's script does. Unknown harmonic
     amplitudes are set to a fifth of their source's main line.
     """
@@ -145,7 +150,6 @@ def demo_time_record(
         sel = tones.source == src
         main = np.nanmax(amp[sel]) if np.any(np.isfinite(amp[sel])) else 0.01
         amp[sel & ~np.isfinite(amp)] = 0.2 * main
-    rate = 12_800.0
     chain = Chain.shorthand(rate, AnalogFilterIn(**demo_anti_alias()).to_core())
     gain = 10.0 ** (-chain.evaluate(tones.freq_hz).attenuation_db / 20.0)
     rng = np.random.default_rng(seed)
@@ -186,6 +190,42 @@ def demo_diagnose_request(lines: int = 1600) -> dict[str, Any]:
         "sources": demo_sources(),
         "speed_tolerance_pct": 1.0,
     }
+
+
+#: The multi-rate demo: the bench's converter rate and a second one, same filter.
+DEMO_COMPARE_RATES = (12_800.0, 16_000.0)
+#: The bench accelerometer's usable bandwidth, Hz (invented).
+DEMO_SENSOR_HZ = 30_000.0
+
+
+@functools.lru_cache(maxsize=2)
+def demo_compare_request(lines: int = 3200) -> dict[str, Any]:
+    """A comparison of the bench captured at 12.8 and 16 kS/s behind the same weak filter.
+
+    Each capture is simulated by :func:`demo_time_record` at its rate (same speed, its
+    own noise) and sent as its averaged spectrum. The highest true frequency is the
+    accelerometer's bandwidth; without it, tones whose images fold alike are ambiguous.
+    Callers must not modify the result (it is cached).
+    """
+    captures = []
+    for k, rate in enumerate(DEMO_COMPARE_RATES):
+        x, _ = demo_time_record(seed=1 + k, rate=rate)
+        s = amplitude_spectrum(x, rate, lines=lines)
+        captures.append(
+            {
+                "label": f"{rate / 1000:g} kS/s",
+                "sample_rate_hz": rate,
+                "anti_alias": demo_anti_alias(),
+                "spectrum": {
+                    "freq_hz": [round(float(v), 4) for v in s.freq_hz],
+                    "amplitude": [float(f"{v:.5g}") for v in s.amplitude],
+                    "unit": "linear",
+                },
+            }
+        )
+    # The accelerometer's bandwidth (invented): inside the rates' unambiguous range
+    # (32 kHz), so the answers can be unique.
+    return {"captures": captures, "threshold_db": 12.0, "max_true_hz": DEMO_SENSOR_HZ}
 
 
 DEMO_TOP_RPM = 12_000.0
