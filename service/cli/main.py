@@ -302,7 +302,7 @@ def _compare_request(ns: argparse.Namespace) -> tuple[dict[str, Any], dict[str, 
         for k, (file, rate, aa) in enumerate(given):
             path = Path(file)
             uploads[f"captures[{k}]"] = Upload(data=path.read_bytes(), filename=path.name)
-            cap: dict[str, Any] = {"label": path.name[:40]}
+            cap: dict[str, Any] = {}
             if rate is not None:
                 cap["sample_rate_hz"] = rate
                 if not path.name.lower().endswith((".wav", ".wave")):
