@@ -404,10 +404,13 @@ class CompareGroupOut(BaseModel):
     decided_by_prior: bool = Field(
         description="Only the lower-frequency prior (prior_weight) separated the answer"
     )
-    unambiguous_hz: float = Field(description="Unique answers below this true frequency, Hz")
-    error_bound_hz: float = Field(
-        description="Remainder-error bound of the rates (a quarter of their greatest "
-        "common divisor), Hz: answers are unique while every capture reads within it"
+    unambiguous_hz: float | None = Field(
+        description="Unique answers below this true frequency, Hz (null when unmatched)"
+    )
+    error_bound_hz: float | None = Field(
+        description="Remainder-error bound of the group's rates (a quarter of their "
+        "greatest common divisor), Hz: answers are unique while every capture reads within "
+        "it (null when unmatched)"
     )
     period_hz: float | None = Field(
         description="When ambiguous: candidates repeat with this period, Hz"
