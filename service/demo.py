@@ -194,6 +194,42 @@ def demo_diagnose_request(lines: int = 1600) -> dict[str, Any]:
     }
 
 
+#: The multi-rate demo: the bench's converter rate and a second one, same filter.
+DEMO_COMPARE_RATES = (12_800.0, 16_000.0)
+#: The bench accelerometer's usable bandwidth, Hz (invented).
+DEMO_SENSOR_HZ = 30_000.0
+
+
+@functools.lru_cache(maxsize=2)
+def demo_compare_request(lines: int = 3200) -> dict[str, Any]:
+    """A comparison of the bench captured at 12.8 and 16 kS/s behind the same weak filter.
+
+    Each capture is simulated by :func:`demo_time_record` at its rate (same speed, its
+    own noise) and sent as its averaged spectrum. The highest true frequency is the
+    accelerometer's bandwidth; without it, tones whose images fold alike are ambiguous.
+    Callers must not modify the result (it is cached).
+    """
+    captures = []
+    for k, rate in enumerate(DEMO_COMPARE_RATES):
+        x, _ = demo_time_record(seed=1 + k, rate_hz=rate)
+        s = amplitude_spectrum(x, rate, lines=lines)
+        captures.append(
+            {
+                "label": f"{rate / 1000:g} kS/s",
+                "sample_rate_hz": rate,
+                "anti_alias": demo_anti_alias(),
+                "spectrum": {
+                    "freq_hz": [round(float(v), 4) for v in s.freq_hz],
+                    "amplitude": [float(f"{v:.5g}") for v in s.amplitude],
+                    "unit": "linear",
+                },
+            }
+        )
+    # The accelerometer's bandwidth (invented): inside the rates' unambiguous range
+    # (32 kHz), so the answers can be unique.
+    return {"captures": captures, "threshold_db": 12.0, "max_true_hz": DEMO_SENSOR_HZ}
+
+
 DEMO_TOP_RPM = 12_000.0
 
 

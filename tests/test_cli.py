@@ -73,3 +73,60 @@ class TestDiagnoseCommand:
         assert main(["diagnose", str(bad), "--sample-rate", "1000"]) == 2
         assert "file" in capsys.readouterr().err
         assert main(["diagnose", str(tmp_path / "missing.csv")]) == 2
+
+
+class TestCompareCommand:
+    @staticmethod
+    def _spectrum_file(path: Path, fs: float, tones: list[tuple[float, float]]) -> None:
+        # Reference spectrum: cosines sampled at t = k/fs by numpy, Hann window, rFFT.
+        n = 8192
+        t = np.arange(n) / fs
+        x = sum(a * np.cos(2 * np.pi * f * t) for f, a in tones)
+        x = x + np.random.default_rng(int(fs)).normal(0, 1e-5, n)
+        w = np.hanning(n)
+        amp = np.abs(np.fft.rfft(x * w)) * 2 / w.sum()
+        f = np.fft.rfftfreq(n, 1 / fs)
+        path.write_text("\n".join(f"{a} {b}" for a, b in zip(f, amp, strict=True)))
+
+    def test_json_matches_api(
+        self, capsys: pytest.CaptureFixture[str], tmp_path: Path, client: TestClient
+    ) -> None:
+        tones = [(10_000.0, 0.3), (1_000.0, 0.5)]
+        a, b = tmp_path / "a.txt", tmp_path / "b.txt"
+        self._spectrum_file(a, 12_800.0, tones)
+        self._spectrum_file(b, 16_000.0, tones)
+        args = ["compare", "--capture", f"{a}@12800", "--capture", f"{b}@16000"]
+        assert main([*args, "--max-true", "30000", "--threshold", "20", "--json"]) == 0
+        cli = json.loads(capsys.readouterr().out)
+        # Reference: 10 kHz folds to 12.8 − 10 = 2.8 kHz and 16 − 10 = 6 kHz.
+        g = next(g for g in cli["groups"] if g["freq_hz"][0] and abs(g["freq_hz"][0] - 2800) < 3)
+        assert g["verdict"] == "alias" and g["true_hz"] == pytest.approx(10_000, abs=5)
+        body = {
+            "captures": [
+                {"sample_rate_hz": r, "upload": {"kind": "spectrum"}} for r in (12_800, 16_000)
+            ],
+            "max_true_hz": 30_000,
+            "threshold_db": 20,
+        }
+        with a.open("rb") as fa, b.open("rb") as fb:
+            api = client.post(
+                "/api/v1/compare-rates",
+                files={"file_0": ("a.txt", fa), "file_1": ("b.txt", fb)},
+                data={"request": json.dumps(body)},
+            ).json()
+        assert cli["groups"] == api["groups"]
+        # The words people read: the page's verdicts, no internal names.
+        assert main([*args, "--max-true", "30000", "--threshold", "20"]) == 0
+        text = capsys.readouterr().out
+        assert "moves: alias" in text and "only_in" not in text and "Caution:" in text
+
+    def test_filter_and_errors(self, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+        a = tmp_path / "a.txt"
+        self._spectrum_file(a, 12_800.0, [(1_000.0, 0.5)])
+        cap = f"{a}@12800:butterworth/2/5000"
+        assert main(["compare", "--capture", cap, "--capture", cap]) == 2
+        assert "own sample rate" in capsys.readouterr().err
+        with pytest.raises(SystemExit):
+            main(["compare", "--capture", f"{a}@12800:butterworth/2"])
+        assert main(["compare", "--capture", cap]) == 2
+        assert "captures" in capsys.readouterr().err

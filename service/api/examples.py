@@ -82,7 +82,18 @@ COMPARE_EXAMPLES: dict[str, Any] = {
             "a": {"sample_rate_hz": 12_800.0, "spectrum": _short_spectrum()},
             "b": {"sample_rate_hz": 6_400.0, "spectrum": _short_spectrum(sliced=True)},
         },
-    }
+    },
+    "captures": {
+        "summary": "The same two channels as a list of captures (2 to 6), with the "
+        "sensor's bandwidth as the highest true frequency",
+        "value": {
+            "captures": [
+                {"sample_rate_hz": 12_800.0, "spectrum": _short_spectrum()},
+                {"sample_rate_hz": 6_400.0, "spectrum": _short_spectrum(sliced=True)},
+            ],
+            "max_true_hz": 12_800.0,
+        },
+    },
 }
 
 
@@ -105,8 +116,11 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     cmp, _ = compare_payload(
         CompareIn.model_validate(COMPARE_EXAMPLES["two_channels"]["value"]), settings
     )
-    for side in ("a", "b"):
-        cmp[side]["peaks"] = cmp[side]["peaks"][:3]
+    for cap in cmp["captures"]:
+        cap["peaks"] = cap["peaks"][:3]
+    for g in cmp["groups"]:
+        g["candidates"] = g["candidates"][:3]
+    cmp["groups"] = cmp["groups"][:3]
 
     plan = plan_payload(PlanIn.model_validate(demo_plan_request()), settings)
     plan["rejected"] = plan["rejected"][-3:]
@@ -133,6 +147,7 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
         "request": demo_fold_request(),
         "result": fold,
         "spectrum": None,
+        "spectra": None,
     }
     return {
         ("/api/v1/plan", "post"): plan,

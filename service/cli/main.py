@@ -43,6 +43,11 @@ def _parse_band(text: str) -> list[float]:
 def _chain_args(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("acquisition chain")
     g.add_argument("--sample-rate", type=float, metavar="HZ", help="sample rate, Hz")
+    _filter_args(g)
+
+
+def _filter_args(g: Any) -> None:
+    """The anti-alias filter options (read by :func:`_chain_fields`)."""
     g.add_argument(
         "--filter",
         dest="family",
@@ -246,31 +251,118 @@ def _cmd_diagnose(ns: argparse.Namespace) -> int:
     return _report_errors(run)
 
 
+def _parse_capture(text: str) -> tuple[str, float | None, dict[str, Any] | None]:
+    """``FILE@RATE[:FAMILY/ORDER/CUTOFF]`` (rate and filter optional) as its parts."""
+    path, _, rest = text.rpartition("@") if "@" in text else (text, "", "")
+    if not path:
+        path, rest = text, ""
+    rate_text, _, filt = rest.partition(":")
+    try:
+        rate = float(rate_text) if rate_text else None
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r}: the sample rate after @ must be a number (FILE@RATE[:FAMILY/ORDER/CUTOFF])"
+        ) from None
+    aa = None
+    if filt:
+        parts = filt.split("/")
+        if len(parts) != 3:
+            raise argparse.ArgumentTypeError(
+                f"{text!r}: give the filter as FAMILY/ORDER/CUTOFF, e.g. butterworth/2/5000"
+            )
+        try:
+            aa = {"family": parts[0], "order": int(parts[1]), "cutoff_hz": float(parts[2])}
+        except ValueError:
+            raise argparse.ArgumentTypeError(
+                f"{text!r}: the filter's order and cutoff must be numbers (FAMILY/ORDER/CUTOFF)"
+            ) from None
+    return path, rate, aa
+
+
+def _compare_request(ns: argparse.Namespace) -> tuple[dict[str, Any], dict[str, Any]]:
+    """The compare request and its files, from --request, --demo, --capture or FILE_A FILE_B."""
+    from ..demo import demo_compare_request
+    from ..usecases.measure import Upload
+
+    if ns.demo:
+        req: dict[str, Any] = json.loads(json.dumps(demo_compare_request()))
+    elif ns.request:
+        req = _load_json(ns.request)
+    else:
+        req = {}
+    given = list(ns.capture or [])
+    if ns.file_a or ns.file_b:
+        if given or not (ns.file_a and ns.file_b):
+            raise ValueError("give two files (FILE_A FILE_B) or repeated --capture, not both")
+        given = [(ns.file_a, ns.rate_a, None), (ns.file_b, ns.rate_b, None)]
+    uploads: dict[str, Any] = {}
+    if given:
+        shared = _chain_fields(ns).get("anti_alias")
+        caps = []
+        for k, (file, rate, aa) in enumerate(given):
+            path = Path(file)
+            uploads[f"captures[{k}]"] = Upload(data=path.read_bytes(), filename=path.name)
+            cap: dict[str, Any] = {}
+            if rate is not None:
+                cap["sample_rate_hz"] = rate
+                if not path.name.lower().endswith((".wav", ".wave")):
+                    cap["upload"] = {"sample_rate_hz": rate}
+            if aa or shared:
+                cap["anti_alias"] = aa or shared
+            caps.append(cap)
+        req.pop("a", None)
+        req.pop("b", None)
+        req["captures"] = caps
+    options = {
+        "threshold_db": ns.threshold,
+        "max_true_hz": ns.max_true,
+        "drift_pct": ns.drift,
+        "level_tolerance_db": ns.level_tolerance,
+        "full_scale_db": ns.full_scale,
+        "prior_weight": ns.prior_weight,
+        "settle_rates_hz": ns.settle_rates,
+    }
+    req.update({k: v for k, v in options.items() if v is not None})
+    return req, uploads
+
+
 def _cmd_compare(ns: argparse.Namespace) -> int:
     from ..config import get_settings
     from ..contract.diagnose import CompareIn
     from ..usecases.compare import compare_payload
-    from ..usecases.measure import Upload
 
     def run() -> None:
-        uploads = {}
-        req: dict[str, Any] = {"a": {}, "b": {}}
-        for side, file, rate in (("a", ns.file_a, ns.rate_a), ("b", ns.file_b, ns.rate_b)):
-            path = Path(file)
-            uploads[side] = Upload(data=path.read_bytes(), filename=path.name)
-            req[side] = {"sample_rate_hz": rate}
+        req, uploads = _compare_request(ns)
         out, _ = compare_payload(CompareIn.model_validate(req), get_settings(), uploads)
         if ns.json:
             print(json.dumps(out, indent=2, ensure_ascii=False))
             return
-        for side in ("a", "b"):
-            cap = out[side]
-            print(f"capture {side.upper()} at {cap['sample_rate_hz']:g} S/s ({cap['input']})")
-            for p in cap["peaks"]:
-                print(f"  {p['freq_hz']:>10.1f} Hz  {p['verdict']:<10} {p['explanation']}")
+        for cap in out["captures"]:
+            print(f"capture {cap['label']} at {cap['sample_rate_hz']:g} S/s ({cap['input']})")
+        print(f"\n{out['sentence']}\n")
+        words = {
+            "real": "stays: real",
+            "alias": "moves: alias",
+            "ambiguous": "ambiguous",
+            "unmatched": "one capture only",
+        }
+        for g in out["groups"]:
+            print(f"  {words[g['verdict']]:<17} {g['sentence']}")
+            if g["verdict"] == "ambiguous":
+                listed = ", ".join(f"{c['true_hz']:g}" for c in g["candidates"][:6])
+                print(f"  {'':<17} candidates, Hz: {listed}")
         print(f"\nCaution: {out['caution']}")
 
     return _report_errors(run)
+
+
+def _rates(text: str) -> list[float]:
+    try:
+        return [float(x) for x in text.replace(";", ",").split(",") if x.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r}: give the rates as numbers separated by commas, e.g. 25600,51200"
+        ) from None
 
 
 def _cmd_serve(ns: argparse.Namespace) -> int:
@@ -372,11 +464,48 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--json", action="store_true", help="print the API's JSON")
     d.set_defaults(func=_cmd_diagnose)
 
-    c = sub.add_parser("compare", help="two captures at different rates: what stays, what moves")
-    c.add_argument("file_a")
-    c.add_argument("file_b")
+    c = sub.add_parser(
+        "compare",
+        help="2 to 6 captures at different rates: what stays, what moves, true frequencies",
+    )
+    c.add_argument("file_a", nargs="?", help="first capture (two-capture form)")
+    c.add_argument("file_b", nargs="?", help="second capture (two-capture form)")
     c.add_argument("--rate-a", type=float, metavar="HZ", help="sample rate of the first")
     c.add_argument("--rate-b", type=float, metavar="HZ", help="sample rate of the second")
+    c.add_argument(
+        "--capture",
+        action="append",
+        type=_parse_capture,
+        metavar="FILE@RATE[:FAMILY/ORDER/CUTOFF]",
+        help="a capture, its sample rate and its anti-alias filter, e.g. "
+        "a.csv@12800:butterworth/2/5000 (repeat 2 to 6 times)",
+    )
+    c.add_argument("--request", metavar="FILE", help="a JSON request as the API takes it")
+    c.add_argument("--demo", action="store_true", help="the demo bench at 12.8 and 16 kS/s")
+    _filter_args(c.add_argument_group("anti-alias filter of every capture without its own"))
+    c.set_defaults(sample_rate=None)
+    a = c.add_argument_group("analysis")
+    a.add_argument(
+        "--threshold", type=float, metavar="DB", help="peak threshold above the floor, dB"
+    )
+    a.add_argument(
+        "--max-true",
+        type=float,
+        metavar="HZ",
+        help="highest true frequency (the sensor's bandwidth); default 10x the highest rate",
+    )
+    a.add_argument("--drift", type=float, metavar="PCT", help="speed drift between captures, %%")
+    a.add_argument("--level-tolerance", type=float, metavar="DB", help="spread of a peak level, dB")
+    a.add_argument("--full-scale", type=float, metavar="DB", help="converter full scale, dB")
+    a.add_argument(
+        "--prior-weight", type=float, metavar="W", help="lower-frequency prior, log10 units (0 off)"
+    )
+    a.add_argument(
+        "--settle-rates",
+        type=_rates,
+        metavar="HZ,HZ,...",
+        help="the converter's available rates, for the rate that would settle an ambiguity",
+    )
     c.add_argument("--json", action="store_true", help="print the API's JSON")
     c.set_defaults(func=_cmd_compare)
 

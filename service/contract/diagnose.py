@@ -21,7 +21,11 @@ from .sources import SourceIn
 
 __all__ = [
     "CaptureIn",
+    "CaptureOut",
+    "CompareCandidateOut",
+    "CompareGroupOut",
     "CompareIn",
+    "ComparePeakOut",
     "DiagnoseIn",
     "SpectrumIn",
     "SpectrumOptionsIn",
@@ -162,27 +166,139 @@ class DiagnoseIn(_ChainOptional):
 
 
 class CaptureIn(_ChainOptional):
-    """One capture of the two-rate test: its chain and its spectrum or time record."""
+    """One capture of the multi-rate test: its chain and its spectrum or time record."""
 
     model_config = _MEASURED_INPUT
 
     spectrum: SpectrumIn | None = None
     time_record: TimeRecordIn | None = None
     upload: UploadIn | None = None
+    label: str | None = Field(
+        None, min_length=1, max_length=40, description="A name; default A, B, C, ..."
+    )
+
+
+#: Captures per multi-rate test (the core's bounds).
+MIN_CAPTURES, MAX_CAPTURES = 2, 6
 
 
 class CompareIn(StrictModel):
-    """The same signal captured at two sample rates: which peaks stay, which move."""
+    """The same signal captured at 2 to 6 sample rates: which peaks stay, which move, and
+    which true frequencies the moving ones can have.
 
-    a: CaptureIn
-    b: CaptureIn
-    spectrum_options: SpectrumOptionsIn = Field(default_factory=SpectrumOptionsIn)
-    threshold_db: float = Field(10.0, ge=0, le=200, allow_inf_nan=False)
-    level_tolerance_db: float = Field(6.0, gt=0, le=60, allow_inf_nan=False)
-    max_true_hz: Hz | None = Field(
-        None, description="Highest true frequency to consider; default 10× the higher rate"
+    Give the captures either as ``captures`` (2 to 6) or as ``a`` and ``b`` (the
+    two-capture form, read as ``captures = [a, b]``), not both.
+    """
+
+    model_config = strict_with_rules(
+        [
+            {
+                "oneOf": [
+                    {"required": ["captures"]},
+                    {"required": ["a", "b"]},
+                ]
+            },
+            not_together("captures", "a"),
+            not_together("captures", "b"),
+        ],
+        depends={"a": ["b"], "b": ["a"]},
     )
-    max_peaks: int = Field(500, ge=1, le=5000)
+
+    captures: list[CaptureIn] | None = Field(
+        None,
+        min_length=MIN_CAPTURES,
+        max_length=MAX_CAPTURES,
+        description="2 to 6 captures of the same signal at different final sample rates",
+    )
+    a: CaptureIn | None = Field(None, description="Two-capture form: the first capture")
+    b: CaptureIn | None = Field(None, description="Two-capture form: the second capture")
+    spectrum_options: SpectrumOptionsIn = Field(default_factory=SpectrumOptionsIn)
+    threshold_db: float = Field(
+        10.0,
+        ge=0,
+        le=200,
+        allow_inf_nan=False,
+        description="A peak must stand this far above the noise floor, dB",
+    )
+    level_tolerance_db: float = Field(
+        3.0,
+        gt=0,
+        le=60,
+        allow_inf_nan=False,
+        description="Spread of a measured peak level, dB: the level a capture implies "
+        "before its chain must agree across captures within about this",
+    )
+    max_true_hz: Hz | None = Field(
+        None,
+        description="Highest true frequency the signal can hold, Hz; default 10× the "
+        "highest rate. Set it to the sensor's or transducer's bandwidth: when it lies "
+        "inside the unambiguous range of the rates, the answers are unique",
+    )
+    drift_pct: float = Field(
+        0.5,
+        ge=0,
+        le=20,
+        allow_inf_nan=False,
+        description="Machine-speed drift allowed between the captures, % (a line that "
+        "moves less than this is still the same line)",
+    )
+    full_scale_db: float | None = Field(
+        None,
+        ge=-400,
+        le=400,
+        allow_inf_nan=False,
+        description="Converter full scale on the spectra's dB scale (20·log10 of the "
+        "linear amplitude): a candidate that would need a level far above it before the "
+        "chain is implausible. Leave out when the spectra are not in units of full scale",
+    )
+    prior_weight: float = Field(
+        0.0,
+        ge=0,
+        le=10,
+        allow_inf_nan=False,
+        description="Belief that lower true frequencies are likelier: this many log10 "
+        "units of evidence per unambiguous range. 0 (default) leaves it out; an answer "
+        "that only this belief decides says so (decided_by_prior)",
+    )
+    settle_rates_hz: list[Rate] | None = Field(
+        None,
+        min_length=1,
+        max_length=200,
+        description="The converter's available sample rates, S/s, from which to propose "
+        "the rate that would settle an ambiguous answer; default a common series",
+    )
+    band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
+        None, description="Band of interest in the captured spectra, Hz (flags groups in it)"
+    )
+    max_peaks: int = Field(200, ge=1, le=500, description="Peaks per capture, strongest first")
+
+    @model_validator(mode="after")
+    def _check(self) -> CompareIn:
+        pair = (self.a is not None) + (self.b is not None)
+        if self.captures is not None and pair:
+            raise ValueError("give either captures or a and b, not both")
+        if self.captures is None and pair != 2:
+            raise ValueError(
+                "give captures (2 to 6), or both a and b: the test needs at least two captures"
+            )
+        if self.band_hz is not None and self.band_hz[1] <= self.band_hz[0]:
+            raise ValueError(f"band_hz={list(self.band_hz)} must be [low, high] with low < high")
+        return self
+
+    @property
+    def capture_list(self) -> list[CaptureIn]:
+        """The captures in order, whichever form the request used."""
+        if self.captures is not None:
+            return list(self.captures)
+        assert self.a is not None and self.b is not None
+        return [self.a, self.b]
+
+    @property
+    def capture_fields(self) -> list[str]:
+        """The request path of each capture (``captures[2]``, or ``a``/``b``)."""
+        if self.captures is not None:
+            return [f"captures[{i}]" for i in range(len(self.captures))]
+        return ["a", "b"]
 
 
 class AlternativeOut(BaseModel):
@@ -249,11 +365,108 @@ class DiagnoseOut(BaseModel):
     saved: SavedLinkOut | None = Field(None, description="With `?save=true`: the link")
 
 
+class CompareCandidateOut(BaseModel):
+    """A candidate true frequency of a group and its evidence; lists are per capture."""
+
+    true_hz: float = Field(description="Candidate true frequency, Hz")
+    zone: list[int] = Field(description="Nyquist zone in each capture (1 = not aliased)")
+    apparent_hz: list[float] = Field(description="Where it lands in each capture, Hz")
+    freq_error_hz: list[float | None] = Field(
+        description="Landing point minus the measured peak, Hz; null where no peak"
+    )
+    level_error_db: list[float | None] = Field(
+        description="Level before the chain implied by this capture minus the mean over "
+        "the captures, dB; null where no peak"
+    )
+    attenuation_db: list[float] = Field(description="Each chain's attenuation here, dB")
+    in_range: bool = Field(description="Inside the unambiguous range")
+    score: float = Field(description="Evidence, log10 units: 0 best, -1 ten times less likely")
+    tied: bool = Field(description="Tied for best: the captures cannot tell it from the top")
+
+
+class CompareGroupOut(BaseModel):
+    """Peaks matched across the captures as one tone, and what it is."""
+
+    id: int
+    verdict: Literal["real", "alias", "ambiguous", "unmatched"] = Field(
+        description="real: stays put; alias: moves, one true frequency; ambiguous: moves "
+        "or stays, but several true frequencies fit equally; unmatched: seen in one "
+        "capture only, or no common true frequency"
+    )
+    true_hz: float | None = Field(description="The true frequency, only when unique, Hz")
+    peaks: list[int | None] = Field(description="Index of the peak in each capture")
+    freq_hz: list[float | None] = Field(description="Measured peak in each capture, Hz")
+    level_db: list[float | None] = Field(description="Its level, dB (20·log10 amplitude)")
+    candidates: list[CompareCandidateOut] = Field(
+        description="Best first: the tied ones by ascending frequency, then the rest"
+    )
+    tied: int = Field(description="Candidates tied for best")
+    decided_by_prior: bool = Field(
+        description="Only the lower-frequency prior (prior_weight) separated the answer"
+    )
+    unambiguous_hz: float | None = Field(
+        description="Unique answers below this true frequency, Hz (null when unmatched)"
+    )
+    error_bound_hz: float | None = Field(
+        description="Remainder-error bound of the group's rates (a quarter of their "
+        "greatest common divisor), Hz: answers are unique while every capture reads within "
+        "it (null when unmatched)"
+    )
+    period_hz: float | None = Field(
+        description="When ambiguous: candidates repeat with this period, Hz"
+    )
+    settle_rate_hz: float | None = Field(
+        description="When ambiguous: the additional sample rate that best separates the "
+        "tied candidates, S/s"
+    )
+    settle_separation_bins: float | None = Field(
+        description="How far apart those candidates land at that rate, in its bins (3200 lines)"
+    )
+    in_band: bool
+    sentence: str = Field(description="One plain sentence")
+
+
+class ComparePeakOut(BaseModel):
+    freq_hz: float = Field(description="Refined peak frequency, Hz")
+    amplitude: float = Field(description="Peak amplitude (linear)")
+    level_db: float = Field(description="20·log10(amplitude)")
+    verdict: Literal["real", "alias", "ambiguous", "unmatched"] = Field(
+        description="Its group's verdict"
+    )
+    aliased: bool | None = Field(
+        description="The peak is folded in this capture (true for every candidate); null "
+        "when the candidates disagree"
+    )
+    group: int = Field(description="Id of its group in `groups`")
+    true_hz: float | None = Field(description="The group's true frequency when unique, Hz")
+    explanation: str
+
+
+class CaptureOut(BaseModel):
+    label: str
+    sample_rate_hz: float = Field(description="Final sample rate, S/s")
+    input: str = Field(description="What was read")
+    stages: list[str]
+    bin_width_hz: float
+    counts: dict[str, int] = Field(description="Peaks per verdict")
+    peaks: list[ComparePeakOut]
+
+
 class CompareOut(BaseModel):
-    a: dict[str, Any]
-    b: dict[str, Any]
-    tolerance_hz: float
-    max_true_hz: float
+    captures: list[CaptureOut]
+    groups: list[CompareGroupOut] = Field(description="Real lines first, then by frequency")
+    counts: dict[str, int] = Field(description="Groups per verdict")
+    rates_hz: list[float]
+    resolution_hz: float = Field(description="Greatest common divisor of the rates, Hz")
+    unambiguous_hz: float = Field(
+        description="True frequencies below this are told apart by the captures, Hz"
+    )
+    error_bound_hz: float
+    max_true_hz: float = Field(description="Highest true frequency considered, Hz")
+    drift_pct: float
+    sentence: str
+    a: CaptureOut | None = Field(None, description="Two-capture form: captures[0] again")
+    b: CaptureOut | None = Field(None, description="Two-capture form: captures[1] again")
     caution: str
     computation_version: str
     saved: SavedLinkOut | None = Field(None, description="With `?save=true`: the link")

@@ -373,6 +373,18 @@ class RunUpOut(BaseModel):
     crossings_total: int
 
 
+class ConfirmRateOut(BaseModel):
+    """A second sample rate to confirm the plan's aliases with a multi-rate test."""
+
+    sample_rate_hz: float = Field(description="The additional rate, S/s, from the rates considered")
+    separation_bins: float = Field(
+        description="Smallest distance, in that capture's bins (same lines), between where "
+        "an aliased tone and a real line at its apparent frequency would land"
+    )
+    tones: list[str] = Field(description="The aliased tones it tells from real lines")
+    sentence: str
+
+
 class PlanOut(BaseModel):
     band_hz: tuple[float, float]
     speed_range: dict[str, Any] = Field(description="Speeds planned for: factor and rpm")
@@ -381,5 +393,11 @@ class PlanOut(BaseModel):
     rejected: list[RejectedOut] = Field(description="Every cheaper option, in cost order")
     residual_risk: list[str]
     runup: RunUpOut | None = None
+    confirm_rate: ConfirmRateOut | None = Field(
+        None,
+        description="A second rate to confirm aliases: when tones alias into the band, "
+        "the additional rate that best separates them from real lines (a capture at both "
+        "rates is the multi-rate test of /api/v1/compare-rates); null when none alias",
+    )
     caution: str
     computation_version: str

@@ -47,3 +47,7 @@ class SavedRecordOut(BaseModel):
     spectrum: dict[str, list[float]] | None = Field(
         None, description="The measured spectrum, if the result has one (freq_hz, amplitude)"
     )
+    spectra: list[dict[str, list[float]]] | None = Field(
+        None,
+        description="A comparison's spectra, one per capture in order (freq_hz, amplitude)",
+    )

@@ -80,6 +80,7 @@ class StoreAccess:
                 __version__,
                 spectrum=parts.spectrum,
                 title=title,
+                spectra=parts.spectra,
             )
         except ValueError as exc:
             raise Problem(413, str(exc), field="request") from exc

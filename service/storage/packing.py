@@ -31,7 +31,7 @@ import zlib
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-__all__ = ["FORMAT_VERSION", "pack_spectrum", "unpack_spectrum"]
+__all__ = ["FORMAT_VERSION", "pack_spectra", "pack_spectrum", "unpack_spectra", "unpack_spectrum"]
 
 FORMAT_VERSION = 1
 _MAGIC = b"FWSP"
@@ -126,6 +126,27 @@ def pack_spectrum(freq_hz: ArrayLike, amplitude: ArrayLike) -> bytes:
     return header + zlib.compress(payload, 6)
 
 
+def pack_spectra(pairs: list[tuple[ArrayLike, ArrayLike]]) -> bytes:
+    """Several spectra (a multi-rate comparison's captures) as their blobs back to back.
+
+    Each blob is exactly :func:`pack_spectrum`'s, so one spectrum packed either way is
+    the same bytes and :func:`unpack_spectrum` reads the first of several.
+    """
+    if not pairs:
+        raise ValueError("spectra is empty; give at least one (freq_hz, amplitude) pair")
+    return b"".join(pack_spectrum(f, a) for f, a in pairs)
+
+
+def unpack_spectra(blob: bytes) -> list[tuple[NDArray[np.float64], NDArray[np.float64]]]:
+    """Every spectrum of a blob made by :func:`pack_spectra` (or :func:`pack_spectrum`)."""
+    out = []
+    rest = bytes(blob)
+    while rest:
+        freq, amp, rest = _unpack_one(rest)
+        out.append((freq, amp))
+    return out
+
+
 def unpack_spectrum(blob: bytes) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Unpack a blob made by :func:`pack_spectrum`.
 
@@ -146,6 +167,13 @@ def unpack_spectrum(blob: bytes) -> tuple[NDArray[np.float64], NDArray[np.float6
     ValueError
         When the blob is truncated, corrupt, or of an unknown format version.
     """
+    freq, amp, _rest = _unpack_one(bytes(blob))
+    return freq, amp
+
+
+def _unpack_one(
+    blob: bytes,
+) -> tuple[NDArray[np.float64], NDArray[np.float64], bytes]:
     blob = bytes(blob)
     if len(blob) < _HEADER.size:
         raise ValueError(f"spectrum blob has {len(blob)} bytes; the header alone is {_HEADER.size}")
@@ -181,4 +209,4 @@ def unpack_spectrum(blob: bytes) -> tuple[NDArray[np.float64], NDArray[np.float6
     else:
         freq = _unshuffle(payload[: 4 * n], n).astype(np.float64)
         amp32 = _unshuffle(payload[4 * n :], n)
-    return freq, amp32.astype(np.float64)
+    return freq, amp32.astype(np.float64), inflater.unused_data

@@ -45,7 +45,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.orm import Session
 
 from service.storage.models import KINDS, SavedDiagnosisRow
-from service.storage.packing import pack_spectrum, unpack_spectrum
+from service.storage.packing import pack_spectra, pack_spectrum, unpack_spectra
 
 __all__ = [
     "DEFAULT_MAX_JSON_BYTES",
@@ -101,6 +101,8 @@ class SavedDiagnosis:
     result: dict[str, Any]
     spectrum: tuple[np.ndarray, np.ndarray] | None
     title: str | None
+    #: Every stored spectrum (a comparison keeps one per capture); ``spectrum`` is the first.
+    spectra: tuple[tuple[np.ndarray, np.ndarray], ...] = ()
 
 
 def _hash_token(token: str) -> str:
@@ -290,6 +292,7 @@ class Store:
         app_version: str,
         spectrum: tuple[np.ndarray, np.ndarray] | None = None,
         title: str | None = None,
+        spectra: list[tuple[np.ndarray, np.ndarray]] | None = None,
     ) -> tuple[str, str]:
         """Save a record; return ``(id, delete_token)`` once it is committed.
 
@@ -307,6 +310,9 @@ class Store:
             (float32 precision).
         title : str, optional
             At most 200 characters.
+        spectra : list of (ndarray, ndarray), optional
+            Several spectra instead of ``spectrum`` (a comparison's captures), each
+            packed the same way, back to back (:func:`pack_spectra`).
 
         Returns
         -------
@@ -335,6 +341,12 @@ class Store:
             if not isinstance(spectrum, tuple | list) or len(spectrum) != 2:
                 raise ValueError("spectrum must be a pair (freq_hz, amplitude)")
             blob = pack_spectrum(spectrum[0], spectrum[1])
+        if spectra is not None:
+            if blob is not None:
+                raise ValueError("give spectrum or spectra, not both")
+            if any(not isinstance(p, tuple | list) or len(p) != 2 for p in spectra):
+                raise ValueError("spectra must be a list of pairs (freq_hz, amplitude)")
+            blob = pack_spectra([(p[0], p[1]) for p in spectra])
 
         record_id = secrets.token_urlsafe(_ID_BYTES)
         token = secrets.token_urlsafe(_TOKEN_BYTES)
@@ -374,6 +386,7 @@ class Store:
             # hands back the session time zone.
             created = created.replace(tzinfo=UTC) if created.tzinfo is None else created
             created = created.astimezone(UTC)
+            spectra = () if row.spectrum is None else tuple(unpack_spectra(row.spectrum))
             return SavedDiagnosis(
                 id=row.id,
                 kind=row.kind,
@@ -382,8 +395,9 @@ class Store:
                 app_version=row.app_version,
                 request=row.request,
                 result=row.result,
-                spectrum=None if row.spectrum is None else unpack_spectrum(row.spectrum),
+                spectrum=spectra[0] if spectra else None,
                 title=row.title,
+                spectra=spectra,
             )
 
     def delete(self, record_id: str, token: str) -> DeleteOutcome:

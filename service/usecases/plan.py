@@ -20,6 +20,8 @@ from ..contract.fold import chain_to_request
 from ..contract.plan import FilterIn, PlanIn
 from ..core import planning as pl
 from ..core.chain import SensorResonance
+from ..core.multirate import settle_rate
+from ..core.plan_common import RATE_SERIES
 from ..core.tones import ToneSet
 from .errors import InputError, PlanImpossibleError, RequestError
 from .fold import tones_from_request
@@ -441,6 +443,58 @@ def _check_work(req: PlanIn, n_tones: int) -> None:
     )
 
 
+#: Aliased tones weighed for the confirming rate (the worst margins first).
+CONFIRM_MAX_TONES = 50
+
+
+def confirm_rate(req: PlanIn, out: dict[str, Any]) -> dict[str, Any] | None:
+    """A second rate to confirm aliases: of the rates the plan considered, the one at
+    which the planned aliased tones land farthest from real lines at their apparent
+    frequencies (:func:`service.core.multirate.settle_rate`); None when none alias."""
+    rows = [t for t in out["tones"] if t["aliases_into_band"] and t["true_hz"] is not None]
+    if not rows:
+        return None
+    rows.sort(key=lambda t: t["margin_db"] if t["margin_db"] is not None else math.inf)
+    rows = rows[:CONFIRM_MAX_TONES]
+    rec = out["recommendation"]
+    offered = (
+        req.rates_hz if req.rates_hz is not None else RATE_SERIES[req.rate_series or "converter"]
+    )
+    # Common practice: analysed span = rate / 2.56; the second capture still covers the band.
+    pool = [r for r in offered if r / 2.56 >= out["band_hz"][1]] or list(offered)
+    # An alias and a real line at its apparent frequency read the same at the planned
+    # rate; the other rate must set every such pair apart (two different tones close
+    # together stay close at any rate, so only the pairs count). Lower rate on a tie.
+    rate, bins = math.nan, -1.0
+    for r in sorted(set(pool) - {rec["sample_rate_hz"]}):
+        worst = min(
+            settle_rate([t["true_hz"], t["apparent_hz"]], (r,), lines=rec["lines"])[1] for t in rows
+        )
+        if worst > bins * (1 + 1e-9) + 1e-12:
+            rate, bins = float(r), worst
+    if not math.isfinite(rate):
+        return None
+    names = [t["label"] for t in rows]
+    listed = ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
+    sentence = (
+        f"To confirm the aliases ({listed}), capture also at {rate:g} S/s with "
+        f"{rec['lines']} lines: there each lands at least {bins:.0f} bins from a real "
+        "line at its apparent frequency, so the aliases move and real lines stay."
+    )
+    if bins < 2:
+        sentence = (
+            f"Of the rates considered, {rate:g} S/s separates the aliases ({listed}) from "
+            f"real lines best, but by only {bins:.1f} bins at {rec['lines']} lines: "
+            "offer more rates, or confirm with a wider-band measurement."
+        )
+    return {
+        "sample_rate_hz": rate,
+        "separation_bins": round(bins, 2),
+        "tones": names,
+        "sentence": sentence,
+    }
+
+
 def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
     """Plan (and, when asked, the run-up) for a validated request, as plain JSON data.
 
@@ -457,6 +511,7 @@ def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
         raise _impossible(exc, req) from exc
     out = plan_to_dict(result, tones, req.nominal_rpm)
     out["runup"] = runup_payload(req, result, tones) if req.runup is not None else None
+    out["confirm_rate"] = confirm_rate(req, out)
     out["caution"] = CAUTION
     out["computation_version"] = COMPUTATION_VERSION
     return out

@@ -29,6 +29,7 @@ __all__ = [
     "SAVEABLE",
     "InvalidSavedRequest",
     "SaveParts",
+    "measured_spectra",
     "saved_link",
     "saved_parts",
     "saved_record",
@@ -45,6 +46,8 @@ class SaveParts:
     request: dict[str, Any]
     result: dict[str, Any]
     spectrum: tuple[np.ndarray, np.ndarray] | None = None
+    #: A comparison's spectra, one per capture (stored instead of ``spectrum``).
+    spectra: list[tuple[np.ndarray, np.ndarray]] | None = None
 
 
 def stored_request(kind: str, req: BaseModel) -> dict[str, Any]:
@@ -53,7 +56,7 @@ def stored_request(kind: str, req: BaseModel) -> dict[str, Any]:
     if kind == "diagnose":
         exclude = _SIDE
     elif kind == "compare":
-        exclude = {"a": _SIDE, "b": _SIDE}
+        exclude = {"a": _SIDE, "b": _SIDE, "captures": {"__all__": _SIDE}}
     dumped: dict[str, Any] = req.model_dump(mode="json", exclude_none=True, exclude=exclude)
     return dumped
 
@@ -63,9 +66,22 @@ def saved_parts(
     req: BaseModel,
     result: dict[str, Any],
     spectrum: tuple[np.ndarray, np.ndarray] | None = None,
+    spectra: list[tuple[np.ndarray, np.ndarray]] | None = None,
 ) -> SaveParts:
     """What is stored for a result already computed (``?save=true``, a page's form)."""
-    return SaveParts(request=stored_request(kind, req), result=result, spectrum=spectrum)
+    return SaveParts(
+        request=stored_request(kind, req), result=result, spectrum=spectrum, spectra=spectra
+    )
+
+
+def measured_spectra(kind: str, measured: Any) -> dict[str, Any]:
+    """The spectra a result keeps: a diagnosis its one spectrum, a comparison one per
+    capture (enough to redraw its page)."""
+    if kind == "diagnose":
+        return {"spectrum": (measured.freq_hz, measured.amplitude)}
+    if kind == "compare":
+        return {"spectra": [(m.freq_hz, m.amplitude) for m in measured]}
+    return {}
 
 
 def saved_link(rid: str, token: str) -> dict[str, str]:
@@ -91,8 +107,8 @@ def _diagnose(req: BaseModel, settings: Settings) -> SaveParts:
 
 def _compare(req: BaseModel, settings: Settings) -> SaveParts:
     assert isinstance(req, CompareIn)
-    payload, _ = compare_payload(req, settings)
-    return saved_parts("compare", req, payload)
+    payload, measured = compare_payload(req, settings)
+    return saved_parts("compare", req, payload, **measured_spectra("compare", measured))
 
 
 def _plan(req: BaseModel, settings: Settings) -> SaveParts:
@@ -135,9 +151,12 @@ def validate_for_kind(kind: str, request: dict[str, Any]) -> BaseModel:
 def saved_record(rec: Any, include_spectrum: bool = True) -> dict[str, Any]:
     """A stored record as the API answers it (the measured spectrum as lists)."""
     spectrum = None
+    spectra = None
     if include_spectrum and rec.spectrum is not None:
         f, a = rec.spectrum
         spectrum = {"freq_hz": f.tolist(), "amplitude": a.tolist()}
+    if include_spectrum and len(getattr(rec, "spectra", ())) > 1:
+        spectra = [{"freq_hz": f.tolist(), "amplitude": a.tolist()} for f, a in rec.spectra]
     return {
         "id": rec.id,
         "kind": rec.kind,
@@ -149,4 +168,5 @@ def saved_record(rec: Any, include_spectrum: bool = True) -> dict[str, Any]:
         "request": rec.request,
         "result": rec.result,
         "spectrum": spectrum,
+        "spectra": spectra,
     }

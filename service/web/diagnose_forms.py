@@ -22,10 +22,13 @@ from ..usecases.measure import Upload
 from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, _problem_field
 
 __all__ = [
+    "COMPARE_OPTIONS",
     "DIAGNOSE_LABELS",
     "READ_KINDS",
+    "REQUIRED_SIDES",
     "SHARE_FIELDS_LIMIT",
     "SHARE_TEXT_LIMIT",
+    "SIDES",
     "UNITS",
     "WINDOWS",
     "CompareForm",
@@ -200,7 +203,9 @@ def attach_diagnose_problem(f: DiagnoseForm, p: Problem) -> None:
 
 # --------------------------------------------------------------------------- compare
 
-SIDES = ("a", "b")
+#: Capture rows of the compare form: A and B always, C to F when filled in.
+SIDES = ("a", "b", "c", "d", "e", "f")
+REQUIRED_SIDES = ("a", "b")
 _CAPTURE_FIELDS = {
     "spectrum_text": "pasted spectrum",
     "file": "file",
@@ -215,8 +220,12 @@ COMPARE_LABELS = {
     **{f"{s}_{k}": f"Capture {s.upper()}, {v}" for s in SIDES for k, v in _CAPTURE_FIELDS.items()},
     "threshold_db": "Peak threshold",
     "max_true_hz": "Highest true frequency",
+    "drift_pct": "Speed drift between captures",
+    "settle_rates_hz": "Converter's available rates",
     "share_title": "Title of the link",
 }
+#: Analysis fields of the compare form, as the request names them.
+COMPARE_OPTIONS = ("threshold_db", "max_true_hz", "drift_pct", "settle_rates_hz")
 
 
 @dataclass
@@ -227,11 +236,13 @@ class CompareForm:
     pasted: dict[str, bool] = field(default_factory=dict)
     share: bool = False
     title: str | None = None
+    #: The form row (a, b, ...) of each capture in the request, in order.
+    rows: list[str] = field(default_factory=list)
 
 
 def blank_compare_form() -> FormState:
     st = FormState()
-    st.values = {"threshold_db": "10"}
+    st.values = {"threshold_db": "10", "drift_pct": "0.5"}
     for s in SIDES:
         st.values.update({f"{s}_kind": "auto", f"{s}_unit": "auto", f"{s}_aa_family": ""})
     return st
@@ -244,21 +255,24 @@ def parse_compare_form(form: Mapping[str, str], files: Mapping[str, Upload]) -> 
     out = CompareForm(None, st)
     out.share = form.get("share", "") in ("1", "on", "true")
     out.title = form.get("share_title", "").strip()[:200] or None
-    req: dict[str, Any] = {}
+    req: dict[str, Any] = {"captures": []}
     for s in SIDES:
         text = form.get(f"{s}_spectrum_text", "")
         pasted = bool(text.strip())
         out.pasted[s] = pasted
+        rate = form.get(f"{s}_sample_rate_hz", "").strip()
+        if s not in REQUIRED_SIDES and not pasted and s not in files and not rate:
+            continue  # an optional row left empty
         fid = f"{s}_spectrum_text"
         if pasted and s in files:
             st.add_error(fid, COMPARE_LABELS[fid], "paste a spectrum or choose a file, not both")
         elif not pasted and s not in files:
             st.add_error(fid, COMPARE_LABELS[fid], "paste a spectrum or choose a file")
         up = Upload(text.encode("utf-8"), f"pasted-{s}.csv") if pasted else files.get(s)
+        field_name = f"captures[{len(out.rows)}]"
         if up is not None:
-            out.uploads[s] = up
-        cap: dict[str, Any] = {}
-        rate = form.get(f"{s}_sample_rate_hz", "").strip()
+            out.uploads[field_name] = up
+        cap: dict[str, Any] = {"label": s.upper()}
         if rate:
             cap["sample_rate_hz"] = rate
         family = form.get(f"{s}_aa_family", "").strip()
@@ -277,10 +291,13 @@ def parse_compare_form(form: Mapping[str, str], files: Mapping[str, Upload]) -> 
         if rate and not name.endswith((".wav", ".wave")):
             read["sample_rate_hz"] = rate
         cap["upload"] = read
-        req[s] = cap
-    for key in ("threshold_db", "max_true_hz"):
+        req["captures"].append(cap)
+        out.rows.append(s)
+    for key in COMPARE_OPTIONS:
         raw = form.get(key, "").strip()
-        if raw:
+        if raw and key == "settle_rates_hz":
+            req[key] = [x for x in re.split(r"[\s,;]+", raw) if x]
+        elif raw:
             req[key] = raw
     if st.summary:
         return out
@@ -289,9 +306,17 @@ def parse_compare_form(form: Mapping[str, str], files: Mapping[str, Upload]) -> 
     except ValidationError as exc:
         for e in exc.errors():
             loc = [p for p in e.get("loc", ()) if not (isinstance(p, str) and "[" in p)]
-            fid, words = _locate_compare(loc, out.pasted)
+            fid, words = _locate_compare(_row_loc(loc, out.rows), out.pasted)
             st.add_error(fid, words, _message(e))
     return out
+
+
+def _row_loc(loc: Sequence[Any], rows: Sequence[str]) -> list[Any]:
+    """A request location under ``captures[i]`` as the form row's (``b``, ...)."""
+    loc = list(loc)
+    if len(loc) > 1 and loc[0] == "captures" and isinstance(loc[1], int) and loc[1] < len(rows):
+        return [rows[loc[1]], *loc[2:]]
+    return loc
 
 
 def _locate_compare(loc: Sequence[Any], pasted: Mapping[str, bool]) -> tuple[str | None, str]:
@@ -312,14 +337,15 @@ def _locate_compare(loc: Sequence[Any], pasted: Mapping[str, bool]) -> tuple[str
         else:
             fid = f"{head}_spectrum_text" if pasted.get(head) else f"{head}_file"
         return fid, COMPARE_LABELS[fid]
-    if head in ("threshold_db", "max_true_hz"):
+    if head in COMPARE_OPTIONS:
         return head, f"{COMPARE_LABELS[head]} ({head})"
     return None, str(head)
 
 
 def attach_compare_problem(f: CompareForm, p: Problem) -> None:
     loc: list[Any] = re.split(r"[.\[\]]+", p.field or "")
-    loc = [x for x in loc if x]
+    loc = [int(x) if x.isdigit() else x for x in loc if x]
+    loc = _row_loc(loc, f.rows)
     if loc and loc[0] in SIDES and len(loc) > 1 and loc[1] in ("file", "spectrum"):
         loc = [loc[0], "file"]
     fid, words = _locate_compare(loc, f.pasted)

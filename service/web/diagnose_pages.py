@@ -9,8 +9,7 @@ same verdicts after a restart or an upgrade.
 from __future__ import annotations
 
 import json
-import math
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -21,11 +20,11 @@ from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import FormData, UploadFile
 
 from ..config import Settings
-from ..contract.diagnose import DiagnoseIn
+from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..contract.fold import FoldIn, chain_from_request
 from ..core.chain import Chain
 from ..core.spectrum import noise_floor
-from ..demo import demo_diagnose_request
+from ..demo import demo_compare_request, demo_diagnose_request
 from ..http.keys import require_api_key
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..http.store_access import StoreAccess
@@ -33,11 +32,13 @@ from ..usecases.compare import compare_payload
 from ..usecases.diagnose import diagnose_payload
 from ..usecases.fold import fold_payload
 from ..usecases.measure import Measured, Upload
-from ..usecases.save import SaveParts, saved_parts, stored_request
+from ..usecases.save import SaveParts, measured_spectra, saved_parts, stored_request
 from . import figures
 from .diagnose_forms import (
     COMPARE_LABELS,
     DIAGNOSE_LABELS,
+    REQUIRED_SIDES,
+    SIDES,
     attach_compare_problem,
     attach_diagnose_problem,
     blank_compare_form,
@@ -71,7 +72,7 @@ MAX_TABLE_PEAKS = 400
 ALIAS_KEYS = ("alias", "family_alias", "mirror")
 #: The boxes of pasted text on each page (counted against the share-after limit).
 DIAGNOSE_TEXTS = ("spectrum_text",)
-COMPARE_TEXTS = ("a_spectrum_text", "b_spectrum_text")
+COMPARE_TEXTS = tuple(f"{s}_spectrum_text" for s in SIDES)
 
 
 def _render(
@@ -366,47 +367,54 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
 # --------------------------------------------------------------------------- compare view
 
 
-def _compare_rows(cap: Mapping[str, Any]) -> list[dict[str, Any]]:
+def _compare_groups(out: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """The groups as the page shows them: verdict words and each capture's label."""
+    labels = [c["label"] for c in out["captures"]]
     rows = []
-    for i, p in enumerate(cap["peaks"]):
-        key = figures.compare_key(p["verdict"])
-        level = p.get("amplitude")
+    for g in out["groups"]:
         rows.append(
             {
-                **p,
-                "index": i,
-                "key": key,
-                "verdict_text": figures.COMPARE_STYLES[key][0],
-                "level_db": 20 * math.log10(level) if level and level > 0 else None,
+                **g,
+                "verdict_text": figures.COMPARE_STYLES[g["verdict"]][0],
+                "seen": [
+                    (labels[k], f, lv)
+                    for k, (f, lv) in enumerate(zip(g["freq_hz"], g["level_db"], strict=True))
+                    if f is not None
+                ],
             }
         )
-    rows.sort(key=lambda r: (r["key"] != "moves", r["freq_hz"]))
+    # Moving and ambiguous groups first: they are what the test is for.
+    order = {"alias": 0, "ambiguous": 1, "unmatched": 2, "real": 3}
+    rows.sort(key=lambda r: (order[r["verdict"]], min(f for _, f, _ in r["seen"])))
     return rows[:MAX_TABLE_PEAKS]
 
 
 def compare_result_context(
-    out: dict[str, Any], spectra: dict[str, tuple[np.ndarray, np.ndarray] | None]
+    out: dict[str, Any], spectra: Sequence[tuple[np.ndarray, np.ndarray]] | None
 ) -> dict[str, Any]:
-    """The result part of the compare page; ``spectra`` maps a/b to (Hz, linear) or None."""
-    shown = {
-        k: (np.asarray(v[0], dtype=np.float64), _db(v[1])) if v is not None else None
-        for k, v in spectra.items()
-    }
-    caps = {s: out[s] for s in ("a", "b")}
-    moved = sum(1 for c in caps.values() for p in c["peaks"] if p["verdict"] == "moves")
-    stayed = sum(1 for c in caps.values() for p in c["peaks"] if p["verdict"] == "stays")
+    """The result part of the compare page; ``spectra`` holds each capture's (Hz,
+    linear) in order, or None to draw the peaks only."""
+    shown = (
+        [(np.asarray(f, dtype=np.float64), _db(a)) for f, a in spectra]
+        if spectra and len(spectra) == len(out["captures"])
+        else None
+    )
+    counts = out["counts"]
     return {
         "out": out,
         "fig": figures.compare_spectra(out, shown),
-        "rows": {s: _compare_rows(c) for s, c in caps.items()},
-        "moved_a": sum(1 for p in out["a"]["peaks"] if p["verdict"] == "moves"),
-        "moved_b": sum(1 for p in out["b"]["peaks"] if p["verdict"] == "moves"),
-        "moved": moved,
-        "stayed": stayed,
-        "has_spectrum": any(v is not None for v in spectra.values()),
+        "groups": _compare_groups(out),
+        "labels": [c["label"] for c in out["captures"]],
+        "moved": counts.get("alias", 0) + counts.get("ambiguous", 0),
+        "aliases": counts.get("alias", 0),
+        "ambiguous": counts.get("ambiguous", 0),
+        "stayed": counts.get("real", 0),
+        "unmatched": counts.get("unmatched", 0),
+        "has_spectrum": shown is not None,
         # Set by the page that computed it: its share form, or the hint to tick the box.
         "share_inputs": None,
         "share_hint": False,
+        "demo": False,
     }
 
 
@@ -417,20 +425,40 @@ async def _compare_page(
     status_code: int = 200,
     saved: dict[str, str] | None = None,
 ) -> HTMLResponse:
-    ctx = {"active": "compare", "form": state, "result": result, "saved": saved}
+    ctx = {
+        "active": "compare",
+        "form": state,
+        "result": result,
+        "saved": saved,
+        "sides": SIDES,
+        "required_sides": REQUIRED_SIDES,
+    }
     return _render(request, "compare.html", ctx, status_code=status_code)
 
 
+def _compute_compare_demo(settings: Settings) -> tuple[CompareIn, dict[str, Any], list[Measured]]:
+    req = CompareIn.model_validate(demo_compare_request())
+    out, measured = compare_payload(req, settings)
+    return req, out, measured
+
+
 @router.get("/compare", response_class=HTMLResponse)
-async def compare_form(request: Request) -> HTMLResponse:
-    return await _compare_page(request, blank_compare_form(), None)
+async def compare_form(request: Request, demo: str | None = None) -> HTMLResponse:
+    if demo in (None, "", "0"):
+        return await _compare_page(request, blank_compare_form(), None)
+    settings: Settings = request.app.state.settings
+    _, out, measured = await run_in_threadpool(_compute_compare_demo, settings)
+    spectra = [(m.freq_hz, m.amplitude) for m in measured]
+    ctx = await run_in_threadpool(compare_result_context, out, spectra)
+    ctx["demo"] = True
+    return await _compare_page(request, blank_compare_form(), ctx)
 
 
 @router.post("/compare", response_class=HTMLResponse)
 async def compare_submit(request: Request) -> HTMLResponse:
     settings: Settings = request.app.state.settings
     try:
-        form, files = await _read_form(request, ("a_file", "b_file"))
+        form, files = await _read_form(request, tuple(f"{s}_file" for s in SIDES))
     except ANSWERABLE as exc:
         p = as_problem(exc)
         st = blank_compare_form()
@@ -447,23 +475,21 @@ async def compare_submit(request: Request) -> HTMLResponse:
         p = as_problem(exc)
         attach_compare_problem(f, p)
         return await _compare_page(request, f.state, None, status_code=422)
-    spectra = {s: (m.freq_hz, m.amplitude) for s, m in measured.items()}
+    spectra = [(m.freq_hz, m.amplitude) for m in measured]
     ctx = await run_in_threadpool(compare_result_context, out, spectra)
     saved = None
     if f.share:
         try:
-            # One spectrum per record: a saved comparison keeps its peaks, not its spectra.
-            saved = await save_result(
-                request, "compare", saved_parts("compare", f.req, out, None), f.title
-            )
+            parts = saved_parts("compare", f.req, out, **measured_spectra("compare", measured))
+            saved = await save_result(request, "compare", parts, f.title)
         except ANSWERABLE as exc:
             p = as_problem(exc)
             return error_page(request, p)
     else:
-        if all(f.pasted.values()):
+        if f.rows and all(f.pasted[r] for r in f.rows):
             ctx["share_inputs"] = share_fields(fields, COMPARE_TEXTS)
         ctx["share_hint"] = ctx["share_inputs"] is None
-    for s in ("a", "b"):
+    for s in SIDES:
         f.state.values.pop(f"{s}_spectrum_text", None)
     return await _compare_page(request, f.state, ctx, saved=saved)
 
@@ -498,9 +524,9 @@ async def _share_pasted(
     c = parse_compare_form(read_share_fields(inputs, COMPARE_TEXTS), {})
     if c.req is None:
         raise _invalid_inputs(c.state)
-    out, _ = await run_in_threadpool(compare_payload, c.req, settings, c.uploads)
-    # As the tick box: a saved comparison keeps its peaks, not its spectra.
-    return await save_result(request, kind, saved_parts(kind, c.req, out, None), title)
+    out, measured = await run_in_threadpool(compare_payload, c.req, settings, c.uploads)
+    parts = saved_parts(kind, c.req, out, **measured_spectra(kind, measured))
+    return await save_result(request, kind, parts, title)
 
 
 @router.post("/share", response_class=HTMLResponse)
@@ -518,6 +544,14 @@ async def share(request: Request) -> HTMLResponse:
             saved = await save_result(request, "fold", parts, title)
         elif kind in ("diagnose", "compare"):
             saved = await _share_pasted(request, kind, str(form.get("inputs", "")), title)
+        elif kind == "compare_demo":
+            creq, cout, cm = await run_in_threadpool(_compute_compare_demo, settings)
+            saved = await save_result(
+                request,
+                "compare",
+                saved_parts("compare", creq, cout, **measured_spectra("compare", cm)),
+                title or "Demo bench comparison",
+            )
         elif kind == "diagnose_demo":
             req, out, m = await run_in_threadpool(_compute_demo, settings)
             saved = await save_result(

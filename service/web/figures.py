@@ -709,106 +709,106 @@ def diagnosis_folding_diagram(
     return fig
 
 
-#: Two-rate verdicts: legend name, colour, symbol.
+#: Multi-rate verdicts: legend name, colour, symbol.
 COMPARE_STYLES: dict[str, tuple[str, str, str]] = {
-    "moves": ("moves: alias", COLOURS["alias"], "diamond"),
-    "stays": ("stays: real", COLOURS["direct"], "circle"),
-    "only": ("in one capture only", COLOURS["unknown"], "x"),
+    "alias": ("moves: alias", COLOURS["alias"], "diamond"),
+    "ambiguous": ("ambiguous: several true frequencies fit", COLOURS["gain"], "square"),
+    "real": ("stays: real", COLOURS["direct"], "circle"),
+    "unmatched": ("in one capture only, or no common true frequency", COLOURS["unknown"], "x"),
 }
-
-
-def compare_key(verdict: str) -> str:
-    return verdict if verdict in ("moves", "stays") else "only"
 
 
 def compare_spectra(
     comparison: dict[str, Any],
-    spectra: dict[str, tuple[np.ndarray, np.ndarray] | None],
+    spectra: list[tuple[np.ndarray, np.ndarray]] | None,
     buckets: int = DEFAULT_BUCKETS,
 ) -> dict[str, Any]:
-    """Both captures of a two-rate test, one above the other on apparent frequency.
+    """The captures of a multi-rate test, one above the other on apparent frequency.
 
     Parameters
     ----------
     comparison : dict
-        The payload of POST /api/v1/compare-rates (``a`` and ``b`` with ``peaks``).
-    spectra : dict
-        ``"a"`` and ``"b"``: (frequency, Hz; level, dB) of each capture, or None to
-        draw the peaks only (a saved comparison keeps no spectra).
+        The payload of POST /api/v1/compare-rates (``captures`` with ``peaks``).
+    spectra : list or None
+        (frequency, Hz; level, dB) of each capture in order, or None to draw the peaks
+        only.
     buckets : int
         Display buckets for :func:`minmax_decimate`.
 
     Returns
     -------
     dict
-        A Plotly figure with two stacked plots. Traces ``spectrum A``, ``spectrum B``
-        and, per capture, one per verdict group (``moves: alias``, ``stays: real``,
-        ``in one capture only``) with ``legendgroup`` shared across the captures.
+        A Plotly figure with one plot per capture (2 to 6), stacked. Traces
+        ``spectrum A (rate)``... and, per capture, one per verdict (see
+        :data:`COMPARE_STYLES`) with ``legendgroup`` shared across the captures.
     """
+    caps = comparison["captures"]
+    n = len(caps)
     data: list[dict[str, Any]] = []
-    layout = _base_layout("Both captures: peaks that move with the sample rate are aliases")
+    layout = _base_layout("The captures: peaks that move with the sample rate are aliases")
     shown: set[str] = set()
-    top = 0.0
-    for row, side in enumerate(("a", "b")):
-        cap = comparison[side]
+    top = max(float(c["sample_rate_hz"]) / 2.0 for c in caps)
+    gap = 0.06
+    height = (1.0 - gap * (n - 1)) / n
+    line_colours = (COLOURS["spectrum"], COLOURS["fold"])
+    for row, cap in enumerate(caps):
         rate = float(cap["sample_rate_hz"])
-        top = max(top, rate / 2.0)
-        axis = "" if row == 0 else "2"
-        name = f"spectrum {side.upper()} ({rate:g} S/s)"
-        pair = spectra.get(side)
-        if pair is not None:
-            f, a = minmax_decimate(pair[0], pair[1], buckets)
+        label = str(cap["label"])
+        axis = "" if row == 0 else str(row + 1)
+        if spectra is not None:
+            f, a = minmax_decimate(spectra[row][0], spectra[row][1], buckets)
             data.append(
                 {
                     "type": "scatter",
                     "mode": "lines",
-                    "name": name,
+                    "name": f"spectrum {label} ({rate:g} S/s)",
                     "x": np.round(f, 4).tolist(),
                     "y": np.round(a, 2).tolist(),
                     "xaxis": f"x{axis}",
                     "yaxis": f"y{axis}",
-                    "line": {
-                        "color": COLOURS["spectrum"] if row == 0 else COLOURS["fold"],
-                        "width": 1,
-                    },
-                    "hovertemplate": "%{x:.2f} Hz: %{y:.1f} dB<extra>" + side.upper() + "</extra>",
+                    "line": {"color": line_colours[row % 2], "width": 1},
+                    "hovertemplate": "%{x:.2f} Hz: %{y:.1f} dB<extra>" + _esc(label) + "</extra>",
                 }
             )
         peaks = cap["peaks"]
-        for key, (label, colour, symbol) in COMPARE_STYLES.items():
-            idx = [i for i, p in enumerate(peaks) if compare_key(p["verdict"]) == key]
+        for key, (name, colour, symbol) in COMPARE_STYLES.items():
+            idx = [i for i, p in enumerate(peaks) if p["verdict"] == key]
             if not idx:
                 continue
             data.append(
                 {
                     "type": "scatter",
                     "mode": "markers",
-                    "name": label,
+                    "name": name,
                     "legendgroup": key,
                     "showlegend": key not in shown,
                     "x": [peaks[i]["freq_hz"] for i in idx],
-                    "y": [_level_db(peaks[i]["amplitude"]) for i in idx],
+                    "y": [peaks[i]["level_db"] for i in idx],
                     "xaxis": f"x{axis}",
                     "yaxis": f"y{axis}",
                     "marker": {"color": colour, "symbol": symbol, "size": 10},
                     "hovertext": [
-                        f"{side.upper()}: {peaks[i]['freq_hz']:.2f} Hz<br>"
+                        f"{_esc(label)}: {peaks[i]['freq_hz']:.2f} Hz<br>"
                         f"{_esc(peaks[i]['explanation'])}"
                         for i in idx
                     ],
                     "hoverinfo": "text",
-                    "customdata": idx,
+                    "customdata": [peaks[i]["group"] for i in idx],
                 }
             )
             shown.add(key)
+        low = 1.0 - (row + 1) * height - row * gap
+        last = row == n - 1
+        layout[f"xaxis{axis}"] = _axis(
+            "apparent frequency, Hz" if last else "",
+            anchor=f"y{axis}",
+            range=[0, top],
+            **({} if row == 0 else {"matches": "x"}),
+        )
+        layout[f"yaxis{axis}"] = _axis(
+            f"{_esc(label)} ({rate:g} S/s), dB", domain=[max(low, 0.0), low + height]
+        )
     layout["margin"]["t"] = 110  # room for the title above a two-row legend
     layout["legend"]["y"] = 1.03
-    layout["xaxis"] = _axis("", anchor="y", matches="x2", showticklabels=True)
-    layout["xaxis2"] = _axis("apparent frequency, Hz", anchor="y2", range=[0, top])
-    layout["yaxis"] = _axis(
-        f"A ({float(comparison['a']['sample_rate_hz']):g} S/s), dB", domain=[0.55, 1.0]
-    )
-    layout["yaxis2"] = _axis(
-        f"B ({float(comparison['b']['sample_rate_hz']):g} S/s), dB", domain=[0.0, 0.45]
-    )
+    layout["height"] = 220 + 190 * n
     return {"data": data, "layout": layout}

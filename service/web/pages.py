@@ -199,8 +199,11 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         ctx["diag"] = await run_in_threadpool(
             diagnose_result_context, record.result, record.spectrum, record.request
         )
-    elif record.kind == "compare":
-        ctx["cmp"] = compare_result_context(record.result, {"a": None, "b": None})
+    elif record.kind == "compare" and "captures" in record.result:
+        # A comparison saved before the multi-rate answer has no page: its JSON stays.
+        ctx["cmp"] = await run_in_threadpool(
+            compare_result_context, record.result, list(record.spectra) or None
+        )
     elif record.kind == "plan":
         ctx["plan"] = await run_in_threadpool(plan_result_context, record.request, record.result)
     return render(request, "saved.html", ctx)

@@ -1,4 +1,4 @@
-"""POST /api/v1/diagnose and /api/v1/compare-rates through the real app."""
+"""POST /api/v1/diagnose through the real app (compare-rates: test_compare.py)."""
 
 from __future__ import annotations
 
@@ -322,43 +322,6 @@ class TestDiagnoseErrors:
             data={"request": json.dumps(CHAIN)},
         )
         assert r.status_code == 413 and r.json()["errors"][0]["limit"] == 2048
-
-
-class TestCompareRates:
-    def test_basic(self, client: TestClient) -> None:
-        # Reference capture at two rates, no anti-alias filter: 1.2 kHz real, 13.2 kHz alias.
-        tones = [(1200.0, 0.3), (13_200.0, 0.3)]
-        fa, aa = _welch_spectrum(_capture(tones, fs=10_000, cutoff=1e6, analog_order=1), 10_000)
-        fb, ab = _welch_spectrum(_capture(tones, fs=11_500, cutoff=1e6, analog_order=1), 11_500)
-        body = {
-            "a": {
-                "sample_rate_hz": 10_000,
-                "spectrum": {"freq_hz": fa.tolist(), "amplitude": aa.tolist()},
-            },
-            "b": {
-                "sample_rate_hz": 11_500,
-                "spectrum": {"freq_hz": fb.tolist(), "amplitude": ab.tolist()},
-            },
-        }
-        r = client.post("/api/v1/compare-rates", json=body)
-        assert r.status_code == 200, r.text
-        a = r.json()["a"]["peaks"]
-        real = next(p for p in a if abs(p["freq_hz"] - 1200) < 5)
-        alias = next(p for p in a if abs(p["freq_hz"] - 3200) < 5)  # |13200 − 10000|
-        assert real["verdict"] == "stays"
-        assert alias["verdict"] == "moves"
-        # Reference: 13.2 kHz folds to 3.2 kHz at 10 kS/s and 1.7 kHz at 11.5 kS/s.
-        assert alias["candidates"][0]["true_hz"] == pytest.approx(13_200, abs=10)
-
-    def test_same_rate_refused(self, client: TestClient) -> None:
-        f, a = _welch_spectrum(_capture(TONES), FS)
-        spec = {"freq_hz": f.tolist(), "amplitude": a.tolist()}
-        body = {
-            "a": {"sample_rate_hz": FS, "spectrum": spec},
-            "b": {"sample_rate_hz": FS, "spectrum": spec},
-        }
-        r = client.post("/api/v1/compare-rates", json=body)
-        assert r.status_code == 422 and "different" in r.json()["detail"]
 
 
 def test_diagnose_and_save(client: TestClient) -> None:

@@ -511,3 +511,36 @@ class TestErrors:
             max_true_hz=30_000,
         )
         assert res.groups[0].verdict == "real" and res.groups[0].in_band
+
+
+class TestFromTheTwoRateTest:
+    """Worked cases kept from the former two-rate module (core/comparison.py)."""
+
+    RA, RB = 10_000.0, 11_500.0
+
+    def test_worked_fold(self):
+        # Source: fold formula (Oppenheim & Schafer 2010, sec. 4.2), by hand: at 10 kS/s
+        # 13.2 kHz reads 13.2 − 10 = 3.2 kHz (zone 3); at 11.5 kS/s |13.2 − 11.5| =
+        # 1.7 kHz (zone 3); 1.2 kHz is below both Nyquist frequencies.
+        caps = [
+            Capture(self.RA, [1200.0, 3200.0], [-6.0, -10.0], self.RA / 4096),
+            Capture(self.RB, [1200.0, 1700.0], [-6.0, -10.0], self.RB / 4096),
+        ]
+        res = compare_captures(caps, max_true_hz=20_000)
+        real = group_near(res, 0, 1200.0, 0.5)
+        alias = group_near(res, 0, 3200.0, 0.5)
+        assert real.verdict == "real" and real.top.zone == (1, 1)
+        assert alias.verdict == "alias" and alias.peak[1] == 1
+        assert alias.top.true_hz == pytest.approx(13_200.0, abs=1)
+        assert alias.top.zone == (3, 3)
+
+    def test_real_in_one_capture(self):
+        # A 5.5 kHz tone is real at 11.5 kS/s (zone 1) but above the 5 kHz Nyquist
+        # frequency at 10 kS/s, where it reads 4.5 kHz (zone 2): by hand, as above.
+        caps = [
+            Capture(self.RA, [4500.0], [-14.0], self.RA / 4096),
+            Capture(self.RB, [5500.0], [-14.0], self.RB / 4096),
+        ]
+        g = compare_captures(caps, max_true_hz=20_000).groups[0]
+        assert g.verdict == "alias" and g.top.true_hz == pytest.approx(5500.0, abs=1)
+        assert g.top.zone == (2, 1)

@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 from service.storage import pack_spectrum, unpack_spectrum
+from service.storage.packing import pack_spectra, unpack_spectra
 
 F32_EPS = float(np.finfo(np.float32).eps)
 
@@ -143,3 +144,30 @@ class TestUnpackSpectrum:
         bomb = header.pack(b"FWSP", 1, 0, 0, 1) + zlib.compress(bytes(50_000_000))
         with pytest.raises(ValueError, match="exactly 8 bytes for 1 points"):
             unpack_spectrum(bomb)
+
+
+class TestSeveralSpectra:
+    def test_basic(self) -> None:
+        # Reference: numpy's own float32 rounding of the arrays packed, one per capture.
+        rng = np.random.default_rng(13)
+        pairs = [
+            (np.arange(4097) * 1.5625, rng.random(4097)),
+            (np.sort(rng.random(300)) * 8000, rng.random(300)),
+        ]
+        blob = pack_spectra(pairs)
+        got = unpack_spectra(blob)
+        assert len(got) == 2
+        for (f, a), (gf, ga) in zip(pairs, got, strict=True):
+            assert np.allclose(gf, f.astype(np.float32), rtol=0, atol=1e-3)
+            assert np.array_equal(ga, a.astype(np.float32).astype(np.float64))
+        # One spectrum packed either way is the same bytes, read by either reader.
+        one = pack_spectrum(*pairs[0])
+        assert pack_spectra(pairs[:1]) == one
+        assert np.array_equal(unpack_spectrum(blob)[1], got[0][1])
+
+    def test_errors(self) -> None:
+        with pytest.raises(ValueError, match="at least one"):
+            pack_spectra([])
+        blob = pack_spectra([(np.arange(10.0), np.ones(10))] * 2)
+        with pytest.raises(ValueError):
+            unpack_spectra(blob[:-3])

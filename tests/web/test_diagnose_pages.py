@@ -78,17 +78,13 @@ def _share_inputs(html: str, kind: str) -> str | None:
     return html_lib.unescape(m.group(1))
 
 
-def _compare_verdicts(html: str) -> list[tuple[str, str, str]]:
-    """Both compare tables as (capture, at Hz, verdict text) per row."""
+def _compare_verdicts(html: str) -> list[tuple[str, str]]:
+    """The compare page's groups as (verdict, heading text) in page order."""
     out = []
-    for s in ("a", "b"):
-        table = html.split(f'aria-labelledby="cap-{s}-title"', 1)[1].split("</table>", 1)[0]
-        for tr in re.findall(r"<tr class=\"[^\"]*\">(.*?)</tr>", table, re.S):
-            cells = [
-                re.sub(r"<[^>]+>|\s+", " ", c).strip()
-                for c in re.findall(r"<td[^>]*>(.*?)</td>", tr, re.S)
-            ]
-            out.append((s, cells[0], cells[2]))
+    for verdict, head in re.findall(
+        r'<section class="compare-group compare-(\w+)".*?<h4[^>]*>(.*?)</h4>', html, re.S
+    ):
+        out.append((verdict, re.sub(r"<[^>]+>|\s+", " ", head).strip()))
     return out
 
 
@@ -269,6 +265,11 @@ def _compare_texts() -> dict[str, str]:
         "a_sample_rate_hz": "10000",
         "b_spectrum_text": _sampled_spectrum(12_000.0, tones, seed=4),
         "b_sample_rate_hz": "12000",
+        # The sensor's bandwidth, inside the unambiguous range of 10 and 12 kS/s
+        # (lcm 60 kHz / 2 = 30 kHz): the answers can be unique.
+        "max_true_hz": "30000",
+        # Noise peaks stay out: with 0.5 % drift two unrelated noise peaks can pair.
+        "threshold_db": "25",
     }
 
 
@@ -293,16 +294,66 @@ class TestComparePage:
         assert sorted(round(t["x"][0]) for t in moved) == [2700, 4700]
         for t in moved:
             assert abs(t["x"][0] - want[t["xaxis"]]) < 3.0
-        assert all(abs(t["x"][0] - 1000.0) < 3.0 for t in stayed) and len(stayed) == 2
+        # Reference: 1 kHz and 11 kHz read alike at 10 and 12 kS/s (11 − 10 = 1,
+        # 12 − 11 = 1): a mixed-sign image inside the range, so the line is ambiguous
+        # with 1 kHz listed first, not "stays: real".
+        amb = [t for t in fig["data"] if t["name"].startswith("ambiguous")]
+        assert stayed == [] and all(abs(t["x"][0] - 1000.0) < 3.0 for t in amb)
+        assert len(amb) == 2
         text = re.sub(r"<[^>]+>|\s+", " ", r.text)
         assert "7,300 Hz" in text or "7.300 kHz" in text  # a true-frequency candidate
+
+    def test_three_captures(self, page_client: TestClient) -> None:
+        data = _compare_texts()
+        tones = [(7300.0, 1.0), (1000.0, 0.5)]
+        data.update(
+            c_spectrum_text=_sampled_spectrum(16_000.0, tones, seed=5), c_sample_rate_hz="16000"
+        )
+        r = page_client.post("/compare", data=data)
+        assert r.status_code == 200, _summary(r.text)
+        assert_strict_page(r.text)
+        fig = figures_of(r.text)["compare-figure-data"]
+        names = [t["name"] for t in fig["data"] if t["name"].startswith("spectrum")]
+        assert names == [
+            "spectrum A (10000 S/s)",
+            "spectrum B (12000 S/s)",
+            "spectrum C (16000 S/s)",
+        ]
+        groups = _compare_verdicts(r.text)
+        # Reference: 7.3 kHz folds to 2.7, 4.7 and 7.3 kHz (below 8 kHz) — a line below
+        # one capture's Nyquist still moves in the others.
+        alias = [h for v, h in groups if v == "alias"]
+        assert len(alias) == 1 and ("true 7,300" in alias[0] or "true 7.3" in alias[0])
+        assert [v for v, _ in groups].count("real") == 1
+        # An optional row left empty is no capture (and the page says how to remove one).
+        assert "Leave this capture empty to remove it" in r.text
+
+    def test_demo(self, page_client: TestClient) -> None:
+        r = page_client.get("/compare?demo=1")
+        assert r.status_code == 200
+        assert_strict_page(r.text)
+        assert controls_without_label(r.text) == []
+        fig = figures_of(r.text)["compare-figure-data"]
+        names = [t["name"] for t in fig["data"] if t["name"].startswith("spectrum")]
+        assert names == ["spectrum 12.8 kS/s (12800 S/s)", "spectrum 16 kS/s (16000 S/s)"]
+        groups = _compare_verdicts(r.text)
+        # Reference: DESIGN.md sec. 6, the 10 kHz carrier reads 12.8 − 10 = 2.8 kHz at
+        # 12.8 kS/s and 16 − 10 = 6 kHz at 16 kS/s (fold, checked by FFT elsewhere).
+        carrier = [h for v, h in groups if "2,800" in h and "6,000" in h]
+        assert len(carrier) == 1 and re.search(r"true (10,000(\.\d)? Hz|10 kHz)", carrier[0])
+        assert "caution" in r.text.lower()
+        assert 'name="kind" value="compare_demo"' in r.text
+        shared = page_client.post("/share", data={"kind": "compare_demo"})
+        assert shared.status_code == 200
+        saved = page_client.get(_saved_path(shared.text))
+        assert _compare_verdicts(saved.text) == groups
 
     def test_errors(self, page_client: TestClient) -> None:
         data = _compare_texts()
         data["b_spectrum_text"] = _sampled_spectrum(10_000.0, [(1000.0, 1.0)])
         data["b_sample_rate_hz"] = "10000"
         r = page_client.post("/compare", data=data)
-        assert r.status_code == 422 and "two different sample rates" in _summary(r.text)
+        assert r.status_code == 422 and "needs its own sample rate" in _summary(r.text)
         assert re.search(r'id="b_sample_rate_hz"[^>]*aria-invalid="true"', r.text)
         data = _compare_texts()
         del data["a_spectrum_text"]
@@ -355,9 +406,16 @@ class TestShare:
         r = page_client.post("/compare", data={**_compare_texts(), "share": "1"})
         assert r.status_code == 200
         saved = page_client.get(_saved_path(r.text))
-        assert saved.status_code == 200 and "only the peaks are drawn" in saved.text
+        assert saved.status_code == 200 and "only the peaks are drawn" not in saved.text
         fig = figures_of(saved.text)["compare-figure-data"]
-        assert [t["name"] for t in fig["data"] if t["name"].startswith("spectrum")] == []
+        # The saved comparison keeps both spectra: the page redraws them from the store.
+        live = figures_of(r.text)["compare-figure-data"]
+        spectra = [t for t in fig["data"] if t["name"].startswith("spectrum")]
+        assert [t["name"] for t in spectra] == ["spectrum A (10000 S/s)", "spectrum B (12000 S/s)"]
+        for t in spectra:
+            mine = next(u for u in live["data"] if u["name"] == t["name"])
+            assert t["x"] == mine["x"]
+            assert np.allclose(t["y"], mine["y"], atol=0.02)  # float32 storage
         assert sorted(round(t["x"][0]) for t in fig["data"] if t["name"] == "moves: alias") == [
             2700,
             4700,
@@ -401,7 +459,9 @@ class TestShare:
         assert saved.status_code == 200
         original = _compare_verdicts(r.text)
         # Reference: 7.3 kHz moves (2.7 kHz at 10 kS/s, 4.7 kHz at 12 kS/s); 1 kHz stays.
-        assert sorted(v for _, _, v in original).count("moves: alias") == 2
+        assert [v for v, _ in original].count("alias") == 1
+        assert [v for v, _ in original].count("ambiguous") == 1
+        assert "true 7,300" in dict(original)["alias"] or "true 7.3" in dict(original)["alias"]
         assert _compare_verdicts(saved.text) == original
         fig = figures_of(saved.text)["compare-figure-data"]
         assert sorted(round(t["x"][0]) for t in fig["data"] if t["name"] == "moves: alias") == [

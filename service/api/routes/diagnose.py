@@ -16,7 +16,7 @@ from ...http.store_access import StoreAccess
 from ...usecases.compare import compare_payload
 from ...usecases.diagnose import diagnose_payload
 from ...usecases.measure import Upload
-from ...usecases.save import saved_parts
+from ...usecases.save import measured_spectra, saved_parts
 from ..examples import COMPARE_EXAMPLES, DIAGNOSE_EXAMPLES
 
 router = APIRouter(prefix="/api/v1", tags=["diagnose"])
@@ -64,10 +64,9 @@ async def _answer(
     settings = request.app.state.settings
     payload, measured = await run_in_threadpool(compute, req, settings, files)
     if save:
-        # A comparison keeps its peaks, not its spectra (one spectrum per record).
-        spectrum = (measured.freq_hz, measured.amplitude) if kind == "diagnose" else None
+        # A diagnosis keeps its spectrum, a comparison one per capture.
         access: StoreAccess = request.app.state.store_access
-        parts = saved_parts(kind, req, payload, spectrum)
+        parts = saved_parts(kind, req, payload, **measured_spectra(kind, measured))
         payload["saved"] = await access.save(kind, parts, title)
     return FastJSON(payload)
 
@@ -104,11 +103,15 @@ async def diagnose(
 @router.post(
     "/compare-rates",
     response_model=CompareOut,
-    summary="Two captures at different sample rates: which peaks stay, which move",
-    description="The same signal captured at two sample rates. Peaks that stay put are "
-    "real; peaks that move are aliases, with the true frequencies consistent with both "
-    "captures. JSON (`a` and `b` each with a spectrum or time record and its rate), or "
-    "multipart with files `file_a`, `file_b` and a `request` JSON field.",
+    summary="2 to 6 captures at different sample rates: which peaks stay, which move",
+    description="The same signal captured at 2 to 6 sample rates. Peaks that stay put are "
+    "real; peaks that move are aliases. Each group of matched peaks gets a verdict (real, "
+    "alias, ambiguous, unmatched), its true frequency only when the captures make it "
+    "unique, and the candidate table with its evidence; beyond the rates' unambiguous "
+    "range the answer is 'ambiguous', with the period of the candidates and the sample "
+    "rate that would settle it. JSON (`captures`, or `a` and `b`, each with a spectrum or "
+    "time record and its rate), or multipart with files `file_0` ... `file_5` (or "
+    "`file_a`, `file_b`) and a `request` JSON field.",
     openapi_extra=_doc(
         CompareIn,
         COMPARE_EXAMPLES,
@@ -117,8 +120,10 @@ async def diagnose(
                 "schema": {
                     "type": "object",
                     "properties": {
-                        "file_a": {"type": "string", "format": "binary"},
-                        "file_b": {"type": "string", "format": "binary"},
+                        **{
+                            f"file_{k}": {"type": "string", "format": "binary"}
+                            for k in (*"ab", *"012345")
+                        },
                         "request": {"type": "string"},
                     },
                 }
@@ -134,8 +139,10 @@ async def compare(
     settings = request.app.state.settings
     uploads: dict[str, Upload] = {}
     if is_multipart(request):
-        raw, files = await read_multipart(request, ("file_a", "file_b"), settings.max_upload_bytes)
-        uploads = {k[-1]: v for k, v in files.items()}
+        names = ("file_a", "file_b", *(f"file_{i}" for i in range(6)))
+        raw, files = await read_multipart(request, names, settings.max_upload_bytes)
+        # file_a/file_b feed the a/b form, file_<i> feeds captures[i].
+        uploads = {(k[-1] if k[-1] in "ab" else f"captures[{k[-1]}]"): v for k, v in files.items()}
     else:
         raw = await read_body(request, settings.max_body_bytes)
     req = parse_json_body(CompareIn, raw)

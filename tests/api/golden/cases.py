@@ -327,6 +327,18 @@ def run_cases(client: TestClient) -> dict[str, dict[str, Any]]:
     )
     c("compare_422_missing_b", "POST", "/api/v1/compare-rates", json={"a": cmp["a"]})
     c("compare_save", "POST", "/api/v1/compare-rates?save=true", json=cmp)
+    c(
+        "compare_captures",
+        "POST",
+        "/api/v1/compare-rates",
+        json={"captures": [cmp["a"], cmp["b"]], "max_true_hz": 12_800.0},
+    )
+    c(
+        "compare_422_seven",
+        "POST",
+        "/api/v1/compare-rates",
+        json={"captures": [cmp["a"]] * 7},
+    )
 
     # plan
     from service.api.examples import PLAN_EXAMPLES
