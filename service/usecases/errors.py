@@ -57,6 +57,17 @@ def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
         yield
     except RequestError:
         raise
+    except InputError as exc:
+        # The error's own code, remedy, value, limit and status (413 for sizes) travel
+        # on; only the field is re-rooted onto the request.
+        raise RequestError(
+            exc.message,
+            field=field,
+            status=exc.status if exc.status != 422 else status,
+            code=exc.code,
+            remedy=exc.remedy,
+            value=exc.value,
+            limit=exc.limit,
+        ) from exc
     except ValueError as exc:
-        code = exc.code if isinstance(exc, InputError) else "invalid"
-        raise RequestError(str(exc), field=field, status=status, code=code) from exc
+        raise RequestError(str(exc), field=field, status=status, code="invalid") from exc
