@@ -216,6 +216,9 @@ def _from_samples(
     )
 
 
+_CLIP_RANK = {"none": 0, "suspected": 1, "clipped": 2}
+
+
 def _is_time_file(upload: Upload) -> bool:
     magic = upload.data[:6]
     return (
@@ -246,7 +249,7 @@ def _requested_rate(
                 code="rate_conflict",
                 remedy=f"Give the rate once: leave {pre}upload.sample_rate_hz out",
             )
-    if chain_rate_hz is not None:
+    if chain_rate_hz is not None or u.sample_rate_hz is None:
         return chain_rate_hz, rate_field
     return u.sample_rate_hz, f"{pre}upload.sample_rate_hz"
 
@@ -363,15 +366,21 @@ def _from_upload(
         f"{upload.filename}: {rec.format_description}, channel {rec.channel}",
         file_field,
     )
+    clipping = m.clipping
     if rec.full_scale is not None:  # integer PCM: the converter's range is known
+        # One and a half 16-bit codes: +full scale is written as 32767/32768 of it.
         with input_errors(file_field):
-            clipping = detect_clipping(rec.samples, full_scale=rec.full_scale)
-    else:
-        clipping = m.clipping
+            at_full_scale = detect_clipping(
+                rec.samples, full_scale=rec.full_scale, tolerance=1.5 * rec.full_scale / 32768
+            )
+        # Clipping at full scale, or at a lower level (an amplifier before the
+        # converter): the stronger finding stands.
+        if clipping is None or _CLIP_RANK[at_full_scale.verdict] > _CLIP_RANK[clipping.verdict]:
+            clipping = at_full_scale
     notes = list(rec.notes)
     if requested is None and rec.file_rate_hz is not None:
         notes.append(
-            f"The request gives no sample rate, so the file's own {plain(rec.sample_rate_hz)} "
+            f"The request gives no sample rate, so the file's own {rec.sample_rate_hz:.7g} "
             "Hz is used."
         )
     channels = _judge_channels(upload, rec, requested, settings.max_time_samples, file_field)
@@ -520,6 +529,10 @@ _REPLACEABLE = ("alias", "mirror", "family", "unexplained")
 #: simulated corpus the other verdicts are calibrated on): high on a record found
 #: clipped, even odds on one where clipping is only suspected.
 _CLIPPING_CONFIDENCE = {"clipped": 0.9, "suspected": 0.5}
+#: Highest product order searched. Hard clipping (a clipped record: a tenth of the
+#: samples flat) keeps harmonics far above the floor up to high orders; a 440 Hz tone
+#: at 12.8 kS/s puts its 29th harmonic at 40 Hz. Mild clipping: up to the 9th.
+_CLIPPING_ORDER = {"clipped": 31, "suspected": 9}
 
 
 def mark_clipping_products(
@@ -533,11 +546,18 @@ def mark_clipping_products(
         return 0
     freq = np.array([p["freq_hz"] for p in peaks], dtype=np.float64)
     amp = np.array([p["amplitude"] for p in peaks], dtype=np.float64)
-    tones = strongest_tones(freq, amp)
+    # Tones down to 30 dB below the strongest: an aliased carrier 20 dB down still
+    # mixes with the others in the clipped converter.
+    tones = strongest_tones(freq, amp, count=3, within_db=30.0)
     if tones.size == 0:
         return 0
     products = clipping_products(
-        freq, tones, final_rate_hz, max(tolerance_hz, m.bin_width_hz), symmetric=clip.symmetric
+        freq,
+        tones,
+        final_rate_hz,
+        max(tolerance_hz, m.bin_width_hz),
+        symmetric=clip.symmetric,
+        max_order=_CLIPPING_ORDER[clip.verdict],
     )
     marked = 0
     for i in np.flatnonzero(products.explained):  # only the explained peaks change
