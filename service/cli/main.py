@@ -107,8 +107,6 @@ def _print_fold(out: dict[str, Any]) -> None:
         f"{out['lines']} lines, bin {out['bin_width_hz']:.3g} Hz"
     )
     print("chain: " + " → ".join(out["stages"]))
-    for note in s.get("input_notes", []):
-        print(f"input: {note}")
     for note in out["notes"]:
         print(f"note: {note}")
     head = (
