@@ -178,6 +178,19 @@ class TestSpectrumForms:
         assert_same_alias_set(body, clean_spectrum_answer, body["summary"]["bin_width_hz"])
         assert body["summary"]["metadata"]
 
+    def test_size_keeps_its_status(self, client: TestClient) -> None:
+        # The reader's 413 (and its code) reaches the problem, not a flattened 422.
+        state = client.app.state  # type: ignore[attr-defined]
+        before = state.settings
+        state.settings = before.model_copy(update={"max_spectrum_lines": 500})
+        try:
+            r = post(client, "spectrum.csv", next(f for f in FORMS if f.name == "clean").make())
+        finally:
+            state.settings = before
+        assert r.status_code == 413, r.text
+        assert r.json()["errors"][0]["code"] == "above_limit"
+        assert r.json()["errors"][0]["field"] == "file"
+
     def test_metadata_rate_conflict(self, client: TestClient) -> None:
         form = next(f for f in FORMS if f.name == "metadata_block")
         r = post(client, "spectrum.csv", form.make(), {**REQUEST, "sample_rate_hz": 25_600})
