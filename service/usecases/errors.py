@@ -37,6 +37,20 @@ class RequestError(InputError):
     def detail(self) -> str:
         return str(self)
 
+    @classmethod
+    def placed(cls, exc: InputError, field: str | None, status: int = 422) -> RequestError:
+        """``exc`` with its own code, remedy, value, limit and status (413 for sizes)
+        on the request field ``field``; ``status`` stands for a plain 422."""
+        return cls(
+            exc.message,
+            field=field,
+            status=exc.status if exc.status != 422 else status,
+            code=exc.code,
+            remedy=exc.remedy,
+            value=exc.value,
+            limit=exc.limit,
+        )
+
 
 class PlanImpossibleError(RequestError):
     """No offered setup meets the plan's requirements; ``suggestions`` say what would."""
@@ -58,16 +72,7 @@ def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
     except RequestError:
         raise
     except InputError as exc:
-        # The error's own code, remedy, value, limit and status (413 for sizes) travel
-        # on; only the field is re-rooted onto the request.
-        raise RequestError(
-            exc.message,
-            field=field,
-            status=exc.status if exc.status != 422 else status,
-            code=exc.code,
-            remedy=exc.remedy,
-            value=exc.value,
-            limit=exc.limit,
-        ) from exc
+        # Only the field is re-rooted onto the request; the rest travels on.
+        raise RequestError.placed(exc, field, status) from exc
     except ValueError as exc:
         raise RequestError(str(exc), field=field, status=status, code="invalid") from exc

@@ -105,15 +105,7 @@ def _reader_errors(fields: dict[str, str], default: str) -> Iterator[None]:
         raise
     except InputError as exc:
         where = fields.get(exc.field or "", exc.field if exc.field == default else default)
-        raise RequestError(
-            exc.message,
-            field=where,
-            status=exc.status,
-            code=exc.code,
-            remedy=exc.remedy,
-            value=exc.value,
-            limit=exc.limit,
-        ) from exc
+        raise RequestError.placed(exc, where) from exc
 
 
 def _from_spectrum(
