@@ -264,6 +264,20 @@ def _decimal_comma_column(x: np.ndarray) -> bytes:
     return ("Sample rate: 12800 Hz\nAcceleration (g)\n" + "\n".join(rows) + "\n").encode()
 
 
+def _pcm(x: np.ndarray, dtype: type) -> bytes:
+    """Integer PCM at half full scale (the converter's range is not reached)."""
+    full = np.iinfo(dtype).max
+    return _wav(np.round(x / (2 * np.max(np.abs(x))) * full).astype(dtype))
+
+
+def _two_channel_text_ms(x: np.ndarray) -> bytes:
+    other = np.random.default_rng(4).normal(0.0, 1e-3, x.size)
+    rows = [
+        f"{1e3 * i / FS:.6f};{o:.9g};{v:.9g}" for i, (o, v) in enumerate(zip(other, x, strict=True))
+    ]
+    return ("t [ms];Ch A (g);Ch B (g)\n" + "\n".join(rows) + "\n").encode()
+
+
 @dataclass(frozen=True)
 class TimeForm:
     name: str
@@ -293,6 +307,20 @@ TIME_FORMS = (
         _without_rate({"upload": {"sample_rate_hz": FS}}),
     ),
     TimeForm("text_top_level_rate", "record.csv", lambda: _column(capture())),
+    TimeForm("wav_pcm16_half_scale", "record.wav", lambda: _pcm(capture(), np.int16)),
+    TimeForm("wav_pcm32_half_scale", "record.wav", lambda: _pcm(capture(), np.int32)),
+    TimeForm(
+        "npy_2d_second_channel",
+        "record.npy",
+        lambda: _npy(np.stack([np.zeros_like(capture()), capture()], axis=1)),
+        {**REQUEST, "upload": {"channel": 1}},
+    ),
+    TimeForm(
+        "text_two_channels_time_in_ms",
+        "record.csv",
+        lambda: _two_channel_text_ms(capture()),
+        _without_rate({"upload": {"channel": 1}}),
+    ),
     TimeForm("text_time_column", "record.csv", lambda: _time_column(capture()), _without_rate()),
     TimeForm(
         "text_header_rate_decimal_comma",
