@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import numpy as np
@@ -11,6 +12,7 @@ from fastapi.testclient import TestClient
 
 from service.cli import main
 from service.demo import demo_fold_request
+from tests.inputs_corpus import FORMS
 
 
 class TestFoldCommand:
@@ -66,6 +68,20 @@ class TestDiagnoseCommand:
         row = next(r for r in out.splitlines() if r.strip().startswith("2800.0"))
         assert "alias" in row and "10000.0" in row
         assert "Caution" in out
+
+    def test_amplitude_column(self, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+        form = next(f for f in FORMS if f.name == "two_named_channels")
+        path = tmp_path / "two.csv"
+        path.write_bytes(form.make())
+        assert main(["diagnose", str(path), "--sample-rate", "12800"]) == 2
+        err = capsys.readouterr().err
+        assert "amplitude_column" in err and "Ch2 (g)" in err  # the option and the columns
+        args = ["diagnose", str(path), "--sample-rate", "12800", "--amplitude-column", "Ch1"]
+        assert main([*args, "--tone", "carrier=10000"]) == 0
+        out = capsys.readouterr().out
+        assert "input: Amplitude read from column 1 'Ch1 (g)'" in out
+        # Reference: 10 kHz at 12.8 kS/s folds to 12.8 − 10 = 2.8 kHz.
+        assert re.search(r"^\s+2800\.0 .* alias ", out, re.MULTILINE)
 
     def test_errors(self, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
         bad = tmp_path / "bad.csv"

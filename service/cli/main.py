@@ -191,6 +191,7 @@ def _diagnose_request(ns: argparse.Namespace) -> dict[str, Any]:
         ("channel", ns.channel),
         ("sample_rate_hz", ns.record_rate),
         ("unit", ns.unit),
+        ("amplitude_column", ns.amplitude_column),
         ("window", ns.window),
     ):
         if value is not None:
@@ -216,6 +217,8 @@ def _print_diagnosis(out: dict[str, Any]) -> None:
         f"{out['protected_edge_hz']:g} Hz · values read as {s['unit']} ({s['unit_reason']})"
     )
     print("chain: " + " → ".join(out["stages"]))
+    for note in s.get("input_notes", []):
+        print(f"input: {note}")
     for note in out["notes"]:
         print(f"note: {note}")
     counts = ", ".join(f"{v} {k}" for k, v in sorted(out["counts"].items()))
@@ -449,10 +452,18 @@ def build_parser() -> argparse.ArgumentParser:
         help="how to read the file (default: by its type)",
     )
     d.add_argument(
-        "--record-rate", type=float, metavar="HZ", help="sample rate of a .npy or text time record"
+        "--record-rate",
+        type=float,
+        metavar="HZ",
+        help="sample rate of a .npy or text time record (--sample-rate serves too)",
     )
     d.add_argument("--channel", type=int, help="channel of a multichannel file, from 0")
     d.add_argument("--unit", choices=["auto", "linear", "db"], help="spectrum values")
+    d.add_argument(
+        "--amplitude-column",
+        metavar="NAME|N",
+        help="amplitude column of a spectrum file with several value columns (name or from 0)",
+    )
     d.add_argument(
         "--window",
         choices=["hann", "flattop", "rectangular", "hamming", "blackmanharris", "unknown"],

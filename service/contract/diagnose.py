@@ -49,7 +49,18 @@ class SpectrumIn(StrictModel):
     unit: Literal["auto", "linear", "db"] = Field(
         "auto",
         description="'linear' amplitude, 'db' (20·log10 re any reference), or 'auto': "
-        "negative values mean dB, otherwise linear (the answer says which was used)",
+        "none negative is linear; a fifth or more negative is dB; a handful of negative "
+        "values (at most 3, or 1 % of the lines) in an otherwise linear spectrum are bad "
+        "cells, left out and counted (summary.dropped_rows), not a switch to dB; anything "
+        "between is a 422 asking for the unit. The answer says how it was decided "
+        "(summary.scale, scale_source, scale_reason)",
+    )
+    amplitude_unit: str | None = Field(
+        None,
+        max_length=40,
+        description="Unit of the amplitude as measured (g, m/s², mm/s, V, Pa, dB re 1 g "
+        "...), carried to the answer's summary.amplitude_unit",
+        examples=["g"],
     )
     window: Window | Literal["unknown"] = Field(
         "hann", description="Window the analyser used; sets peak refinement and scalloping"
@@ -99,9 +110,28 @@ class UploadIn(StrictModel):
     )
     channel: int = Field(0, ge=0, le=1023, description="Channel of a multichannel file, from 0")
     sample_rate_hz: Rate | None = Field(
-        None, description="Rate of a text or .npy time record (WAV files carry their own)"
+        None,
+        description="Rate of a text or .npy time record; the request's top-level "
+        "sample_rate_hz serves as well (give it once). A file that states its own rate "
+        "(WAV header, a sample-rate line, a time column) must agree: a disagreement is a "
+        "422 naming both values",
     )
-    unit: Literal["auto", "linear", "db"] = "auto"
+    unit: Literal["auto", "linear", "db"] = Field(
+        "auto",
+        description="Scale of a spectrum file's amplitude: 'auto' decides from the column "
+        "header (dB, dBV, dB re ...), else from the values as for a JSON spectrum",
+    )
+    amplitude_column: (
+        Annotated[str, Field(min_length=1, max_length=200)]
+        | Annotated[int, Field(ge=0, le=1023)]
+        | None
+    ) = Field(
+        None,
+        description="The amplitude column of a spectrum file, by header name or 0-based "
+        "number, when the header does not settle it (several value columns and none named "
+        "amplitude, magnitude or level)",
+        examples=["Amplitude (g)", 2],
+    )
     window: Window | Literal["unknown"] = "hann"
 
 
@@ -320,7 +350,11 @@ class PeakOut(BaseModel):
     amplitude_db: float = Field(description="20·log10(amplitude)")
     floor: float = Field(description="Noise floor at the peak (linear)")
     snr_db: float
-    verdict: str = Field(description="alias, direct, family, mirror or unexplained")
+    verdict: str = Field(
+        description="alias, direct, family, mirror, unexplained, or clipping: a harmonic "
+        "or intermodulation product of the strongest tones of a clipped time record "
+        "(summary.clipping), made by the clipping and not an alias of anything"
+    )
     confidence: float = Field(description="0 to 1")
     source: str | None = Field(description="Label of the source, or null")
     tone: str | None = Field(description="Label of the tone, or null")
@@ -333,10 +367,47 @@ class PeakOut(BaseModel):
     alternatives: list[AlternativeOut]
 
 
+class ClippingOut(BaseModel):
+    verdict: Literal["none", "suspected", "clipped"] = Field(
+        description="Runs of samples held at the record's extremes (or the converter's "
+        "full scale for integer WAV): 'clipped', 'suspected' or 'none'"
+    )
+    fraction: float = Field(description="Share of the samples on a clip level, 0 to 1")
+    symmetric: bool = Field(description="Both polarities clip (odd products only)")
+    sentence: str
+
+
+class ChannelOut(BaseModel):
+    index: int = Field(description="0-based channel number")
+    name: str
+    activity: Literal["signal", "noise", "constant"]
+    rms: float = Field(description="RMS about the mean, unit of the samples")
+    analysed: bool = Field(description="The channel this answer analyses")
+    reasons: list[str]
+
+
 class SummaryOut(BaseModel):
     input: str = Field(description="What was read")
-    unit: str
-    unit_reason: str
+    unit: str = Field(description="Same as scale (kept for existing clients)")
+    unit_reason: str = Field(description="Same as scale_reason")
+    scale: Literal["linear", "db"] = Field(description="How the values were read")
+    scale_source: Literal["request", "header", "values", "time_record"] = Field(
+        description="What decided the scale: the request's unit, the file's header, the "
+        "values alone, or a time record (its spectrum is computed, linear)"
+    )
+    scale_reason: str = Field(description="One sentence saying how the scale was decided")
+    frequency_unit: str = Field(description="Unit of the file's frequency column (Hz, kHz, cpm)")
+    amplitude_unit: str | None = Field(
+        description="Amplitude unit from the header or the request, null when unknown"
+    )
+    dropped_rows: dict[str, int] = Field(
+        description="Lines left out, by reason: non_finite (NaN, inf, -1.#INF, 1.#QNAN, "
+        "#N/A, empty), negative (a handful in a linear column)"
+    )
+    input_notes: list[str] = Field(description="How the input was read, each note once")
+    metadata: dict[str, str] = Field(description="key: value lines before a file's table")
+    clipping: ClippingOut | None = Field(description="Time records only")
+    channels: list[ChannelOut] = Field(description="Multichannel uploads: every channel's activity")
     window: str
     bin_width_hz: float
     lines: int | None

@@ -54,7 +54,9 @@ __all__ = [
     "Peaks",
     "Spectrum",
     "amplitude_spectrum",
+    "bad_negative_cells",
     "detect_unit",
+    "few_bad_cells",
     "find_peaks",
     "noise_floor",
     "to_linear",
@@ -62,6 +64,7 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
+BoolArray = NDArray[np.bool_]
 
 
 #: The usual numbers of analysis lines, 25·2**k; for these nfft = 2.56·lines exactly.
@@ -538,13 +541,24 @@ def find_peaks(
     )
 
 
-def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
-    """Guess whether spectrum values are linear amplitudes or decibels.
+def few_bad_cells(count: int, n: int) -> bool:
+    """Whether ``count`` negative cells among ``n`` are a handful: at most 3, or 1 % of
+    the rows, and fewer than half."""
+    return count <= max(3, 0.01 * n) and 2 * count < n
+
+
+def detect_unit(amplitude: ArrayLike, field: str = "amplitude") -> tuple[str, str]:
+    """Decide from the values alone whether spectrum values are linear or decibels.
+
+    The one rule for every spectrum (a JSON array or a column of a file): the readers
+    call it when neither the request nor a header names the scale.
 
     Parameters
     ----------
     amplitude : array_like
-        Spectrum values as given (unit unknown).
+        Spectrum values as given (unit unknown), finite.
+    field : str
+        The input named in an error.
 
     Returns
     -------
@@ -553,26 +567,89 @@ def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
     reason : str
         One sentence a person can check.
 
+    Raises
+    ------
+    InputError
+        Code ``ambiguous_scale`` when the values leave it open.
+
     Notes
     -----
-    Heuristic: a linear amplitude cannot be negative, so any negative value means dB.
-    Values that are all >= 0 are taken as linear; this misreads dB scales whose
-    reference keeps every value positive (dB SPL re 20 µPa, dBµV), so the caller should
-    let the user override the guess, e.g. from a column header.
+    A linear amplitude cannot be negative. None negative is linear (a dB scale whose
+    reference keeps every value positive, dB SPL re 20 µPa or dBµV, must be named by the
+    caller). A handful of negative values (:func:`few_bad_cells`) in a table whose peaks
+    stand at least 10 times above its median, as linear spectra do (dB values above 0
+    span a factor of a few), is bad data in a linear column, not a dB scale: the caller
+    drops those cells (:func:`bad_negative_cells`). At least a fifth negative is dB.
+    Anything between is refused rather than guessed.
     """
     a = check_finite_array(amplitude, "amplitude")
-    neg = int(np.count_nonzero(a < 0))
-    if neg:
+    n = int(a.size)
+    count = int(np.count_nonzero(a < 0))
+    if count == 0:
+        return (
+            "linear",
+            f"all {n} values are >= 0, so they are read as linear amplitudes (say dB "
+            "explicitly for a dB scale whose values are all positive)",
+        )
+    positive = a[a > 0]
+    if few_bad_cells(count, n) and positive.size and np.max(positive) >= 10 * np.median(positive):
+        return (
+            "linear",
+            f"{count} of {n} values are negative, too few for a dB scale, so the values "
+            "are read as linear amplitudes",
+        )
+    if 5 * count >= n:
         return (
             "db",
-            f"{neg} of {a.size} values are negative; amplitudes cannot be negative, "
-            "so the values are read as dB",
+            f"{count} of {n} values are negative; amplitudes cannot be negative, so the "
+            "values are read as dB",
         )
-    return (
-        "linear",
-        f"all {a.size} values are >= 0, so they are read as linear amplitudes "
-        "(say dB explicitly for a dB scale whose values are all positive)",
+    raise InputError(
+        f"{count} of {n} values are negative: too many for bad cells in a linear column, "
+        "too few to be sure of a dB scale",
+        field=field,
+        value=count,
+        code="ambiguous_scale",
+        remedy="Say which with unit='db' or unit='linear', or name dB in the column header",
     )
+
+
+def bad_negative_cells(amplitude: ArrayLike, reason: str, field: str = "amplitude") -> BoolArray:
+    """The negative cells of a linear spectrum, to be dropped as bad data.
+
+    Parameters
+    ----------
+    amplitude : array_like
+        Values read as linear amplitudes.
+    reason : str
+        Why they are read as linear (quoted in the error).
+    field : str
+        The input named in an error.
+
+    Returns
+    -------
+    ndarray of bool
+        True where a value is negative; all False for a clean spectrum.
+
+    Raises
+    ------
+    InputError
+        Code ``negative_amplitude`` when more than a handful (:func:`few_bad_cells`) are
+        negative: then the values are probably dB, and the caller must say so.
+    """
+    a = np.asarray(amplitude, dtype=np.float64)
+    negative: BoolArray = a < 0
+    count = int(np.count_nonzero(negative))
+    if count and not few_bad_cells(count, int(a.size)):
+        raise InputError(
+            f"{count} of {a.size} amplitudes are negative but the values are read as "
+            f"linear ({reason})",
+            field=field,
+            value=count,
+            code="negative_amplitude",
+            remedy="If the values are dB, pass unit='db'; else correct the data",
+        )
+    return negative
 
 
 def to_linear(values: ArrayLike, unit: str) -> FloatArray:

@@ -125,6 +125,11 @@ PROBLEM_SCHEMA: dict[str, Any] = {
                     "message": {"type": "string"},
                     "value": {},
                     "limit": {},
+                    "code": {
+                        "type": "string",
+                        "description": "Stable reason, e.g. rate_conflict, ambiguous_columns",
+                    },
+                    "remedy": {"type": "string", "description": "What to do about it"},
                 },
             },
         },

@@ -60,8 +60,14 @@ class Problem(Exception):
         title: str | None = None,
         kind: str | None = None,
         headers: dict[str, str] | None = None,
+        code: str | None = None,
+        remedy: str | None = None,
     ) -> None:
         super().__init__(detail)
+        #: The input error's stable reason (``rate_conflict``, ``ambiguous_columns`` ...)
+        #: and what to do about it, when the error came with them.
+        self.code = code
+        self.remedy = remedy
         self.status = status
         self.detail = detail
         self.field = field
@@ -88,6 +94,10 @@ class Problem(Exception):
                 err["value"] = _jsonable(self.value)
             if self.limit is not None:
                 err["limit"] = _jsonable(self.limit)
+            if self.code is not None:
+                err["code"] = self.code
+            if self.remedy:
+                err["remedy"] = self.remedy
             out["errors"] = [err]
         if self.suggestions is not None:
             out["suggestions"] = list(self.suggestions)
@@ -122,6 +132,8 @@ def as_problem(exc: Problem | InputError) -> Problem:
         limit=exc.limit,
         title=getattr(exc, "title", None),
         kind=getattr(exc, "kind", None),
+        code=exc.code,
+        remedy=exc.remedy,
     )
     suggestions = getattr(exc, "suggestions", None)
     if suggestions is not None:

@@ -10,6 +10,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from service.core.errors import InputError
+from service.core.spectrum import bad_negative_cells, detect_unit
 
 from ._common import ALLOWANCE, DEFAULT_MAX_SPECTRUM_LINES, check_limit, plural, to_bytes
 from .text import Table, read_table
@@ -253,11 +254,6 @@ def _choose_columns(
     )
 
 
-def _handful(count: int, n: int) -> bool:
-    """A few negative cells in a linear column: at most 3, or 1 % of the rows."""
-    return count <= max(3, 0.01 * n) and 2 * count < n
-
-
 def parse_spectrum_text(
     data: bytes | str,
     max_lines: int = DEFAULT_MAX_SPECTRUM_LINES,
@@ -369,18 +365,9 @@ def parse_spectrum_text(
     amp_unit = _amplitude_unit(aname) if len(acols) == 1 else _amplitude_unit(names[acols[0]])
     scale, source, reason = _decide_scale(unit, table, fcol, acols, aname, amp_unit, amp, field)
     if scale == "linear":
-        negative = amp < 0
+        negative = bad_negative_cells(amp, reason, field)
         count = int(np.count_nonzero(negative))
         if count:
-            if not _handful(count, n):
-                raise InputError(
-                    f"{count} of {n} amplitudes are negative but the values are read as "
-                    f"linear ({reason})",
-                    field=field,
-                    value=count,
-                    code="negative_amplitude",
-                    remedy="If the values are dB, pass unit='db'; else correct the file",
-                )
             dropped["negative"] = count
             first = int(lines[np.argmax(negative)])
             notes.append(
@@ -444,38 +431,8 @@ def _decide_scale(
     munit = _metadata_unit(table.metadata)
     if amp_unit is None and munit and _DB.search(munit):
         return "db", "header", f"the header block gives the unit {munit!r}"
-    n = int(amp.size)
-    count = int(np.count_nonzero(amp < 0))
-    if count == 0:
-        return (
-            "linear",
-            "values",
-            f"all {n} values are >= 0, so they are read as linear amplitudes (say dB "
-            "explicitly for a dB scale whose values are all positive)",
-        )
-    positive = amp[amp > 0]
-    if _handful(count, n) and positive.size and np.max(positive) >= 10 * np.median(positive):
-        return (
-            "linear",
-            "values",
-            f"{count} of {n} values are negative, too few for a dB scale, so the values "
-            "are read as linear amplitudes",
-        )
-    if 5 * count >= n:
-        return (
-            "db",
-            "values",
-            f"{count} of {n} values are negative; amplitudes cannot be negative, so the "
-            "values are read as dB",
-        )
-    raise InputError(
-        f"{count} of {n} values are negative: too many for bad cells in a linear column, "
-        "too few to be sure of a dB scale",
-        field=field_name,
-        value=count,
-        code="ambiguous_scale",
-        remedy="Say which with unit='db' or unit='linear', or name dB in the column header",
-    )
+    scale, reason = detect_unit(amp, field_name)
+    return scale, "values", reason
 
 
 def _check_spectrum(

@@ -21,7 +21,17 @@ from ..core.harmonics import Family, find_families
 from ..core.spectrum import find_peaks, noise_floor
 from .errors import input_errors
 from .fold import tones_from_request
-from .measure import Measured, Upload, capture_chain, chain_if_given, check_extent, measure
+from .measure import (
+    Measured,
+    Upload,
+    capture_chain,
+    chain_if_given,
+    check_extent,
+    input_summary,
+    input_warnings,
+    mark_clipping_products,
+    measure,
+)
 
 __all__ = ["diagnose_payload"]
 
@@ -107,6 +117,7 @@ def diagnose_payload(
         req.spectrum_options,
         stated.final_rate_hz if stated else None,
         settings,
+        rate_field="chain" if req.chain is not None else None,
     )
     chain = stated or capture_chain(req, m.record_rate_hz, "")
     check_extent(m, chain, "")
@@ -147,8 +158,10 @@ def diagnose_payload(
             level_tolerance_db=req.level_tolerance_db,
             families=families,
         )
+    peaks_out = _peaks_out(att, peaks.floor, peaks.snr_db)
+    mark_clipping_products(m, peaks_out, chain.final_rate_hz, att.tolerance_hz)
     counts: dict[str, int] = {}
-    for v in att.verdict.tolist():
+    for v in (p["verdict"] for p in peaks_out):
         counts[v] = counts.get(v, 0) + 1
     payload = {
         "summary": {
@@ -164,6 +177,7 @@ def diagnose_payload(
             "floor_median": float(np.median(floor)),
             "peaks_found": len(peaks),
             "peaks_shown": len(peaks),
+            **input_summary(m),
         },
         "nyquist_hz": chain.final_rate_hz / 2.0,
         "final_rate_hz": chain.final_rate_hz,
@@ -171,9 +185,11 @@ def diagnose_payload(
         "protected_edge_hz": att.protected_edge_hz,
         "tolerance_hz": att.tolerance_hz,
         "stages": list(chain.stage_names),
-        "notes": list(chain.validate()) + list(att.notes),
+        "notes": list(chain.validate())
+        + list(att.notes)
+        + input_warnings(m, len(peaks), req.threshold_db),
         "counts": counts,
-        "peaks": _peaks_out(att, peaks.floor, peaks.snr_db),
+        "peaks": peaks_out,
         "families": [_family(f) for f in families],
         "caution": CAUTION,
         "computation_version": COMPUTATION_VERSION,

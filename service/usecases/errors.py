@@ -37,6 +37,20 @@ class RequestError(InputError):
     def detail(self) -> str:
         return str(self)
 
+    @classmethod
+    def placed(cls, exc: InputError, field: str | None, status: int = 422) -> RequestError:
+        """``exc`` with its own code, remedy, value, limit and status (413 for sizes)
+        on the request field ``field``; ``status`` stands for a plain 422."""
+        return cls(
+            exc.message,
+            field=field,
+            status=exc.status if exc.status != 422 else status,
+            code=exc.code,
+            remedy=exc.remedy,
+            value=exc.value,
+            limit=exc.limit,
+        )
+
 
 class PlanImpossibleError(RequestError):
     """No offered setup meets the plan's requirements; ``suggestions`` say what would."""
@@ -57,6 +71,8 @@ def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
         yield
     except RequestError:
         raise
+    except InputError as exc:
+        # Only the field is re-rooted onto the request; the rest travels on.
+        raise RequestError.placed(exc, field, status) from exc
     except ValueError as exc:
-        code = exc.code if isinstance(exc, InputError) else "invalid"
-        raise RequestError(str(exc), field=field, status=status, code=code) from exc
+        raise RequestError(str(exc), field=field, status=status, code="invalid") from exc

@@ -67,12 +67,13 @@ DIAGNOSE_LABELS = {
     "upload_channel": "Channel",
     "upload_sample_rate_hz": "Record sample rate",
     "upload_unit": "Amplitude unit",
+    "upload_amplitude_column": "Amplitude column",
     "upload_window": "Window",
     "threshold_db": "Peak threshold",
     "lines": "Analysis lines (time records)",
     "share_title": "Title of the link",
 }
-_UPLOAD_FIELDS = ("channel", "sample_rate_hz", "unit", "window", "kind")
+_UPLOAD_FIELDS = ("channel", "sample_rate_hz", "unit", "amplitude_column", "window", "kind")
 
 
 @dataclass

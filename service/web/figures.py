@@ -476,6 +476,7 @@ VERDICT_STYLES: dict[str, tuple[str, str, str]] = {
     "direct": ("real (direct)", COLOURS["direct"], "circle"),
     "family": ("real (harmonic family)", COLOURS["direct"], "circle-open"),
     "unexplained": ("unexplained", COLOURS["unknown"], "x"),
+    "clipping": ("clipping product", COLOURS["unknown"], "triangle-up"),
 }
 
 

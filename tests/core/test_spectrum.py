@@ -423,9 +423,38 @@ class TestDetectUnit:
         unit, reason = sp.detect_unit([0.0, 1e-6, 0.3])
         assert unit == "linear" and "all 3 values are >= 0" in reason
 
+    def test_edges(self) -> None:
+        # A linear spectrum (Hann-windowed numpy rFFT of a sampled cosine, independent of
+        # the project's spectrum code) with 3 cells exported negative: bad data, not dB.
+        n = 2048
+        x = np.cos(2 * np.pi * 100.5 * np.arange(n) / n) + np.random.default_rng(1).normal(
+            0, 1e-3, n
+        )
+        amp = np.abs(np.fft.rfft(x * np.hanning(n))) * 2 / np.hanning(n).sum()
+        amp[[7, 300, 900]] *= -1
+        unit, reason = sp.detect_unit(amp)
+        assert unit == "linear" and "3 of 1025 values are negative, too few" in reason
+        bad = sp.bad_negative_cells(amp, reason)
+        assert np.flatnonzero(bad).tolist() == [7, 300, 900]
+        # The same spectrum in dB (20·log10, every value below 1 is negative): dB.
+        assert sp.detect_unit(20 * np.log10(np.abs(amp)))[0] == "db"
+        # A handful: at most 3, or 1 % of the rows, and fewer than half.
+        assert sp.few_bad_cells(3, 10) and not sp.few_bad_cells(4, 10)
+        assert sp.few_bad_cells(10, 1000) and not sp.few_bad_cells(11, 1000)
+        assert not sp.few_bad_cells(2, 3)
+
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match=r"amplitude\[1\]=inf"):
             sp.detect_unit([1.0, np.inf])
+        # A tenth negative: neither a handful nor a dB scale; the caller must say.
+        values = np.linspace(1.0, 2.0, 100)
+        values[::10] *= -1
+        with pytest.raises(sp.InputError, match="too few to be sure") as exc:
+            sp.detect_unit(values, field="spectrum.amplitude")
+        assert exc.value.code == "ambiguous_scale" and exc.value.field == "spectrum.amplitude"
+        with pytest.raises(sp.InputError, match="10 of 100 amplitudes are negative") as exc:
+            sp.bad_negative_cells(values, "the request says so")
+        assert exc.value.code == "negative_amplitude" and exc.value.remedy
 
 
 class TestToLinear:

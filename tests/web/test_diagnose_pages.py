@@ -163,6 +163,21 @@ class TestDiagnosePage:
         assert "1 of 2 peaks is probably alias" in re.sub(r"<[^>]+>|\s+", " ", r.text)
         assert_strict_page(r.text)
 
+    def test_how_the_input_was_read_is_shown(self, page_client: TestClient) -> None:
+        # A header naming the unit, and two cells exported negative: bad data, not dB.
+        text = _sampled_spectrum(10_000.0, [(7300.0, 1.0), (1000.0, 0.5)])
+        lines = text.replace("frequency_hz, amplitude", "Frequency (Hz), Amplitude (g)")
+        rows = lines.split("\n")
+        for i in (50, 900):
+            f, a = rows[i].split(", ")
+            rows[i] = f"{f}, -{a}"
+        r = page_client.post("/diagnose", data={**BASIC, "spectrum_text": "\n".join(rows)})
+        assert r.status_code == 200, _summary(r.text)
+        flat = re.sub(r"<[^>]+>|\s+", " ", r.text)
+        assert "amplitude in g" in flat
+        assert "2 negative amplitudes in a linear column left out as bad data" in flat
+        assert "1 of 2 peaks is probably alias" in flat  # the same answer as the clean text
+
     def test_upload_file(self, page_client: TestClient) -> None:
         text = _sampled_spectrum(10_000.0, [(7300.0, 1.0)])
         r = page_client.post(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 from collections.abc import Callable
 from typing import Any
 
@@ -39,7 +40,31 @@ _MULTIPART_DOC = {
                 },
             },
             "required": ["file"],
-        }
+        },
+        "examples": {
+            "spectrum_export": {
+                "summary": "An analyser's spectrum export with several value columns",
+                "description": "The header does not say which column is the amplitude, so "
+                "`upload.amplitude_column` names it; the answer's summary says how the "
+                "file was read (columns, frequency and amplitude units, linear or dB and "
+                "why, dropped lines, the header block's metadata).",
+                "value": {
+                    "request": json.dumps(
+                        {
+                            "sample_rate_hz": 12800,
+                            "upload": {"amplitude_column": "Ch1 (g)", "unit": "auto"},
+                        }
+                    )
+                },
+            },
+            "npy_record": {
+                "summary": "A .npy time record with the rate at the top level",
+                "description": "The top-level `sample_rate_hz` serves an uploaded record; a "
+                "WAV header or a time column that states another rate is a 422 "
+                "(`code: rate_conflict`) naming both values.",
+                "value": {"request": json.dumps({"sample_rate_hz": 12800})},
+            },
+        },
     }
 }
 
