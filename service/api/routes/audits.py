@@ -31,6 +31,57 @@ _PROBLEMS: dict[int | str, dict[str, Any]] = {
 }
 
 
+_JOB_EXAMPLE: dict[str, Any] = {
+    "id": "q3V9sYy2cXo0m4y5QeC1o6tKz8bN2wJ1",
+    "status": "running",
+    "done": 120,
+    "total": 303,
+    "errors": 0,
+    "message": None,
+    "created_at": "2026-12-04T18:00:00+00:00",
+    "updated_at": "2026-12-04T18:00:09+00:00",
+    "url": "/audits/q3V9sYy2cXo0m4y5QeC1o6tKz8bN2wJ1",
+    "recordings_url": "/api/v1/audits/q3V9sYy2cXo0m4y5QeC1o6tKz8bN2wJ1/recordings",
+    "peaks_url": "/api/v1/audits/q3V9sYy2cXo0m4y5QeC1o6tKz8bN2wJ1/peaks.parquet",
+    "recordings_csv_url": "/api/v1/audits/q3V9sYy2cXo0m4y5QeC1o6tKz8bN2wJ1/recordings.csv",
+    "saved": None,
+    "summary": None,
+    "caution": CAUTION,
+}
+_RECORDINGS_EXAMPLE: dict[str, Any] = {
+    "total": 303,
+    "offset": 0,
+    "limit": 1,
+    "items": [
+        {
+            "row": 1,
+            "recording": "rec/00001-eol-12k8-sliced.npy",
+            "channel": 0,
+            "setup": "eol-12k8-sliced",
+            "speed_rpm": 9000.0,
+            "status": "ok",
+            "error": None,
+            "n_peaks": 14,
+            "n_aliased": 6,
+            "n_aliased_in_band": 4,
+            "n_unexplained": 1,
+            "strongest_alias_hz": 2800.0,
+            "strongest_alias_db": -12.4,
+            "strongest_alias_source": "inverter",
+            "strongest_alias_true_hz": 10000.0,
+            "nyquist_hz": 3200.0,
+        }
+    ],
+    "caution": CAUTION,
+}
+
+
+def _example(status: int, description: str, example: dict[str, Any]) -> dict[int | str, Any]:
+    return {
+        status: {"description": description, "content": {"application/json": {"example": example}}}
+    }
+
+
 def _access(request: Request) -> StoreAccess:
     access: StoreAccess = request.app.state.store_access
     return access
@@ -98,7 +149,7 @@ async def _finished_file(request: Request, job_id: str, name: str) -> Path:
     response_model=AuditJobOut,
     response_class=FastJSON,
     summary="Submit an audit of an archive on the server",
-    responses={202: {"description": "Queued; poll the job's URL"}, **_PROBLEMS},
+    responses={**_example(202, "Queued; poll the job's URL", _JOB_EXAMPLE), **_PROBLEMS},
 )
 async def submit(body: AuditIn, request: Request, settings: SettingsDep) -> FastJSON:
     await run_in_threadpool(audit_inputs, body, settings)
@@ -126,7 +177,7 @@ async def submit(body: AuditIn, request: Request, settings: SettingsDep) -> Fast
     response_model=AuditJobOut,
     response_class=FastJSON,
     summary="An audit's status and progress",
-    responses=_PROBLEMS,
+    responses={**_example(200, "The job", _JOB_EXAMPLE), **_PROBLEMS},
 )
 async def status(job_id: str, request: Request) -> FastJSON:
     return FastJSON(job_out(await _job(request, job_id)))
@@ -137,7 +188,7 @@ async def status(job_id: str, request: Request) -> FastJSON:
     response_model=AuditRecordingsOut,
     response_class=FastJSON,
     summary="Recording summaries of a finished audit, ranked by risk",
-    responses=_PROBLEMS,
+    responses={**_example(200, "A page of recordings", _RECORDINGS_EXAMPLE), **_PROBLEMS},
 )
 async def recordings(
     job_id: str,
@@ -152,6 +203,7 @@ async def recordings(
 @router.get(
     "/{job_id}/peaks.parquet",
     summary="Every peak of a finished audit (Parquet)",
+    response_class=FileResponse,
     responses={200: {"content": {"application/vnd.apache.parquet": {}}}, **_PROBLEMS},
 )
 async def peaks_parquet(job_id: str, request: Request) -> Response:
@@ -174,6 +226,7 @@ def _csv(path: Path) -> bytes:
 @router.get(
     "/{job_id}/recordings.csv",
     summary="Recording summaries of a finished audit, ranked by risk (CSV)",
+    response_class=Response,
     responses={200: {"content": {"text/csv": {}}}, **_PROBLEMS},
 )
 async def recordings_csv(job_id: str, request: Request) -> Response:
