@@ -12,8 +12,9 @@ from starlette.concurrency import run_in_threadpool
 
 from . import COMPUTATION_VERSION, __version__
 from .api.examples import install_examples
-from .api.routes import diagnose, diagnoses, fold, health, plan
+from .api.routes import audits, diagnose, diagnoses, fold, health, plan
 from .config import Settings, get_settings
+from .http.audit_jobs import AuditRunner
 from .http.bodies import ResponseCache
 from .http.observability import install_observability
 from .http.problems import install_problem_handlers
@@ -35,6 +36,8 @@ back from above the Nyquist frequency, and of what.
   that move are aliases, with the true frequencies consistent with both.
 * **plan** — the cheapest sample rate, anti-alias filter and analysis lines that keep aliases
   out of the band of interest over the whole speed range, with the run-up folding.
+* **audits** — diagnose every recording of an archive on the server (a manifest), on Dask;
+  poll the job, read the recordings ranked by risk and every peak as Parquet.
 * **diagnoses** — save any result under an unguessable link; delete it with its token.
 
 Errors are `application/problem+json` (RFC 9457) and name the field, the value and the limit.
@@ -55,6 +58,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         app.state.store_access = access
         app.state.store = access
         await run_in_threadpool(access.try_migrate)
+        runner = AuditRunner(settings, access)
+        app.state.audit_runner = runner
+        await run_in_threadpool(runner.resume_all)  # jobs an earlier process left
         # Everything imported and built so far lives as long as the process: moving it
         # out of the collector's reach keeps full collections short under load.
         gc.collect()
@@ -83,6 +89,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(diagnose.router)
     app.include_router(plan.router)
     app.include_router(diagnoses.router)
+    app.include_router(audits.router)
     install_examples(app, settings)
 
     async def saved_lookup(record_id: str) -> object:

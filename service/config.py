@@ -39,6 +39,16 @@ class Settings(BaseSettings):
     rate_limit_per_minute: int = Field(0, ge=0)
     log_level: str = "info"
 
+    #: The folder under which ``POST /api/v1/audits`` may read manifests, libraries and
+    #: recordings. Unset: the endpoint is off (403); a request never names a path outside.
+    audit_root: Path | None = None
+    #: Address of an existing Dask scheduler for submitted audits; empty: a local cluster.
+    audit_scheduler: str = ""
+    #: Size of the local cluster a submitted audit starts (one process, one thread each).
+    audit_workers: int = Field(1, ge=1, le=64)
+    #: Audits waiting behind the one running; a submission beyond answers 503.
+    audit_queue: int = Field(4, ge=0, le=1000)
+
     @property
     def api_key_set(self) -> frozenset[str]:
         return frozenset(k.strip() for k in self.api_keys.split(",") if k.strip())

@@ -40,7 +40,8 @@ LAYERS: dict[str, Layer] = {
     "contract": Layer(allowed=_s("pydantic"), service=_s("core", "contract")),
     "usecases": Layer(
         allowed=None,
-        service=_s("", "core", "contract", "usecases", "inputs", "config"),
+        # "audit": usecases/audit.py runs the audit engine, which calls usecases.diagnose.
+        service=_s("", "core", "contract", "usecases", "inputs", "config", "audit"),
         forbidden=frozenset(WEB_STACK),
     ),
     "http": Layer(

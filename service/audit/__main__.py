@@ -1,16 +1,42 @@
 """``python -m service.audit manifest.csv --library library.json``: an audit from the shell.
 
-A stand-in until ``foldwise audit`` is wired into :mod:`service.cli`; the options map
-one to one onto :func:`service.audit.run_audit`.
+The options are defined once, here (:func:`add_arguments`, :func:`run`), and ``foldwise
+audit`` registers the same ones (:mod:`service.cli.audit`); they map one to one onto
+:func:`service.audit.run_audit`.
 """
 
 from __future__ import annotations
 
 import argparse
+import dataclasses
+import json
 import sys
 from pathlib import Path
 
+from .demo import make_demo_archive
 from .engine import run_audit
+
+__all__ = ["add_arguments", "add_demo_arguments", "build_parser", "main", "run", "run_demo"]
+
+
+def add_arguments(p: argparse.ArgumentParser) -> argparse.ArgumentParser:
+    """The audit's options, on ``p``."""
+    p.add_argument("manifest", type=Path, help="manifest (CSV or Parquet), one row per recording")
+    p.add_argument("--library", type=Path, help="JSON of named chains, sources, options")
+    p.add_argument("--folder", type=Path, help="archive folder (default: the manifest's)")
+    p.add_argument("--out", type=Path, default=Path("audit-out"), help="result folder")
+    p.add_argument("--scheduler", help="address of a running Dask scheduler (tcp://host:8786)")
+    p.add_argument("--workers", type=int, help="local workers (default: one per core)")
+    p.add_argument("--no-progress", action="store_true", help="no progress bar")
+    p.add_argument("--json", action="store_true", help="print the summary as JSON")
+    return p
+
+
+def add_demo_arguments(p: argparse.ArgumentParser) -> argparse.ArgumentParser:
+    """The demo archive's options, on ``p``."""
+    p.add_argument("folder", type=Path, help="folder to write the archive into")
+    p.add_argument("--count", type=int, default=300, help="recordings (default 300)")
+    return p
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -18,18 +44,14 @@ def build_parser() -> argparse.ArgumentParser:
         prog="python -m service.audit",
         description="Diagnose every recording of a manifest (CSV or Parquet) on Dask.",
     )
-    p.add_argument("manifest", type=Path)
-    p.add_argument("--library", type=Path, help="JSON of named chains, sources, options")
-    p.add_argument("--folder", type=Path, help="archive folder (default: the manifest's)")
-    p.add_argument("--out", type=Path, default=Path("audit-out"), help="result folder")
-    p.add_argument("--scheduler", help="address of a running Dask scheduler")
-    p.add_argument("--workers", type=int, help="local workers (default: one per core)")
-    p.add_argument("--no-progress", action="store_true")
-    return p
+    return add_arguments(p)
 
 
-def main(argv: list[str] | None = None) -> int:
-    ns = build_parser().parse_args(argv)
+def run(ns: argparse.Namespace) -> int:
+    """Run the audit the options describe; print its summary. 2 on bad input."""
+    if ns.workers is not None and ns.workers < 1:
+        print(f"audit: --workers={ns.workers} must be at least 1", file=sys.stderr)
+        return 2
     try:
         s = run_audit(
             ns.manifest,
@@ -43,12 +65,30 @@ def main(argv: list[str] | None = None) -> int:
     except (OSError, ValueError) as exc:
         print(f"audit: {exc}", file=sys.stderr)
         return 2
+    if ns.json:
+        doc = {k: str(v) if isinstance(v, Path) else v for k, v in dataclasses.asdict(s).items()}
+        print(json.dumps(doc, indent=2))
+        return 0
     print(
         f"{s.total} rows: {s.computed} diagnosed, {s.skipped} already done, {s.errors} "
         f"errors; {s.peaks} peaks on {s.workers} workers in {s.elapsed_s:.1f} s\n"
         f"{s.recordings_path}\n{s.peaks_path}"
     )
     return 0
+
+
+def run_demo(ns: argparse.Namespace) -> int:
+    """Write the demo archive; print where its manifest and library are."""
+    if not 1 <= ns.count <= 100_000:
+        print(f"audit-demo: --count={ns.count} must be from 1 to 100000", file=sys.stderr)
+        return 2
+    manifest, library = make_demo_archive(ns.folder, count=ns.count)
+    print(f"{manifest}\n{library}")
+    return 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    return run(build_parser().parse_args(argv))
 
 
 if __name__ == "__main__":

@@ -14,9 +14,9 @@ from pydantic import ValidationError
 from ..config import Settings
 from ..contract.diagnose import DiagnoseIn
 from ..usecases.diagnose import diagnose_payload
-from ..usecases.measure import Upload
+from ..usecases.measure import Measured, Upload
 
-__all__ = ["DiagnosisFailed", "diagnose_recording"]
+__all__ = ["DiagnosisFailed", "diagnose_recording", "diagnose_recording_measured"]
 
 
 class DiagnosisFailed(Exception):
@@ -31,7 +31,16 @@ class DiagnosisFailed(Exception):
 def diagnose_recording(
     path: str | Path, request: dict[str, Any], settings: Settings, data: bytes | None = None
 ) -> dict[str, Any]:
-    """Diagnose one recording file with the same use-case as the API; the JSON answer.
+    """Diagnose one recording file with the same use-case as the API; the JSON answer
+    (see :func:`diagnose_recording_measured`, which also gives the spectrum)."""
+    return diagnose_recording_measured(path, request, settings, data)[0]
+
+
+def diagnose_recording_measured(
+    path: str | Path, request: dict[str, Any], settings: Settings, data: bytes | None = None
+) -> tuple[dict[str, Any], Measured]:
+    """Diagnose one recording file with the same use-case as the API: the JSON answer and
+    the spectrum it was computed from.
 
     Parameters
     ----------
@@ -57,7 +66,7 @@ def diagnose_recording(
         where = ".".join(str(x) for x in first["loc"])
         raise DiagnosisFailed(f"{where}: {first['msg']}", where or None) from None
     try:
-        payload, _ = diagnose_payload(req, settings, Upload(data=data, filename=p.name))
+        payload, measured = diagnose_payload(req, settings, Upload(data=data, filename=p.name))
     except ValueError as exc:
         raise DiagnosisFailed(str(exc), getattr(exc, "field", None)) from None
     except Exception as exc:
@@ -65,4 +74,4 @@ def diagnose_recording(
         if detail is None:  # not a problem the API would report: a real bug, let it out
             raise
         raise DiagnosisFailed(str(detail), getattr(exc, "field", None)) from None
-    return payload
+    return payload, measured

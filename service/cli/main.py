@@ -422,6 +422,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     register_plan(sub)
 
+    from .audit import register as register_audit
+
+    register_audit(sub)
+
     d = sub.add_parser("diagnose", help="which peaks of a spectrum or record are aliases")
     d.add_argument(
         "file",

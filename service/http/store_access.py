@@ -65,14 +65,10 @@ class StoreAccess:
                 headers={"Retry-After": "5"},
             ) from exc
 
-    async def save(self, kind: str, parts: SaveParts, title: str | None) -> dict[str, str]:
-        """The one save path: store ``parts`` and return :func:`saved_link`.
-
-        A result too large for the store is a 413 problem naming ``request``.
-        """
+    def _create(self, kind: str, parts: SaveParts, title: str | None) -> dict[str, str]:
+        self._ensure_migrated()
         try:
-            rid, token = await self.call(
-                self.store.create,
+            rid, token = self.store.create(
                 kind,
                 parts.request,
                 parts.result,
@@ -85,6 +81,17 @@ class StoreAccess:
         except ValueError as exc:
             raise Problem(413, str(exc), field="request") from exc
         return saved_link(rid, token)
+
+    async def save(self, kind: str, parts: SaveParts, title: str | None) -> dict[str, str]:
+        """The one save path: store ``parts`` and return :func:`saved_link`.
+
+        A result too large for the store is a 413 problem naming ``request``.
+        """
+        return await self.call(self._create, kind, parts, title)
+
+    def save_sync(self, kind: str, parts: SaveParts, title: str | None) -> dict[str, str]:
+        """The same save from a thread that is not the event loop's (an audit job)."""
+        return self._create(kind, parts, title)
 
     def close(self) -> None:
         self.store.close()

@@ -6,13 +6,26 @@ from __future__ import annotations
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import JSON, CheckConstraint, DateTime, Index, LargeBinary, MetaData, String
+from sqlalchemy import (
+    JSON,
+    CheckConstraint,
+    DateTime,
+    Index,
+    Integer,
+    LargeBinary,
+    MetaData,
+    String,
+    Text,
+)
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 
-__all__ = ["KINDS", "Base", "SavedDiagnosisRow"]
+__all__ = ["JOB_STATES", "KINDS", "AuditJobRow", "Base", "SavedDiagnosisRow"]
 
 # What a saved record holds: the output of one of the service's computations.
-KINDS: tuple[str, ...] = ("diagnose", "compare", "fold", "plan")
+KINDS: tuple[str, ...] = ("diagnose", "compare", "fold", "plan", "audit")
+
+#: The states of an audit job, in the order a job goes through them.
+JOB_STATES: tuple[str, ...] = ("queued", "running", "done", "failed", "interrupted")
 
 # Stable constraint names, so later migrations can refer to them on both backends.
 _NAMING = {
@@ -51,7 +64,34 @@ class SavedDiagnosisRow(Base):
     title: Mapped[str | None] = mapped_column(String(200))
 
     __table_args__ = (
-        CheckConstraint("kind IN ('diagnose', 'compare', 'fold', 'plan')", name="kind"),
+        CheckConstraint("kind IN ('diagnose', 'compare', 'fold', 'plan', 'audit')", name="kind"),
         # For a retention job that removes old records; ids themselves are never listed.
         Index("ix_saved_diagnosis_created_at", "created_at"),
+    )
+
+
+class AuditJobRow(Base):
+    """One audit submitted through the API: where its inputs are, how far it got, and the
+    saved summary once it is done. Kept in the store so a restarted web process finds
+    every job again (and resumes the ones it was running)."""
+
+    __tablename__ = "audit_job"
+
+    id: Mapped[str] = mapped_column(String(64), primary_key=True)
+    status: Mapped[str] = mapped_column(String(16))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    updated_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    request: Mapped[dict[str, Any]] = mapped_column(JSON)
+    done: Mapped[int] = mapped_column(Integer)
+    total: Mapped[int] = mapped_column(Integer)
+    errors: Mapped[int] = mapped_column(Integer)
+    message: Mapped[str | None] = mapped_column(Text)
+    summary: Mapped[dict[str, Any] | None] = mapped_column(JSON)
+    saved_id: Mapped[str | None] = mapped_column(String(64))
+
+    __table_args__ = (
+        CheckConstraint(
+            "status IN ('queued', 'running', 'done', 'failed', 'interrupted')", name="status"
+        ),
+        Index("ix_audit_job_status", "status"),
     )

@@ -39,17 +39,18 @@ from alembic import command
 from alembic.config import Config
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import Connection, Engine, create_engine, delete, event, select, text
+from sqlalchemy import Connection, Engine, create_engine, delete, event, select, text, update
 from sqlalchemy import exc as sa_exc
 from sqlalchemy.engine import make_url
 from sqlalchemy.orm import Session
 
-from service.storage.models import KINDS, SavedDiagnosisRow
+from service.storage.models import JOB_STATES, KINDS, AuditJobRow, SavedDiagnosisRow
 from service.storage.packing import pack_spectra, pack_spectrum, unpack_spectra
 
 __all__ = [
     "DEFAULT_MAX_JSON_BYTES",
     "SQLITE_FILENAME",
+    "AuditJob",
     "DeleteOutcome",
     "SavedDiagnosis",
     "Store",
@@ -103,6 +104,49 @@ class SavedDiagnosis:
     title: str | None
     #: Every stored spectrum (a comparison keeps one per capture); ``spectrum`` is the first.
     spectra: tuple[tuple[np.ndarray, np.ndarray], ...] = ()
+
+
+@dataclass(frozen=True, slots=True)
+class AuditJob:
+    """An audit job as read back: its request, state, progress and saved summary."""
+
+    id: str
+    status: str
+    created_at: datetime
+    updated_at: datetime
+    request: dict[str, Any]
+    done: int
+    total: int
+    errors: int
+    message: str | None
+    summary: dict[str, Any] | None
+    saved_id: str | None
+
+
+def _utc(value: datetime) -> datetime:
+    # SQLite hands back naive datetimes (they were written in UTC); PostgreSQL hands back
+    # the session time zone.
+    return (value.replace(tzinfo=UTC) if value.tzinfo is None else value).astimezone(UTC)
+
+
+def _job(row: AuditJobRow) -> AuditJob:
+    return AuditJob(
+        id=row.id,
+        status=row.status,
+        created_at=_utc(row.created_at),
+        updated_at=_utc(row.updated_at),
+        request=row.request,
+        done=row.done,
+        total=row.total,
+        errors=row.errors,
+        message=row.message,
+        summary=row.summary,
+        saved_id=row.saved_id,
+    )
+
+
+#: Job fields :meth:`Store.update_job` may set.
+_JOB_FIELDS = frozenset({"status", "done", "total", "errors", "message", "summary", "saved_id"})
 
 
 def _hash_token(token: str) -> str:
@@ -439,6 +483,63 @@ class Store:
             session.commit()
             # A concurrent delete may have won between the read and the delete.
             return "deleted" if getattr(outcome, "rowcount", 0) == 1 else "not_found"
+
+    # ------------------------------------------------------------------ audit jobs
+    def create_job(self, request: dict[str, Any]) -> str:
+        """Record a queued audit job; return its id (192 random bits, like a saved id)."""
+        _check_json(request, "request", self.max_json_bytes)
+        now = datetime.now(UTC)
+        job_id = secrets.token_urlsafe(_ID_BYTES)
+        row = AuditJobRow(
+            id=job_id,
+            status="queued",
+            created_at=now,
+            updated_at=now,
+            request=request,
+            done=0,
+            total=0,
+            errors=0,
+        )
+        with self._unavailable_as_error(), Session(self._write_engine) as session:
+            session.add(row)
+            session.commit()
+        return job_id
+
+    def get_job(self, job_id: str) -> AuditJob | None:
+        """The job with this id, or None (also for a malformed id)."""
+        if not _is_valid_id(job_id):
+            return None
+        with self._unavailable_as_error(), Session(self._engine) as session:
+            row = session.get(AuditJobRow, job_id)
+            return None if row is None else _job(row)
+
+    def update_job(self, job_id: str, **fields: Any) -> None:
+        """Set some of a job's fields (status, done, total, errors, message, summary,
+        saved_id) and its ``updated_at``."""
+        bad = set(fields) - _JOB_FIELDS
+        if bad:
+            raise ValueError(f"audit job fields {sorted(bad)} cannot be set")
+        if "status" in fields and fields["status"] not in JOB_STATES:
+            raise ValueError(f"status={fields['status']!r} must be one of {', '.join(JOB_STATES)}")
+        if fields.get("summary") is not None:
+            _check_json(fields["summary"], "summary", self.max_json_bytes)
+        with self._unavailable_as_error(), Session(self._write_engine) as session:
+            session.execute(
+                update(AuditJobRow)
+                .where(AuditJobRow.id == job_id)
+                .values(**fields, updated_at=datetime.now(UTC))
+            )
+            session.commit()
+
+    def jobs_with_status(self, *statuses: str) -> list[AuditJob]:
+        """Jobs in any of ``statuses``, oldest first (at start-up: what to resume)."""
+        with self._unavailable_as_error(), Session(self._engine) as session:
+            rows = session.scalars(
+                select(AuditJobRow)
+                .where(AuditJobRow.status.in_(statuses))
+                .order_by(AuditJobRow.created_at)
+            ).all()
+            return [_job(r) for r in rows]
 
 
 # ---------------------------------------------------------------------- engines

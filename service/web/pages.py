@@ -25,6 +25,8 @@ from ..demo import DEMO_RPM, demo_fold_request
 from ..http.problems import ANSWERABLE, as_problem
 from ..usecases.fold import fold_payload
 from . import assets, figures
+from .audit_page import audit_context
+from .audit_page import router as audit_router
 from .diagnose_pages import (
     compare_result_context,
     diagnose_result_context,
@@ -206,6 +208,9 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         )
     elif record.kind == "plan":
         ctx["plan"] = await run_in_threadpool(plan_result_context, record.request, record.result)
+    elif record.kind == "audit":
+        ctx = {"active": "", "job": None, "record": record, **audit_context(record.result)}
+        return render(request, "audit.html", ctx)
     return render(request, "saved.html", ctx)
 
 
@@ -221,3 +226,4 @@ def install_pages(app: FastAPI) -> None:
     app.include_router(router)
     app.include_router(diagnose_router)
     app.include_router(plan_router)
+    app.include_router(audit_router)
