@@ -76,7 +76,7 @@ def _client(scheduler: str | None, workers: int | None, memory_limit: str) -> tu
         processes=True,
         memory_limit=memory_limit,
         host="127.0.0.1",
-        dashboard_address=None,
+        dashboard_address=":0",  # any free port: never a clash with another cluster
     )
     return Client(cluster), cluster
 
