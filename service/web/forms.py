@@ -205,6 +205,8 @@ class FormState:
     errors: dict[str, list[str]] = field(default_factory=dict)
     #: (field id or None, field words, message), in the order they were found.
     summary: list[tuple[str | None, str, str]] = field(default_factory=list)
+    #: Notes beside a field that are not errors (e.g. pasted text too long to show again).
+    notes: dict[str, str] = field(default_factory=dict)
 
     def add_error(self, field_id: str | None, words: str, message: str) -> None:
         if field_id is not None:

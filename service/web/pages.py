@@ -13,16 +13,17 @@ from collections.abc import Awaitable, Callable
 from typing import Any
 
 from fastapi import APIRouter, FastAPI, Request
-from fastapi.responses import HTMLResponse
+from fastapi.responses import HTMLResponse, Response
 from fastapi.staticfiles import StaticFiles
 from starlette.concurrency import run_in_threadpool
+from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from .. import COMPUTATION_VERSION
 from ..config import Settings
 from ..contract.caution import CAUTION
 from ..contract.fold import FoldIn, chain_from_request
 from ..demo import DEMO_RPM, demo_fold_request
-from ..http.problems import ANSWERABLE, as_problem
+from ..http.problems import ANSWERABLE, as_problem, http_problem, wants_html
 from ..usecases.fold import fold_payload
 from . import assets, figures
 from .diagnose_pages import (
@@ -32,6 +33,7 @@ from .diagnose_pages import (
     request_json,
 )
 from .diagnose_pages import router as diagnose_router
+from .exports import level_words, peaks_csv, request_rows
 from .forms import (
     FormState,
     attach_problem,
@@ -85,14 +87,47 @@ def _tone_rows(out: dict[str, Any]) -> list[dict[str, Any]]:
     return rows
 
 
+def _in_band(out: dict[str, Any], hz: float) -> bool:
+    lo, hi = out["band_hz"]
+    return bool(lo <= hz <= hi)
+
+
+def _collision_rows(out: dict[str, Any]) -> list[dict[str, Any]]:
+    """Each collision with the reason it counts: the two lines' speed-tolerance intervals
+    overlap (their centres may be far apart), or the lines lie within the bins asked."""
+    tones, width = out["tones"], float(out["bin_width_hz"])
+    rows = []
+    for c in out["collisions"]:
+        centres_hz = abs(
+            tones[c["alias_index"]]["apparent_hz"] - tones[c["other_index"]]["apparent_hz"]
+        )
+        centres_bins = centres_hz / width if width > 0 else 0.0
+        if c["separation_hz"] < centres_hz - 1e-9 * max(1.0, centres_hz):
+            why = (
+                "speed-tolerance intervals overlap"
+                if c["separation_hz"] <= 0
+                else f"speed-tolerance intervals {c['separation_bins']:.1f} bins apart"
+            )
+            why += f" (centres {centres_hz:,.1f} Hz, {centres_bins:.1f} bins apart)"
+        else:
+            why = f"lines {c['separation_bins']:.1f} bins ({c['separation_hz']:,.2f} Hz) apart"
+        rows.append({**c, "why": why, "in_band": _in_band(out, c["apparent_hz"])})
+    return rows
+
+
 def _headline(out: dict[str, Any]) -> dict[str, Any]:
     tones = out["tones"]
     aliased = [t for t in tones if t["aliased"]]
+    listed = out["collisions"]
+    in_band = sum(1 for c in listed if _in_band(out, c["apparent_hz"]))
     return {
         "tones": len(tones),
         "aliased": len(aliased),
         "aliased_in_band": sum(1 for t in aliased if t["in_band"]),
-        "collisions": out["collisions_total"],
+        # Only collisions inside the band of interest count in the headline.
+        "collisions": in_band,
+        "collisions_partial": out["collisions_total"] > len(listed),
+        "collisions_out_of_band": len(listed) - in_band,
     }
 
 
@@ -107,6 +142,7 @@ def fold_result_context(req: FoldIn, out: dict[str, Any]) -> dict[str, Any]:
         "out": out,
         "headline": _headline(out),
         "rows": _tone_rows(out),
+        "collision_rows": _collision_rows(out),
         "fold_fig": figures.folding_diagram(out, gain_curve=gain),
         "spectrum_fig": figures.predicted_spectrum(out),
         "collision_bins": req.collision_bins,
@@ -197,22 +233,68 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         ctx["result"] = {**fold_result_context(req, record.result), "share_request": ""}
     elif record.kind == "diagnose":
         ctx["diag"] = await run_in_threadpool(
-            diagnose_result_context, record.result, record.spectrum, record.request
+            diagnose_result_context,
+            record.result,
+            record.spectrum,
+            record.request,
+            "",
+            "peak",
+            f"/d/{record.id}/peaks.csv",
         )
     elif record.kind == "compare":
         ctx["cmp"] = compare_result_context(record.result, {"a": None, "b": None})
     elif record.kind == "plan":
         ctx["plan"] = await run_in_threadpool(plan_result_context, record.request, record.result)
+    ctx["inputs"] = request_rows(record.request)
     return render(request, "saved.html", ctx)
+
+
+@router.get("/d/{record_id}/peaks.csv")
+async def saved_peaks_csv(request: Request, record_id: str) -> Response:
+    """The peak table of a saved diagnosis as CSV: the stored answer's peaks, in order."""
+    lookup: SavedLookup | None = getattr(request.app.state, "saved_lookup", None)
+    try:
+        record = await lookup(record_id) if lookup is not None else None
+    except ANSWERABLE as exc:
+        return error_page(request, as_problem(exc))
+    if record is None or record.kind != "diagnose":
+        what = "saved diagnosis" if record is None else "peak table for this kind of result"
+        return render(
+            request,
+            "not_found.html",
+            {"active": "", "what": what, "record_id": record_id},
+            status_code=404,
+        )
+    text = peaks_csv(record.result, level_words(record.result))
+    return Response(
+        text,
+        media_type="text/csv; charset=utf-8",
+        headers={"Content-Disposition": f'attachment; filename="peaks-{record_id[:12]}.csv"'},
+    )
 
 
 # --------------------------------------------------------------------------- install
 
 
+async def not_found_or_problem(request: Request, exc: StarletteHTTPException) -> Response:
+    """A mistyped address: an HTML page for a browser, problem+json for everyone else
+    (chosen by ``Accept``; under /api/ always problem+json)."""
+    if exc.status_code == 404 and wants_html(request):
+        return render(
+            request,
+            "not_found.html",
+            {"active": "", "what": "page", "record_id": request.url.path},
+            status_code=404,
+        )
+    return http_problem(request, exc)
+
+
 def install_pages(app: FastAPI) -> None:
-    """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages.
+    """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages,
+    and answer a browser's mistyped address with a page.
 
     The app factory calls it once."""
+    app.add_exception_handler(StarletteHTTPException, not_found_or_problem)  # type: ignore[arg-type]
     app.mount("/static", StaticFiles(directory=assets.web_dir("static")), name="static")
     app.include_router(assets.router)
     app.include_router(router)

@@ -428,7 +428,10 @@ class TestShare:
         r = page_client.post("/diagnose", data={**BASIC, "spectrum_text": big})
         assert r.status_code == 200, _summary(r.text)
         assert _share_inputs(r.text, "diagnose") is None and 'name="inputs"' not in r.text
-        assert len(r.content) < len(big)
+        # The pasted text comes back once, in its box (no second paste to correct a
+        # setting), and not a second time in a share form.
+        assert len(r.content) < 2 * len(big)
+        assert big.splitlines()[-1] in r.text
         # Just under the limit: the form, and the page within its weight.
         under = big[: big.rindex("\n", 0, SHARE_TEXT_LIMIT)]
         assert SHARE_TEXT_LIMIT - 100 < len(under.encode()) <= SHARE_TEXT_LIMIT
