@@ -42,7 +42,7 @@ COLOURS = {
     "unknown": "#7a8290",
     "gain": "#6d4bb3",
     "band": "rgba(217, 160, 20, 0.11)",
-    "band_edge": "#b7860b",
+    "band_edge": "#a07509",
     "zone_even": "rgba(47, 62, 92, 0.075)",
     "floor": "#8a6d3b",
     "spectrum": "#33415c",
