@@ -20,7 +20,10 @@ class TestFoldCommand:
         assert code == 0
         # Source: DESIGN.md §5: 7.3 kHz at 10 kS/s shows at 2.7 kHz, zone 2, inverted.
         line = next(row for row in out.splitlines() if row.startswith("a "))
-        assert "2700.0" in line and "ALIAS inverted" in line
+        assert "2700.0" in line and "alias, inverted" in line
+        # The pages' words and levels: dB re 1 input unit, never linear.
+        assert "real (direct)" in next(r for r in out.splitlines() if r.startswith("b "))
+        assert "dB re 1 input unit" in out
 
     def test_json_matches_api(
         self, capsys: pytest.CaptureFixture[str], tmp_path: Path, client: TestClient
@@ -34,7 +37,9 @@ class TestFoldCommand:
 
     def test_errors(self, capsys: pytest.CaptureFixture[str]) -> None:
         assert main(["fold", "--sample-rate", "-5", "--tone", "a=1"]) == 2
-        assert "sample_rate_hz" in capsys.readouterr().err
+        err = capsys.readouterr().err
+        # The option's own name and the bound, not the request's field or pydantic's text.
+        assert "--sample-rate: must be at least 1" in err and "sample_rate_hz" not in err
         with pytest.raises(SystemExit):
             main(["fold", "--tone", "no-equals-sign"])
 
@@ -65,6 +70,7 @@ class TestDiagnoseCommand:
         assert code == 0
         row = next(r for r in out.splitlines() if r.strip().startswith("2800.0"))
         assert "alias" in row and "10000.0" in row
+        assert "dB re 1" in out and "only_in" not in out
         assert "Caution" in out
 
     def test_errors(self, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
