@@ -62,5 +62,5 @@ class TestParseQuantity:
         ],
     )
     def test_errors(self, text: str, kind: str) -> None:
-        with pytest.raises(ValueError, match="write e.g."):
+        with pytest.raises(ValueError, match=r"write e\.g\."):
             parse_quantity(text, kind)
