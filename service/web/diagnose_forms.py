@@ -152,9 +152,9 @@ def parse_diagnose_form(form: Mapping[str, str], upload: Upload | None) -> Diagn
     lines = req_dict.pop("lines", None)
     if lines is not None:
         req_dict["spectrum_options"] = {"lines": lines}
-    raw = read_number(st, "threshold_db", DIAGNOSE_LABELS["threshold_db"])
-    if raw:
-        req_dict["threshold_db"] = raw
+    threshold = read_number(st, "threshold_db", DIAGNOSE_LABELS["threshold_db"])
+    if threshold:
+        req_dict["threshold_db"] = threshold
     if st.summary:
         return out
     try:

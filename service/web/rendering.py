@@ -15,8 +15,8 @@ from markupsafe import Markup
 from .. import COMPUTATION_VERSION, __version__
 from ..contract.caution import CAUTION
 from . import assets, figures
-from .exports import AMPLITUDE_KINDS, AMPLITUDE_UNITS
 from .diagnose_forms import COMPARE_LABELS, DIAGNOSE_LABELS, READ_KINDS, UNITS, WINDOWS
+from .exports import AMPLITUDE_KINDS, AMPLITUDE_UNITS
 from .forms import FIELD_LABELS, FILTER_FAMILIES, SOURCE_FORMS, SPEED_UNITS
 
 __all__ = ["WAYS_IN", "render", "templates"]
