@@ -162,6 +162,7 @@ class TestExport:
         page.goto(server_url + "/diagnose?demo=1")
         _wait_plots(page, 2)
         pdf = PdfReader(io.BytesIO(page.pdf(format="A4", landscape=True)))
+        assert len(pdf.pages) == 1  # the demo's report fits one landscape A4 page
         text = " ".join((p.extract_text() or "") for p in pdf.pages)
         flat = " ".join(text.split())
         assert " ".join(CAUTION.split()[:8]) in flat
