@@ -168,7 +168,8 @@ class TestExport:
         assert " ".join(CAUTION.split()[:8]) in flat
         assert "Measured spectrum" in flat  # the one figure: its title
         assert "Folding diagram" not in flat  # the second figure stays on screen
-        assert "Inputs as entered" in flat and "Every peak" in flat
+        assert "Sample rate, S/s 12,800" in flat  # the inputs as entered
+        assert "probable alias" in flat  # the table's note: the aliases are listed
         assert "Diagnose the peaks" not in flat  # no form, no buttons
 
     def test_delete_button(self, page: Any, server_url: str) -> None:
