@@ -25,6 +25,20 @@ class TestFoldCommand:
         assert "real (direct)" in next(r for r in out.splitlines() if r.startswith("b "))
         assert "dB re 1 input unit" in out
 
+    def test_collision_reason(self, capsys: pytest.CaptureFixture[str]) -> None:
+        # 10 kHz folds to |10000 - 12800| = 2800 Hz (±100 Hz at 1 %), 50 Hz from a direct
+        # 2850 Hz line (±28.5 Hz): the intervals overlap though the centres are 16 bins
+        # (50 / (5000/1600)) apart, worked by hand.
+        src = '{"type":"shaft","label":"%s","speed_rpm":%d}'
+        argv = ["fold", "--sample-rate", "12800", "--lines", "1600", "--speed-tolerance", "1"]
+        argv += ["--band", "0:5000", "--source", src % ("a", 600000)]
+        argv += ["--source", src % ("b", 171000)]
+        assert main(argv) == 0
+        out = capsys.readouterr().out
+        line = next(r for r in out.splitlines() if "at 2800.0 Hz" in r)
+        assert "in band" in line and "speed-tolerance intervals overlap" in line
+        assert "16.0 bins apart" in line
+
     def test_json_matches_api(
         self, capsys: pytest.CaptureFixture[str], tmp_path: Path, client: TestClient
     ) -> None:

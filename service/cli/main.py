@@ -137,10 +137,13 @@ def _print_fold(out: dict[str, Any]) -> None:
         )
     if out["collisions"]:
         print(f"\n{out['collisions_total']} alias(es) land near another line:")
-        for c in out["collisions"][:20]:
+        from ..web.exports import collision_rows
+
+        for c in collision_rows(out)[:20]:
+            where = "in band" if c["in_band"] else "outside the band"
             print(
-                f"  {c['alias']} ({c['alias_source']}) at {c['apparent_hz']:.1f} Hz is "
-                f"{c['separation_bins']:.1f} bins from {c['other']} ({c['other_source']})"
+                f"  {c['alias']} ({c['alias_source']}) at {c['apparent_hz']:.1f} Hz, {where}, "
+                f"near {c['other']} ({c['other_source']}): {c['why']}"
             )
 
 

@@ -1,5 +1,6 @@
-"""What a diagnosis result says about its units, and what an engineer takes away: the peak
-table as CSV and the inputs as entered.
+"""What a result says about its units and reasons, and what an engineer takes away: the
+peak table as CSV, the inputs as entered, and why a fold's collisions count (pages and
+CLI word them alike).
 
 Amplitudes. For a time record the service computes the averaged spectrum itself, scaled
 so that a sine of amplitude A reads A (``sqrt(2·P)`` of the power spectrum, see
@@ -20,6 +21,8 @@ from typing import Any
 __all__ = [
     "AMPLITUDE_KINDS",
     "AMPLITUDE_UNITS",
+    "collision_rows",
+    "in_band",
     "level_words",
     "peaks_csv",
     "request_rows",
@@ -182,4 +185,33 @@ def request_rows(request: Mapping[str, Any]) -> list[tuple[str, str]]:
             )
             continue
         rows.append((words, _value(v)))
+    return rows
+
+
+def in_band(out: Mapping[str, Any], hz: float) -> bool:
+    """Whether ``hz`` lies in the answer's band of interest (ends included)."""
+    lo, hi = out["band_hz"]
+    return bool(lo <= hz <= hi)
+
+
+def collision_rows(out: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """Each collision with the reason it counts: the two lines' speed-tolerance intervals
+    overlap (their centres may be far apart), or the lines lie within the bins asked."""
+    tones, width = out["tones"], float(out["bin_width_hz"])
+    rows = []
+    for c in out["collisions"]:
+        centres_hz = abs(
+            tones[c["alias_index"]]["apparent_hz"] - tones[c["other_index"]]["apparent_hz"]
+        )
+        centres_bins = centres_hz / width if width > 0 else 0.0
+        if c["separation_hz"] < centres_hz - 1e-9 * max(1.0, centres_hz):
+            why = (
+                "speed-tolerance intervals overlap"
+                if c["separation_hz"] <= 0
+                else f"speed-tolerance intervals {c['separation_bins']:.1f} bins apart"
+            )
+            why += f" (centres {centres_hz:,.1f} Hz, {centres_bins:.1f} bins apart)"
+        else:
+            why = f"lines {c['separation_bins']:.1f} bins ({c['separation_hz']:,.2f} Hz) apart"
+        rows.append({**c, "why": why, "in_band": in_band(out, c["apparent_hz"])})
     return rows

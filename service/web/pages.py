@@ -33,7 +33,7 @@ from .diagnose_pages import (
     request_json,
 )
 from .diagnose_pages import router as diagnose_router
-from .exports import level_words, peaks_csv, request_rows
+from .exports import collision_rows, in_band, level_words, peaks_csv, request_rows
 from .forms import (
     FormState,
     attach_problem,
@@ -87,47 +87,19 @@ def _tone_rows(out: dict[str, Any]) -> list[dict[str, Any]]:
     return rows
 
 
-def _in_band(out: dict[str, Any], hz: float) -> bool:
-    lo, hi = out["band_hz"]
-    return bool(lo <= hz <= hi)
-
-
-def _collision_rows(out: dict[str, Any]) -> list[dict[str, Any]]:
-    """Each collision with the reason it counts: the two lines' speed-tolerance intervals
-    overlap (their centres may be far apart), or the lines lie within the bins asked."""
-    tones, width = out["tones"], float(out["bin_width_hz"])
-    rows = []
-    for c in out["collisions"]:
-        centres_hz = abs(
-            tones[c["alias_index"]]["apparent_hz"] - tones[c["other_index"]]["apparent_hz"]
-        )
-        centres_bins = centres_hz / width if width > 0 else 0.0
-        if c["separation_hz"] < centres_hz - 1e-9 * max(1.0, centres_hz):
-            why = (
-                "speed-tolerance intervals overlap"
-                if c["separation_hz"] <= 0
-                else f"speed-tolerance intervals {c['separation_bins']:.1f} bins apart"
-            )
-            why += f" (centres {centres_hz:,.1f} Hz, {centres_bins:.1f} bins apart)"
-        else:
-            why = f"lines {c['separation_bins']:.1f} bins ({c['separation_hz']:,.2f} Hz) apart"
-        rows.append({**c, "why": why, "in_band": _in_band(out, c["apparent_hz"])})
-    return rows
-
-
 def _headline(out: dict[str, Any]) -> dict[str, Any]:
     tones = out["tones"]
     aliased = [t for t in tones if t["aliased"]]
     listed = out["collisions"]
-    in_band = sum(1 for c in listed if _in_band(out, c["apparent_hz"]))
+    inside = sum(1 for c in listed if in_band(out, c["apparent_hz"]))
     return {
         "tones": len(tones),
         "aliased": len(aliased),
         "aliased_in_band": sum(1 for t in aliased if t["in_band"]),
         # Only collisions inside the band of interest count in the headline.
-        "collisions": in_band,
+        "collisions": inside,
         "collisions_partial": out["collisions_total"] > len(listed),
-        "collisions_out_of_band": len(listed) - in_band,
+        "collisions_out_of_band": len(listed) - inside,
     }
 
 
@@ -142,7 +114,7 @@ def fold_result_context(req: FoldIn, out: dict[str, Any]) -> dict[str, Any]:
         "out": out,
         "headline": _headline(out),
         "rows": _tone_rows(out),
-        "collision_rows": _collision_rows(out),
+        "collision_rows": collision_rows(out),
         "fold_fig": figures.folding_diagram(out, gain_curve=gain),
         "spectrum_fig": figures.predicted_spectrum(out),
         "collision_bins": req.collision_bins,
