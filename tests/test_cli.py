@@ -22,7 +22,24 @@ class TestFoldCommand:
         assert code == 0
         # Source: DESIGN.md §5: 7.3 kHz at 10 kS/s shows at 2.7 kHz, zone 2, inverted.
         line = next(row for row in out.splitlines() if row.startswith("a "))
-        assert "2700.0" in line and "ALIAS inverted" in line
+        assert "2700.0" in line and "alias, inverted" in line
+        # The pages' words and levels: dB re 1 input unit, never linear.
+        assert "real (direct)" in next(r for r in out.splitlines() if r.startswith("b "))
+        assert "dB re 1 input unit" in out
+
+    def test_collision_reason(self, capsys: pytest.CaptureFixture[str]) -> None:
+        # 10 kHz folds to |10000 - 12800| = 2800 Hz (±100 Hz at 1 %), 50 Hz from a direct
+        # 2850 Hz line (±28.5 Hz): the intervals overlap though the centres are 16 bins
+        # (50 / (5000/1600)) apart, worked by hand.
+        src = '{"type":"shaft","label":"%s","speed_rpm":%d}'
+        argv = ["fold", "--sample-rate", "12800", "--lines", "1600", "--speed-tolerance", "1"]
+        argv += ["--band", "0:5000", "--source", src % ("a", 600000)]
+        argv += ["--source", src % ("b", 171000)]
+        assert main(argv) == 0
+        out = capsys.readouterr().out
+        line = next(r for r in out.splitlines() if "at 2800.0 Hz" in r)
+        assert "in band" in line and "speed-tolerance intervals overlap" in line
+        assert "16.0 bins apart" in line
 
     def test_json_matches_api(
         self, capsys: pytest.CaptureFixture[str], tmp_path: Path, client: TestClient
@@ -36,7 +53,9 @@ class TestFoldCommand:
 
     def test_errors(self, capsys: pytest.CaptureFixture[str]) -> None:
         assert main(["fold", "--sample-rate", "-5", "--tone", "a=1"]) == 2
-        assert "sample_rate_hz" in capsys.readouterr().err
+        err = capsys.readouterr().err
+        # The option's own name and the bound, not the request's field or pydantic's text.
+        assert "--sample-rate: must be at least 1" in err and "sample_rate_hz" not in err
         with pytest.raises(SystemExit):
             main(["fold", "--tone", "no-equals-sign"])
 
@@ -67,6 +86,7 @@ class TestDiagnoseCommand:
         assert code == 0
         row = next(r for r in out.splitlines() if r.strip().startswith("2800.0"))
         assert "alias" in row and "10000.0" in row
+        assert "dB re 1" in out and "only_in" not in out
         assert "Caution" in out
 
     def test_amplitude_column(self, capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 from collections.abc import Sequence
 from pathlib import Path
@@ -40,6 +41,17 @@ def _parse_band(text: str) -> list[float]:
     return [lo, hi]
 
 
+#: The analog anti-alias families (the contract's FilterFamily less the measured table).
+FILTER_FAMILIES = ["butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel"]
+
+
+def _db_text(amplitude: float | None) -> str:
+    """A level in dB re 1 input unit, as the pages print it ("–" without an amplitude)."""
+    if amplitude is None or not amplitude > 0:
+        return "–"
+    return f"{20 * math.log10(amplitude):.1f}"
+
+
 def _chain_args(p: argparse.ArgumentParser) -> None:
     g = p.add_argument_group("acquisition chain")
     g.add_argument("--sample-rate", type=float, metavar="HZ", help="sample rate, Hz")
@@ -52,8 +64,8 @@ def _filter_args(g: Any) -> None:
         "--filter",
         dest="family",
         metavar="FAMILY",
-        choices=["butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel"],
-        help="anti-alias filter family",
+        choices=FILTER_FAMILIES,
+        help="anti-alias filter family: " + ", ".join(FILTER_FAMILIES),
     )
     g.add_argument("--order", type=int, help="anti-alias filter order")
     g.add_argument("--cutoff", type=float, metavar="HZ", help="anti-alias filter cutoff, Hz")
@@ -101,10 +113,6 @@ def _fold_request(ns: argparse.Namespace) -> dict[str, Any]:
     return req
 
 
-def _fmt(v: Any, spec: str = ".1f") -> str:
-    return "–" if v is None else format(v, spec)
-
-
 def _print_fold(out: dict[str, Any]) -> None:
     print(
         f"final rate {out['final_rate_hz']:g} S/s · Nyquist {out['nyquist_hz']:g} Hz · "
@@ -114,29 +122,33 @@ def _print_fold(out: dict[str, Any]) -> None:
     print("chain: " + " → ".join(out["stages"]))
     for note in out["notes"]:
         print(f"note: {note}")
+    print("levels: dB re 1 input unit (20·log10 of the predicted amplitude)")
     head = (
         f"{'tone':<28} {'source':<22} {'true Hz':>10} {'shows Hz':>10} {'zone':>4} "
-        f"{'atten dB':>9} {'level':>10}  flags"
+        f"{'atten dB':>9} {'level dB':>9}  verdict"
     )
     print(head)
     print("-" * len(head))
     for t in sorted(out["tones"], key=lambda t: t["apparent_hz"]):
-        flags = []
         if t["aliased"]:
-            flags.append("ALIAS" + (" inverted" if t["inverted"] else ""))
-        if t["in_band"]:
-            flags.append("in band")
+            words = "alias" + (", inverted (even zone)" if t["inverted"] else "")
+        else:
+            words = "real (direct)"
+        words += ", in band" if t["in_band"] else ", out of band"
         print(
             f"{t['label'][:28]:<28} {t['source'][:22]:<22} {t['freq_hz']:>10.1f} "
             f"{t['apparent_hz']:>10.1f} {t['zone']:>4} {t['attenuation_db']:>9.1f} "
-            f"{_fmt(t['apparent_amplitude'], '.3g'):>10}  {', '.join(flags)}"
+            f"{_db_text(t['apparent_amplitude']):>9}  {words}"
         )
     if out["collisions"]:
         print(f"\n{out['collisions_total']} alias(es) land near another line:")
-        for c in out["collisions"][:20]:
+        from ..web.exports import collision_rows
+
+        for c in collision_rows(out)[:20]:
+            where = "in band" if c["in_band"] else "outside the band"
             print(
-                f"  {c['alias']} ({c['alias_source']}) at {c['apparent_hz']:.1f} Hz is "
-                f"{c['separation_bins']:.1f} bins from {c['other']} ({c['other_source']})"
+                f"  {c['alias']} ({c['alias_source']}) at {c['apparent_hz']:.1f} Hz, {where}, "
+                f"near {c['other']} ({c['other_source']}): {c['why']}"
             )
 
 
@@ -156,21 +168,62 @@ def _cmd_fold(ns: argparse.Namespace) -> int:
     return _report_errors(run)
 
 
+#: Request fields and the command-line options that set them (errors name the option).
+OPTION_WORDS = {
+    "sample_rate_hz": "--sample-rate",
+    "anti_alias.family": "--filter",
+    "anti_alias.order": "--order",
+    "anti_alias.cutoff_hz": "--cutoff",
+    "anti_alias.ripple_db": "--ripple",
+    "anti_alias.stop_atten_db": "--stop-atten",
+    "band_hz": "--band",
+    "lines": "--lines",
+    "speed_tolerance_pct": "--speed-tolerance",
+    "threshold_db": "--threshold",
+    "upload.sample_rate_hz": "--record-rate",
+    "upload.channel": "--channel",
+    "upload.unit": "--unit",
+    "upload.window": "--window",
+    "upload.kind": "--kind",
+    "spectrum_options.lines": "--lines",
+    "tones": "--tone",
+    "sources": "--source",
+}
+
+
+def _option(loc: str) -> str:
+    """A request field path as the option that sets it (``anti_alias.order`` → ``--order``,
+    ``tones.2.freq_hz`` → ``--tone (3rd)``)."""
+    if loc in OPTION_WORDS:
+        return OPTION_WORDS[loc]
+    parts = loc.replace("[", ".").replace("]", "").split(".")
+    for n in range(len(parts), 0, -1):
+        head = ".".join(parts[:n])
+        if head in OPTION_WORDS:
+            rest = parts[n:]
+            if rest and rest[0].isdigit():
+                return f"{OPTION_WORDS[head]} number {int(rest[0]) + 1}"
+            return OPTION_WORDS[head]
+    return loc
+
+
 def _report_errors(run: Any) -> int:
     """Run ``run()``; print input errors the way the API words them and return 2."""
     from pydantic import ValidationError
 
     from ..usecases.errors import InputError
+    from ..web.forms import form_message
 
     try:
         run()
     except ValidationError as exc:
         for e in exc.errors():
-            loc = ".".join(str(p) for p in e["loc"])
-            print(f"foldwise: {loc}: {e['msg']}", file=sys.stderr)
+            loc = ".".join(str(p) for p in e["loc"] if not (isinstance(p, str) and "[" in p))
+            print(f"foldwise: {_option(loc)}: {form_message(e, OPTION_WORDS)}", file=sys.stderr)
         return 2
     except InputError as exc:
-        print(f"foldwise: {exc.field + ': ' if exc.field else ''}{exc}", file=sys.stderr)
+        where = f"{_option(exc.field)}: " if exc.field else ""
+        print(f"foldwise: {where}{exc}", file=sys.stderr)
         return 2
     except (OSError, json.JSONDecodeError, ValueError) as exc:
         print(f"foldwise: {exc}", file=sys.stderr)
@@ -209,6 +262,16 @@ def _diagnose_request(ns: argparse.Namespace) -> dict[str, Any]:
     return req
 
 
+#: The answer's verdict counts in the pages' words.
+_VERDICT_COUNT_WORDS = {
+    "direct": "real (direct)",
+    "family": "harmonic-family members",
+    "alias": "alias",
+    "mirror": "mirror near fs/2",
+    "unexplained": "unexplained",
+}
+
+
 def _print_diagnosis(out: dict[str, Any]) -> None:
     s = out["summary"]
     print(f"{s['input']}")
@@ -221,16 +284,23 @@ def _print_diagnosis(out: dict[str, Any]) -> None:
         print(f"input: {note}")
     for note in out["notes"]:
         print(f"note: {note}")
-    counts = ", ".join(f"{v} {k}" for k, v in sorted(out["counts"].items()))
+    counts = ", ".join(
+        f"{v} {_VERDICT_COUNT_WORDS.get(k, k)}" for k, v in sorted(out["counts"].items())
+    )
     print(f"{s['peaks_found']} peaks: {counts}\n")
-    head = f"{'peak Hz':>10} {'level dB':>9} {'verdict':<12} {'conf':>5} {'true Hz':>10}  why"
+    from ..web.figures import VERDICT_STYLES, display_verdict
+
+    unit = s.get("amplitude_unit") or "input unit"
+    print(f"levels: dB re 1 {unit} (20·log10 of the amplitude)")
+    head = f"{'peak Hz':>10} {'level dB':>9} {'verdict':<24} {'conf':>5} {'true Hz':>10}  why"
     print(head)
     print("-" * 100)
     for p in out["peaks"]:
         true = "–" if p["true_hz"] is None else f"{p['true_hz']:.1f}"
+        words = VERDICT_STYLES[display_verdict(p)][0]
         print(
-            f"{p['freq_hz']:>10.1f} {p['amplitude_db']:>9.1f} {p['verdict']:<12} "
-            f"{p['confidence']:>5.2f} {true:>10}  {p['explanation']}"
+            f"{p['freq_hz']:>10.1f} {p['amplitude_db']:>9.1f} {words:<24} "
+            f"{100 * p['confidence']:>4.0f}% {true:>10}  {p['explanation']}"
         )
     print(f"\nCaution: {out['caution']}")
 

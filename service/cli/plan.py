@@ -256,8 +256,12 @@ def _print_plan(out: dict[str, Any]) -> None:
     margin = r["worst_margin_db"]
     print(
         "  worst alias margin "
-        + ("– (no alias reaches the band)" if margin is None else f"{margin:.1f} dB")
-        + f" · band loss {r['band_loss_db']:.2f} dB · limit {r['limit_db']:.1f} dB re 1"
+        + (
+            "– (no alias reaches the band)"
+            if margin is None
+            else f"{margin:.1f} dB below the limit"
+        )
+        + f" · band loss {r['band_loss_db']:.2f} dB · limit {r['limit_db']:.1f} dB re 1 input unit"
     )
     print("  chain: " + " → ".join(r["stages"]))
     hits = sorted((t for t in out["tones"] if t["aliases_into_band"]), key=lambda t: t["margin_db"])

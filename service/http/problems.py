@@ -24,7 +24,9 @@ __all__ = [
     "PROBLEM_JSON",
     "Problem",
     "as_problem",
+    "http_problem",
     "install_problem_handlers",
+    "wants_html",
 ]
 
 PROBLEM_JSON = "application/problem+json"
@@ -204,6 +206,27 @@ def _respond(request: Request, p: Problem) -> JSONResponse:
     return JSONResponse(body, status_code=p.status, media_type=PROBLEM_JSON, headers=p.headers)
 
 
+def http_problem(request: Request, exc: StarletteHTTPException) -> JSONResponse:
+    """A routing error (404, 405, ...) as problem+json."""
+    detail = exc.detail if isinstance(exc.detail, str) else _TITLES.get(exc.status_code, "")
+    if exc.status_code == 404 and detail == "Not Found":
+        detail = f"no such resource: {request.url.path}"
+    if exc.status_code == 405:
+        detail = f"{request.method} is not allowed on {request.url.path}"
+    return _respond(request, Problem(exc.status_code, detail, headers=exc.headers))
+
+
+def wants_html(request: Request) -> bool:
+    """A browser asking for a page: ``Accept`` names text/html before any JSON type, and
+    the address is not under the API (API clients always get problem+json)."""
+    if request.url.path.startswith("/api/"):
+        return False
+    accept = request.headers.get("accept", "").lower()
+    html = accept.find("text/html")
+    json_at = min((i for i in (accept.find("json"),) if i >= 0), default=len(accept) + 1)
+    return html >= 0 and html < json_at
+
+
 def install_problem_handlers(app: FastAPI) -> None:
     @app.exception_handler(Problem)
     async def _problem(request: Request, exc: Problem) -> JSONResponse:
@@ -217,14 +240,7 @@ def install_problem_handlers(app: FastAPI) -> None:
     async def _invalid(request: Request, exc: RequestValidationError) -> JSONResponse:
         return _respond(request, _validation_problem(exc))
 
-    @app.exception_handler(StarletteHTTPException)
-    async def _http(request: Request, exc: StarletteHTTPException) -> JSONResponse:
-        detail = exc.detail if isinstance(exc.detail, str) else _TITLES.get(exc.status_code, "")
-        if exc.status_code == 404 and detail == "Not Found":
-            detail = f"no such resource: {request.url.path}"
-        if exc.status_code == 405:
-            detail = f"{request.method} is not allowed on {request.url.path}"
-        return _respond(request, Problem(exc.status_code, detail, headers=exc.headers))
+    app.add_exception_handler(StarletteHTTPException, http_problem)  # type: ignore[arg-type]
 
     @app.exception_handler(ClientDisconnect)
     async def _gone(request: Request, exc: ClientDisconnect) -> Response:

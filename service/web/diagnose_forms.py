@@ -19,7 +19,18 @@ from pydantic import ValidationError
 from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..http.problems import Problem
 from ..usecases.measure import Upload
-from .forms import FIELD_LABELS, FormState, _build_request, _locate, _Origin, _problem_field
+from .forms import (
+    FIELD_LABELS,
+    NUMBER_KINDS,
+    FormState,
+    _build_request,
+    _locate,
+    _Origin,
+    _problem_field,
+    form_message,
+    in_form_words,
+    read_number,
+)
 
 __all__ = [
     "COMPARE_OPTIONS",
@@ -132,7 +143,10 @@ def parse_diagnose_form(form: Mapping[str, str], upload: Upload | None) -> Diagn
     out.upload = upload
     read: dict[str, Any] = {}
     for key in _UPLOAD_FIELDS:
-        raw = form.get(f"upload_{key}", "").strip()
+        fid = f"upload_{key}"
+        raw = form.get(fid, "").strip()
+        if fid in NUMBER_KINDS:
+            raw = read_number(st, fid, DIAGNOSE_LABELS[fid]) or ""
         if raw:
             read[key] = raw
     if pasted:
@@ -142,9 +156,9 @@ def parse_diagnose_form(form: Mapping[str, str], upload: Upload | None) -> Diagn
     lines = req_dict.pop("lines", None)
     if lines is not None:
         req_dict["spectrum_options"] = {"lines": lines}
-    raw = form.get("threshold_db", "").strip()
-    if raw:
-        req_dict["threshold_db"] = raw
+    threshold = read_number(st, "threshold_db", DIAGNOSE_LABELS["threshold_db"])
+    if threshold:
+        req_dict["threshold_db"] = threshold
     if st.summary:
         return out
     try:
@@ -158,11 +172,7 @@ def parse_diagnose_form(form: Mapping[str, str], upload: Upload | None) -> Diagn
 
 
 def _message(e: Mapping[str, Any]) -> str:
-    msg = str(e.get("msg", "invalid")).removeprefix("Value error, ")
-    value = e.get("input")
-    if e.get("type") != "missing" and isinstance(value, str | int | float):
-        msg += f" (got {value!r})"
-    return msg
+    return form_message(e, DIAGNOSE_LABELS)
 
 
 def _locate_diagnose(loc: Sequence[Any], origin: _Origin, pasted: bool) -> tuple[str | None, str]:
@@ -171,12 +181,12 @@ def _locate_diagnose(loc: Sequence[Any], origin: _Origin, pasted: bool) -> tuple
         sub = loc[1] if len(loc) > 1 else None
         if sub in _UPLOAD_FIELDS:
             fid = f"upload_{sub}"
-            return fid, f"{DIAGNOSE_LABELS[fid]} (upload.{sub})"
+            return fid, DIAGNOSE_LABELS[fid]
         return _file_target(pasted), DIAGNOSE_LABELS[_file_target(pasted)]
     if head == "spectrum_options":
-        return "lines", f"{DIAGNOSE_LABELS['lines']} (spectrum_options.lines)"
+        return "lines", DIAGNOSE_LABELS["lines"]
     if head == "threshold_db":
-        return "threshold_db", f"{DIAGNOSE_LABELS['threshold_db']} (threshold_db)"
+        return "threshold_db", DIAGNOSE_LABELS["threshold_db"]
     if head in ("spectrum", "time_record", "file"):
         return _file_target(pasted), DIAGNOSE_LABELS[_file_target(pasted)]
     return _locate(loc, origin)
@@ -189,17 +199,15 @@ def attach_diagnose_problem(f: DiagnoseForm, p: Problem) -> None:
     if head in ("file", "spectrum", "time_record"):
         fid = _file_target(f.pasted)
         words = DIAGNOSE_LABELS[fid]
-        if f.pasted and "line" not in p.detail and "." in name:
-            words += f" ({name.split('.', 1)[1]})"
-        f.state.add_error(fid, words, p.detail)
+        f.state.add_error(fid, words, in_form_words(p.detail, DIAGNOSE_LABELS))
         return
     if head in ("upload", "spectrum_options", "threshold_db"):
         loc: list[Any] = name.split(".")
         fid, words = _locate_diagnose(loc, f.origin, f.pasted)
-        f.state.add_error(fid, words, p.detail)
+        f.state.add_error(fid, words, in_form_words(p.detail, DIAGNOSE_LABELS))
         return
     fid2, words2 = _problem_field(p, f.origin)
-    f.state.add_error(fid2, words2, p.detail)
+    f.state.add_error(fid2, words2, in_form_words(p.detail, DIAGNOSE_LABELS))
 
 
 # --------------------------------------------------------------------------- compare

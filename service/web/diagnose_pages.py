@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any
+from urllib.parse import quote
 
 import numpy as np
 from fastapi import APIRouter, Request
@@ -48,6 +49,7 @@ from .diagnose_forms import (
     read_share_fields,
     share_fields,
 )
+from .exports import level_words, peaks_csv, request_rows
 from .forms import FormState, form_from_request
 from .rendering import render
 
@@ -70,6 +72,10 @@ MAX_FORM_FIELDS = 2000
 MAX_TABLE_PEAKS = 400
 #: Verdicts that mean "folded back": drawn and counted as aliases.
 ALIAS_KEYS = ("alias", "family_alias", "mirror")
+#: The demo bench's accelerometers read in g (DESIGN.md §6; the amplitudes are invented).
+DEMO_AMPLITUDE_UNIT = "g"
+#: Pasted text (characters) a result page shows again in its box.
+MAX_KEPT_TEXT = 2_000_000
 #: The boxes of pasted text on each page (counted against the share-after limit).
 DIAGNOSE_TEXTS = ("spectrum_text",)
 COMPARE_TEXTS = tuple(f"{s}_spectrum_text" for s in SIDES)
@@ -229,9 +235,16 @@ def diagnose_result_context(
     out: dict[str, Any],
     spectrum: tuple[np.ndarray, np.ndarray] | None,
     request_dict: Mapping[str, Any],
+    unit: str = "",
+    kind: str = "peak",
+    csv_path: str | None = None,
 ) -> dict[str, Any]:
     """Everything the result part of the diagnose page shows, from the API payload and
-    the spectrum (frequency, Hz; linear amplitude) it was computed from."""
+    the spectrum (frequency, Hz; linear amplitude) it was computed from.
+
+    ``unit`` and ``kind`` label the amplitudes (:func:`service.web.exports.level_words`);
+    ``csv_path`` is the address of the peak table as CSV (None: the page carries it)."""
+    words = level_words(out, unit, kind)
     peaks_fig = [
         {
             "freq_hz": p["freq_hz"],
@@ -263,8 +276,14 @@ def diagnose_result_context(
         )
         spectrum_fig["data"][0]["mode"] = "markers"
         spectrum_fig["data"][0]["marker"] = {"size": 1, "color": figures.COLOURS["spectrum"]}
+    spectrum_fig["layout"]["yaxis"]["title"]["text"] = words["axis"]
     rows = _peak_rows(out)
+    if csv_path is None:
+        csv_path = "data:text/csv;charset=utf-8," + quote(peaks_csv(out, words))
     return {
+        "words": words,
+        "csv_href": csv_path,
+        "inputs": request_rows(request_dict),
         "out": out,
         "headline": _headline(out),
         "rows": rows[:MAX_TABLE_PEAKS],
@@ -321,7 +340,11 @@ async def diagnose_form(request: Request, demo: str | None = None) -> HTMLRespon
     settings: Settings = request.app.state.settings
     req, out, m = await run_in_threadpool(_compute_demo, settings)
     ctx = await run_in_threadpool(
-        diagnose_result_context, out, (m.freq_hz, m.amplitude), stored_request("diagnose", req)
+        diagnose_result_context,
+        out,
+        (m.freq_hz, m.amplitude),
+        stored_request("diagnose", req),
+        DEMO_AMPLITUDE_UNIT,
     )
     return await _diagnose_page(request, _demo_form(), ctx, demo=True)
 
@@ -348,7 +371,14 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
         attach_diagnose_problem(f, p)
         return await _diagnose_page(request, f.state, None, status_code=422)
     stored = stored_request("diagnose", f.req)
-    ctx = await run_in_threadpool(diagnose_result_context, out, (m.freq_hz, m.amplitude), stored)
+    ctx = await run_in_threadpool(
+        diagnose_result_context,
+        out,
+        (m.freq_hz, m.amplitude),
+        stored,
+        fields.get("amplitude_unit", ""),
+        fields.get("amplitude_kind", "peak"),
+    )
     saved = None
     if f.share:
         try:
@@ -359,9 +389,22 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
             return error_page(request, p)
     elif f.pasted:
         ctx["share_inputs"] = share_fields(fields, DIAGNOSE_TEXTS)
-    # The pasted text is not sent back: it may be megabytes, and the result shows it.
-    f.state.values.pop("spectrum_text", None)
+    _keep_pasted(f.state, DIAGNOSE_TEXTS)
     return await _diagnose_page(request, f.state, ctx, saved=saved)
+
+
+def _keep_pasted(state: FormState, names: tuple[str, ...]) -> None:
+    """Send the pasted text back with the result, so a correction needs no second paste;
+    above :data:`MAX_KEPT_TEXT` it is left out (a page must stay light) and the form says
+    so."""
+    for name in names:
+        text = state.values.get(name, "")
+        if len(text) > MAX_KEPT_TEXT:
+            state.values[name] = ""
+            state.notes[name] = (
+                f"The pasted text ({len(text):,} characters) was diagnosed but is too long to "
+                "show again here; paste it again, or upload it as a file, to change a setting."
+            )
 
 
 # --------------------------------------------------------------------------- compare view

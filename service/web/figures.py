@@ -42,7 +42,7 @@ COLOURS = {
     "unknown": "#7a8290",
     "gain": "#6d4bb3",
     "band": "rgba(217, 160, 20, 0.11)",
-    "band_edge": "#b7860b",
+    "band_edge": "#a07509",
     "zone_even": "rgba(47, 62, 92, 0.075)",
     "floor": "#8a6d3b",
     "spectrum": "#33415c",
@@ -65,10 +65,11 @@ def _base_layout(title: str) -> dict[str, Any]:
         "font": {"family": FONT, "size": 13, "color": COLOURS["ink"]},
         "paper_bgcolor": "#ffffff",
         "plot_bgcolor": "#ffffff",
-        "margin": {"l": 70, "r": 70, "t": 70, "b": 60},
+        "margin": {"l": 70, "r": 70, "t": 50, "b": 120},
         "hovermode": "closest",
         "hoverlabel": {"font": {"family": FONT}},
-        "legend": {"orientation": "h", "x": 0.0, "y": 1.02, "yanchor": "bottom"},
+        # Below the plot, under the axis title: never over the figure's title.
+        "legend": {"orientation": "h", "x": 0.0, "y": -0.22, "yanchor": "top"},
         "showlegend": True,
     }
 
@@ -139,10 +140,9 @@ def _hover(t: dict[str, Any]) -> str:
     return "<br>".join(parts)
 
 
-def _pick_labels(tones: Sequence[dict[str, Any]], max_labels: int) -> set[int]:
-    """Indices of the tones to label: aliases in band first, then the strongest."""
-    if len(tones) <= max_labels // 2:
-        return set(range(len(tones)))
+def _pick_labels(tones: Sequence[dict[str, Any]]) -> list[int]:
+    """Indices of the tones in the order they claim a label: aliases in band first,
+    then in-band tones, then the strongest."""
 
     def rank(i: int) -> tuple[int, int, float]:
         t = tones[i]
@@ -155,10 +155,42 @@ def _pick_labels(tones: Sequence[dict[str, Any]], max_labels: int) -> set[int]:
 
     order = sorted(range(len(tones)), key=rank)
     # Aliases are what the diagram is for; direct tones crowd zone 1, so only a few.
-    aliases = [i for i in order if tones[i]["aliased"]][:max_labels]
-    room = max(0, min(6, max_labels - len(aliases)))
-    direct = [i for i in order if not tones[i]["aliased"]][:room]
-    return set(aliases) | set(direct)
+    aliases = [i for i in order if tones[i]["aliased"]]
+    direct = [i for i in order if not tones[i]["aliased"]]
+    return aliases + direct
+
+
+#: The box a label needs beside its mark, as fractions of the axes' spans (a label of
+#: about 20 characters at 10 px on a plot about 800 × 340 px).
+LABEL_ROOM = (0.17, 0.07)
+
+
+def _with_room(
+    tones: Sequence[dict[str, Any]],
+    order: Sequence[int],
+    x_span: float,
+    y_span: float,
+    max_labels: int,
+) -> set[int]:
+    """The labels that do not print over one another: in ``order``, a tone gets a label
+    when no labelled tone sits within its box, up to ``max_labels`` (at most 6 of them
+    direct tones, which crowd zone 1); the others keep their hover text."""
+    dx, dy = LABEL_ROOM[0] * x_span, LABEL_ROOM[1] * y_span
+    kept: list[int] = []
+    direct = 0
+    for i in order:
+        if len(kept) >= max_labels:
+            break
+        if not tones[i]["aliased"] and direct >= 6:
+            continue
+        x, y = tones[i]["freq_hz"], tones[i]["apparent_hz"]
+        if all(
+            abs(x - tones[j]["freq_hz"]) >= dx or abs(y - tones[j]["apparent_hz"]) >= dy
+            for j in kept
+        ):
+            kept.append(i)
+            direct += not tones[i]["aliased"]
+    return set(kept)
 
 
 def folding_diagram(
@@ -206,7 +238,7 @@ def folding_diagram(
             "hoverinfo": "skip",
         }
     ]
-    labelled = _pick_labels(tones, max_labels)
+    labelled = _with_room(tones, _pick_labels(tones), x_max, nyq, max_labels)
     for name, colour, symbol, want_alias in (
         ("direct tones", COLOURS["direct"], "circle", False),
         ("aliases", COLOURS["alias"], "diamond", True),

@@ -20,6 +20,7 @@ from pydantic import ValidationError
 from ..contract.fold import FoldIn
 from ..contract.sources import SOURCE_MODELS
 from ..http.problems import Problem
+from .numbers import parse_quantity
 
 __all__ = [
     "FILTER_FAMILIES",
@@ -27,6 +28,8 @@ __all__ = [
     "FormState",
     "SourceField",
     "form_from_request",
+    "form_message",
+    "in_form_words",
     "parse_fold_form",
 ]
 
@@ -163,6 +166,33 @@ FIELD_LABELS = {
     "speed_tolerance_pct": "Speed tolerance",
 }
 _SIMPLE = ["sample_rate_hz", "lines", "speed_tolerance_pct"]
+
+#: How each number box of the pages reads what is typed (service.web.numbers kinds):
+#: the one table for the predict, diagnose and plan forms.
+NUMBER_KINDS = {
+    "sample_rate_hz": "rate",
+    "upload_sample_rate_hz": "rate",
+    "aa_order": "count",
+    "aa_cutoff_hz": "freq",
+    "aa_ripple_db": "db",
+    "aa_stop_atten_db": "db",
+    "lines": "count",
+    "upload_channel": "count",
+    "speed_tolerance_pct": "percent",
+    "band_low_hz": "freq",
+    "band_high_hz": "freq",
+    "threshold_db": "db",
+    "nominal_rpm": "speed",
+    "speed_min_rpm": "speed",
+    "speed_max_rpm": "speed",
+    "rejection_db": "db",
+    "bin_width_hz": "freq",
+    "max_band_loss_db": "db",
+    "averages": "count",
+    "overlap_pct": "percent",
+    "n_speeds": "count",
+    "max_true_hz": "freq",
+}
 _AA = ["order", "cutoff_hz", "ripple_db", "stop_atten_db"]
 
 
@@ -175,6 +205,8 @@ class FormState:
     errors: dict[str, list[str]] = field(default_factory=dict)
     #: (field id or None, field words, message), in the order they were found.
     summary: list[tuple[str | None, str, str]] = field(default_factory=list)
+    #: Notes beside a field that are not errors (e.g. pasted text too long to show again).
+    notes: dict[str, str] = field(default_factory=dict)
 
     def add_error(self, field_id: str | None, words: str, message: str) -> None:
         if field_id is not None:
@@ -200,6 +232,25 @@ def _num(v: Any) -> str:
     if isinstance(v, float) and math.isfinite(v) and v.is_integer() and abs(v) < 1e15:
         return str(int(v))
     return str(v)
+
+
+def read_number(st: FormState, fid: str, words: str, kind: str | None = None) -> str | None:
+    """The number typed in box ``fid`` as plain digits for the contract (``12.8k`` →
+    ``12800``), "" when empty, None (with the error beside the box) when unreadable.
+    A speed typed in a unit other than rpm is refused in an rpm-only box."""
+    raw = st.values.get(fid, "").strip()
+    if not raw:
+        return ""
+    kind = kind or NUMBER_KINDS.get(fid, "plain")
+    try:
+        q = parse_quantity(raw, kind)
+    except ValueError as exc:
+        st.add_error(fid, words, str(exc))
+        return None
+    if kind == "speed" and q.unit not in (None, "rpm") and fid.endswith("_rpm"):
+        st.add_error(fid, words, f"{raw!r}: give this speed in rpm")
+        return None
+    return _num(q.value)
 
 
 def _source_row(src: Mapping[str, Any]) -> dict[str, str] | None:
@@ -283,12 +334,43 @@ def _read_rows(form: Mapping[str, str]) -> dict[str, list[dict[str, str]]]:
     return rows
 
 
-def _row_to_source(kind: str, row: Mapping[str, str]) -> dict[str, Any]:
+def _row_number(st: FormState, fid: str, words: str, raw: str, kind: str) -> Any:
+    """A number of a source row through the one reader (None: error shown)."""
+    try:
+        q = parse_quantity(raw, kind)
+    except ValueError as exc:
+        st.add_error(fid, words, str(exc))
+        return None
+    return q
+
+
+def _row_to_source(
+    kind: str, row: Mapping[str, str], st: FormState | None = None, prefix: str = ""
+) -> dict[str, Any]:
     out: dict[str, Any] = {"type": kind}
+    heading = next(h for t, h, _ in SOURCE_FORMS if t == kind)
     for f in _FIELDS[kind]:
         raw = row.get(f.name, "")
         if not raw:
             continue
+        row_no = int(prefix.rsplit("-", 1)[1]) + 1 if prefix else 1
+        fid, words = f"{prefix}-{f.name}", f"{heading}, row {row_no}: {f.label}"
+        if f.kind in ("speed", "number", "int") and st is not None:
+            nkind = {"speed": "speed", "int": "count"}.get(f.kind, "plain")
+            if f.name.endswith("_hz"):
+                nkind = "freq"
+            elif f.name == "speed_rpm":
+                nkind = "speed"
+            q = _row_number(st, fid, words, raw, nkind)
+            if q is None:
+                continue
+            if f.name == "speed_rpm" and q.unit not in (None, "rpm"):
+                st.add_error(fid, words, f"{raw!r}: give this speed in rpm")
+                continue
+            raw = _num(q.value)
+            if f.kind == "speed" and q.unit is not None:
+                out[f"speed_{q.unit}"] = raw
+                continue
         if f.kind == "speed":
             unit = row.get("speed_unit", "rpm")
             out[f"speed_{unit if unit in ('hz', 'rpm', 'cpm') else 'rpm'}"] = raw
@@ -386,21 +468,25 @@ def _build_request(form: Mapping[str, str]) -> tuple[dict[str, Any], FormState, 
     elif isinstance(chain, dict):
         req.update({k: chain[k] for k in ("chain", "anti_alias", "sample_rate_hz") if k in chain})
     if "chain" not in req:
-        if st.values.get("sample_rate_hz", "").strip():
-            req.setdefault("sample_rate_hz", st.values["sample_rate_hz"].strip())
+        rate = read_number(st, "sample_rate_hz", FIELD_LABELS["sample_rate_hz"])
+        if rate:
+            req.setdefault("sample_rate_hz", rate)
         family = st.values.get("aa_family", "").strip()
         if family and "anti_alias" not in req:
             aa: dict[str, Any] = {"family": family}
             for key in _AA:
-                raw = st.values.get(f"aa_{key}", "").strip()
+                raw = read_number(st, f"aa_{key}", FIELD_LABELS[f"aa_{key}"])
                 if raw:
                     aa[key] = raw
             req["anti_alias"] = aa
     for key in ("lines", "speed_tolerance_pct"):
-        raw = st.values.get(key, "").strip()
+        raw = read_number(st, key, FIELD_LABELS[key])
         if raw:
             req[key] = raw
-    lo, hi = st.values.get("band_low_hz", "").strip(), st.values.get("band_high_hz", "").strip()
+    lo = read_number(st, "band_low_hz", FIELD_LABELS["band_low_hz"])
+    hi = read_number(st, "band_high_hz", FIELD_LABELS["band_high_hz"])
+    if lo is None or hi is None:
+        lo = hi = ""
     if lo or hi:
         if lo and hi:
             req["band_hz"] = [lo, hi]
@@ -411,7 +497,7 @@ def _build_request(form: Mapping[str, str]) -> tuple[dict[str, Any], FormState, 
     sources: list[dict[str, Any]] = []
     for kind in SOURCE_TYPES:
         for i, row in enumerate(st.rows.get(kind, [])):
-            sources.append(_row_to_source(kind, row))
+            sources.append(_row_to_source(kind, row, st, f"{kind}-{i}"))
             heading = next(h for t, h, _ in SOURCE_FORMS if t == kind)
             origin.sources.append((f"{kind}-{i}", f"{heading}, row {i + 1}"))
     extra = _json_box(st, "sources_json", list)
@@ -440,16 +526,16 @@ def _locate(loc: Sequence[Any], origin: _Origin) -> tuple[str | None, str]:
         return None, "Inputs"
     head = loc[0]
     if head in ("sample_rate_hz", "lines", "speed_tolerance_pct"):
-        return head, f"{FIELD_LABELS[head]} ({head})"
+        return head, FIELD_LABELS[head]
     if head == "anti_alias":
         sub = next((p for p in loc[1:] if isinstance(p, str) and p in _AA), None)
         fid = f"aa_{sub}" if sub else "aa_family"
-        return fid, f"{FIELD_LABELS[fid]} (anti_alias{'.' + sub if sub else ''})"
+        return fid, FIELD_LABELS[fid]
     if head == "chain":
         return "chain_json", FIELD_LABELS["chain_json"]
     if head == "band_hz":
         fid = "band_high_hz" if len(loc) > 1 and loc[1] == 1 else "band_low_hz"
-        return fid, f"{FIELD_LABELS[fid]} (band_hz)"
+        return fid, FIELD_LABELS[fid]
     if head == "tones" and len(loc) > 1 and isinstance(loc[1], int):
         i = loc[1]
         line = origin.tone_lines[i] if i < len(origin.tone_lines) else i + 1
@@ -495,16 +581,74 @@ def parse_fold_form(form: Mapping[str, str]) -> tuple[FoldIn | None, FormState, 
         for e in exc.errors():
             loc = [p for p in e.get("loc", ()) if not (isinstance(p, str) and "[" in p)]
             fid, words = _locate(loc, origin)
-            msg = str(e.get("msg", "invalid"))
-            msg = msg.removeprefix("Value error, ")
-            value = e.get("input")
-            if e.get("type") != "missing" and isinstance(value, str | int | float):
-                msg += f" (got {value!r})"
-            st.add_error(fid, words, msg)
+            st.add_error(fid, words, form_message(e))
         return None, st, origin
+
+
+def _bound(v: Any) -> str:
+    return _num(v) if isinstance(v, int | float) else str(v)
+
+
+def form_message(e: Mapping[str, Any], labels: Mapping[str, str] | None = None) -> str:
+    """A validation error in the form's words: the bound and what to do, never the
+    validation library's own sentence or a request field name."""
+    kind = str(e.get("type", ""))
+    ctx = e.get("ctx") or {}
+    value = e.get("input")
+    got = f" (got {value})" if isinstance(value, str | int | float) and value != "" else ""
+    if kind == "missing":
+        return "this is needed: fill it in"
+    if kind in ("greater_than", "greater_than_equal", "less_than", "less_than_equal"):
+        word = {
+            "greater_than": "more than",
+            "greater_than_equal": "at least",
+            "less_than": "less than",
+            "less_than_equal": "at most",
+        }[kind]
+        bound = next(iter(ctx.values()), "")
+        return f"must be {word} {_bound(bound)}{got}"
+    if kind in ("float_parsing", "float_type", "int_parsing", "int_type", "finite_number"):
+        return f"write a number, e.g. 12800, 12.8k or 12,800{got}"
+    if kind == "int_from_float":
+        return f"write a whole number{got}"
+    if kind in ("literal_error", "enum"):
+        return f"choose one of {ctx.get('expected', 'the listed choices')}{got}"
+    if kind in ("too_short", "too_long"):
+        bound = ctx.get("min_length" if kind == "too_short" else "max_length", "")
+        word = "at least" if kind == "too_short" else "at most"
+        return f"give {word} {bound} item{'s' if bound != 1 else ''}"
+    if kind == "extra_forbidden":
+        return "this entry is not one this form knows; remove it"
+    if kind in ("list_type", "dict_type", "model_type"):
+        return "not in the expected shape; see the hint beside the box"
+    # Our own validators' sentences (value_error) say what to do; only the request's
+    # field names in them are put in the form's words.
+    return in_form_words(str(e.get("msg", "invalid")).removeprefix("Value error, "), labels) + got
+
+
+#: Request fields that are not one form box, in the form's words.
+_REQUEST_WORDS = {
+    "band_hz": "Band of interest",
+    "speed_range_rpm": "Speed range",
+    "anti_alias": "Filter",
+    "chain": "Full chain",
+    "spectrum_options": "Analysis lines",
+    "sample_rate_hz": "Sample rate",
+}
+
+
+def in_form_words(text: str, labels: Mapping[str, str] | None = None) -> str:
+    """``text`` with each request field name (``rejection_db``) replaced by the form's
+    label for it ("Alias rejection")."""
+    words = {**_REQUEST_WORDS, **(labels or FIELD_LABELS)}
+    names = sorted((k for k in words if "_" in k or k in _REQUEST_WORDS), key=len, reverse=True)
+    if not names:
+        return text
+    pattern = re.compile(r"(?<![\w.])(" + "|".join(map(re.escape, names)) + r")(?![\w])")
+    return pattern.sub(lambda m: f"'{words[m[1]]}'", text)
 
 
 def attach_problem(st: FormState, origin: _Origin, p: Problem) -> None:
     """Show an error the computation raised (e.g. a chain in the wrong order) on the form."""
     fid, words = _problem_field(p, origin)
-    st.add_error(fid, words, p.detail)
+    st.add_error(fid, words, in_form_words(p.detail))

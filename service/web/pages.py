@@ -13,16 +13,17 @@ from collections.abc import Awaitable, Callable
 from typing import Any
 
 from fastapi import APIRouter, FastAPI, Request
-from fastapi.responses import HTMLResponse
+from fastapi.responses import HTMLResponse, Response
 from fastapi.staticfiles import StaticFiles
 from starlette.concurrency import run_in_threadpool
+from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from .. import COMPUTATION_VERSION
 from ..config import Settings
 from ..contract.caution import CAUTION
 from ..contract.fold import FoldIn, chain_from_request
 from ..demo import DEMO_RPM, demo_fold_request
-from ..http.problems import ANSWERABLE, as_problem
+from ..http.problems import ANSWERABLE, as_problem, http_problem, wants_html
 from ..usecases.fold import fold_payload
 from . import assets, figures
 from .audit_page import audit_context
@@ -34,6 +35,7 @@ from .diagnose_pages import (
     request_json,
 )
 from .diagnose_pages import router as diagnose_router
+from .exports import collision_rows, in_band, level_words, peaks_csv, request_rows
 from .forms import (
     FormState,
     attach_problem,
@@ -90,11 +92,16 @@ def _tone_rows(out: dict[str, Any]) -> list[dict[str, Any]]:
 def _headline(out: dict[str, Any]) -> dict[str, Any]:
     tones = out["tones"]
     aliased = [t for t in tones if t["aliased"]]
+    listed = out["collisions"]
+    inside = sum(1 for c in listed if in_band(out, c["apparent_hz"]))
     return {
         "tones": len(tones),
         "aliased": len(aliased),
         "aliased_in_band": sum(1 for t in aliased if t["in_band"]),
-        "collisions": out["collisions_total"],
+        # Only collisions inside the band of interest count in the headline.
+        "collisions": inside,
+        "collisions_partial": out["collisions_total"] > len(listed),
+        "collisions_out_of_band": len(listed) - inside,
     }
 
 
@@ -109,6 +116,7 @@ def fold_result_context(req: FoldIn, out: dict[str, Any]) -> dict[str, Any]:
         "out": out,
         "headline": _headline(out),
         "rows": _tone_rows(out),
+        "collision_rows": collision_rows(out),
         "fold_fig": figures.folding_diagram(out, gain_curve=gain),
         "spectrum_fig": figures.predicted_spectrum(out),
         "collision_bins": req.collision_bins,
@@ -199,7 +207,13 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         ctx["result"] = {**fold_result_context(req, record.result), "share_request": ""}
     elif record.kind == "diagnose":
         ctx["diag"] = await run_in_threadpool(
-            diagnose_result_context, record.result, record.spectrum, record.request
+            diagnose_result_context,
+            record.result,
+            record.spectrum,
+            record.request,
+            "",
+            "peak",
+            f"/d/{record.id}/peaks.csv",
         )
     elif record.kind == "compare" and "captures" in record.result:
         # A comparison saved before the multi-rate answer has no page: its JSON stays.
@@ -211,16 +225,56 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
     elif record.kind == "audit":
         ctx = {"active": "", "job": None, "record": record, **audit_context(record.result)}
         return render(request, "audit.html", ctx)
+    ctx["inputs"] = request_rows(record.request)
     return render(request, "saved.html", ctx)
+
+
+@router.get("/d/{record_id}/peaks.csv")
+async def saved_peaks_csv(request: Request, record_id: str) -> Response:
+    """The peak table of a saved diagnosis as CSV: the stored answer's peaks, in order."""
+    lookup: SavedLookup | None = getattr(request.app.state, "saved_lookup", None)
+    try:
+        record = await lookup(record_id) if lookup is not None else None
+    except ANSWERABLE as exc:
+        return error_page(request, as_problem(exc))
+    if record is None or record.kind != "diagnose":
+        what = "saved diagnosis" if record is None else "peak table for this kind of result"
+        return render(
+            request,
+            "not_found.html",
+            {"active": "", "what": what, "record_id": record_id},
+            status_code=404,
+        )
+    text = peaks_csv(record.result, level_words(record.result))
+    return Response(
+        text,
+        media_type="text/csv; charset=utf-8",
+        headers={"Content-Disposition": f'attachment; filename="peaks-{record_id[:12]}.csv"'},
+    )
 
 
 # --------------------------------------------------------------------------- install
 
 
+async def not_found_or_problem(request: Request, exc: StarletteHTTPException) -> Response:
+    """A mistyped address: an HTML page for a browser, problem+json for everyone else
+    (chosen by ``Accept``; under /api/ always problem+json)."""
+    if exc.status_code == 404 and wants_html(request):
+        return render(
+            request,
+            "not_found.html",
+            {"active": "", "what": "page", "record_id": request.url.path},
+            status_code=404,
+        )
+    return http_problem(request, exc)
+
+
 def install_pages(app: FastAPI) -> None:
-    """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages.
+    """Mount ``/static``, the Plotly bundle at ``/assets/plotly.min.js`` and the pages,
+    and answer a browser's mistyped address with a page.
 
     The app factory calls it once."""
+    app.add_exception_handler(StarletteHTTPException, not_found_or_problem)  # type: ignore[arg-type]
     app.mount("/static", StaticFiles(directory=assets.web_dir("static")), name="static")
     app.include_router(assets.router)
     app.include_router(router)

@@ -28,7 +28,7 @@ __all__ = ["MAX_DRAWN_LINES", "runup_figure"]
 #: thousands of traces would not stay usable. The JSON answer keeps every line.
 MAX_DRAWN_LINES = 150
 
-_GREY_LINE = "#8e97a4"
+_GREY_LINE = "#858e9b"
 _SAME_X = 1e-9  # relative: a fold point on a grid point is the grid point
 
 

@@ -34,13 +34,18 @@ from ..usecases.plan import plan_payload
 from .diagnose_pages import error_page, read_share_form, recompute_shared, save_result
 from .forms import (
     FIELD_LABELS,
+    NUMBER_KINDS,
     FormState,
     _build_request,
     _locate,
     _Origin,
     form_from_request,
+    form_message,
+    in_form_words,
     json_field,
+    read_number,
 )
+from .numbers import parse_quantity
 from .plan_figures import runup_figure
 from .rendering import render
 
@@ -226,8 +231,33 @@ def _json_list(st: FormState, name: str) -> list[Any] | None:
     return value
 
 
+def _is_rate(text: str) -> bool:
+    try:
+        parse_quantity(text, "rate")
+    except ValueError:
+        return False
+    return True
+
+
+def _rate_list(st: FormState, text: str) -> list[str]:
+    """Candidate rates, one per comma, semicolon or line (``12.8k; 25.6 kS/s``)."""
+    rates = []
+    for part in (p.strip() for p in re.split(r"[;\n]|,(?!\d{3}(?!\d))", text)):
+        if not part:
+            continue
+        # "12 800" is one rate; "12800 25600" two.
+        for piece in [part] if _is_rate(part) else part.split():
+            try:
+                rates.append(_num(parse_quantity(piece, "rate").value))
+            except ValueError as exc:
+                st.add_error("rates_hz", PLAN_LABELS["rates_hz"], str(exc))
+    return rates
+
+
 def _pair(st: FormState, req: dict[str, Any], key: str, ids: tuple[str, str], why: str) -> None:
-    a, b = (st.values.get(i, "").strip() for i in ids)
+    a, b = (read_number(st, i, PLAN_LABELS[i]) for i in ids)
+    if a is None or b is None:
+        return
     if a and b:
         req[key] = [a, b]
     elif a or b:
@@ -250,6 +280,8 @@ def _build_plan_request(
         st.add_error("band_high_hz", PLAN_LABELS["band_high_hz"], "give the band of interest")
     for key in _SAME:
         raw = v.get(key, "").strip()
+        if key in NUMBER_KINDS:
+            raw = read_number(st, key, PLAN_LABELS[key]) or ""
         if raw and key != "rate_series":
             req[key] = raw
     _pair(
@@ -260,7 +292,7 @@ def _build_plan_request(
         "give both the lowest and the highest speed, or neither",
     )
     _pair(st, req, "resolve", ("resolve_a", "resolve_b"), "name both tones, or neither")
-    rates = _split_list(v.get("rates_hz", ""))
+    rates = _rate_list(st, v.get("rates_hz", ""))
     if rates:
         req["rates_hz"] = rates
     elif v.get("rate_series", "").strip():
@@ -311,20 +343,20 @@ def _locate_plan(loc: Sequence[Any], origin: _Origin) -> tuple[str | None, str]:
     nxt = loc[1] if len(loc) > 1 else None
     if head == "band_hz":
         fid = "band_high_hz" if nxt == 1 else "band_low_hz"
-        return fid, f"{PLAN_LABELS[fid]} (band_hz)"
+        return fid, PLAN_LABELS[fid]
     if head == "speed_range_rpm":
         fid = "speed_max_rpm" if nxt == 1 else "speed_min_rpm"
-        return fid, f"{PLAN_LABELS[fid]} (speed_range_rpm)"
+        return fid, PLAN_LABELS[fid]
     if head == "resolve":
         fid = "resolve_b" if nxt == 1 else "resolve_a"
-        return fid, f"{PLAN_LABELS[fid]} (resolve)"
+        return fid, PLAN_LABELS[fid]
     if head == "runup" and nxt in ("orders_of_interest", "n_speeds"):
-        return str(nxt), f"{PLAN_LABELS[str(nxt)]} (runup.{nxt})"
+        return str(nxt), PLAN_LABELS[str(nxt)]
     if head == "filters" and isinstance(nxt, int):
         return "filters_json", f"{PLAN_LABELS['filters_json']}, item {nxt + 1}"
     if head in _HEADS:
         fid = _HEADS[head]
-        return fid, f"{PLAN_LABELS[fid]} ({head})"
+        return fid, PLAN_LABELS[fid]
     if head in ("sources", "tones") and nxt is None:
         return "tone_list", "Sources and tones"
     if head in ("sources", "tones"):
@@ -355,11 +387,7 @@ def parse_plan_form(form: Mapping[str, str]) -> PlanForm:
             fid, words = _locate_plan(loc, origin)
             if fid in reported or (loc and loc[0] == "band_hz" and _BAND_IDS & reported):
                 continue
-            msg = str(e.get("msg", "invalid")).removeprefix("Value error, ")
-            value = e.get("input")
-            if e.get("type") != "missing" and isinstance(value, str | int | float):
-                msg += f" (got {value!r})"
-            st.add_error(fid, words, msg)
+            st.add_error(fid, words, form_message(e, PLAN_LABELS))
     else:
         if not st.summary:
             out.req = valid
@@ -369,7 +397,7 @@ def parse_plan_form(form: Mapping[str, str]) -> PlanForm:
 def attach_plan_problem(f: PlanForm, p: Problem) -> None:
     """Show a problem the computation raised on the form; keep a plan's suggestions."""
     fid, words = _locate_plan(_loc_of(p.field or ""), f.origin)
-    detail = p.detail
+    detail = in_form_words(p.detail, PLAN_LABELS)
     if p.suggestions is not None:
         f.suggestions = list(p.suggestions)
         detail = detail.split(". What would make it possible:")[0]

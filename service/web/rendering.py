@@ -16,6 +16,7 @@ from .. import COMPUTATION_VERSION, __version__
 from ..contract.caution import CAUTION
 from . import assets, figures
 from .diagnose_forms import COMPARE_LABELS, DIAGNOSE_LABELS, READ_KINDS, UNITS, WINDOWS
+from .exports import AMPLITUDE_KINDS, AMPLITUDE_UNITS
 from .forms import FIELD_LABELS, FILTER_FAMILIES, SOURCE_FORMS, SPEED_UNITS
 
 __all__ = ["WAYS_IN", "render", "templates"]
@@ -74,6 +75,8 @@ def _make_env() -> Environment:
         DIAGNOSE_LABELS=DIAGNOSE_LABELS,
         COMPARE_LABELS=COMPARE_LABELS,
         VERDICT_STYLES=figures.VERDICT_STYLES,
+        AMPLITUDE_UNITS=AMPLITUDE_UNITS,
+        AMPLITUDE_KINDS=AMPLITUDE_KINDS,
     )
     return env
 

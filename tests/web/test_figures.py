@@ -103,7 +103,20 @@ class TestFoldingDiagram:
         )
         fig = folding_diagram(many, max_labels=10)
         texts = [t for tr in fig["data"] if "text" in tr for t in tr["text"] if t]
-        assert len(texts) == 10
+        assert 2 <= len(texts) <= 10
+        # Only what has room is written: no two labels within one label's box
+        # (LABEL_ROOM: about 17 % of the x span by 7 % of the y span).
+        x_span, y_span = fig["layout"]["xaxis"]["range"][1], FS / 2
+        spots = [
+            (x, y)
+            for tr in fig["data"]
+            if tr.get("mode") == "markers+text"
+            for x, y, t in zip(tr["x"], tr["y"], tr["text"], strict=True)
+            if t
+        ]
+        for k, (x1, y1) in enumerate(spots):
+            for x2, y2 in spots[k + 1 :]:
+                assert abs(x1 - x2) >= 0.17 * x_span or abs(y1 - y2) >= 0.07 * y_span
         assert sum(len(tr.get("hovertext", [])) for tr in fig["data"]) == 400
 
     def test_gain_curve(self) -> None:
