@@ -13,7 +13,7 @@ from typing import Any, Literal
 
 from pydantic import Field, ValidationInfo, field_validator, model_validator
 
-from ..core import chain as ch
+from ..core import stages
 from .common import Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
 
 __all__ = ["AnalogFilterIn", "FilterFamily", "FilterFields", "FilterIn", "PlanFilterFamily"]
@@ -135,8 +135,8 @@ class AnalogFilterIn(FilterFields):
             raise ValueError(f"a {self.family} filter needs stop_atten_db")
         return self
 
-    def to_core(self) -> ch.AnalogLowpass:
-        return ch.AnalogLowpass(
+    def to_core(self) -> stages.AnalogLowpass:
+        return stages.AnalogLowpass(
             family=self.family,
             order=self.order,
             cutoff_hz=self.cutoff_hz,

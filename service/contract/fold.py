@@ -8,9 +8,8 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, Field, TypeAdapter, model_validator
 
 from ..core import chain as ch
+from ..core import stages
 from .common import (
-    MAX_HZ,
-    Db,
     Hz,
     HzOrZero,
     Label,
@@ -21,22 +20,13 @@ from .common import (
     not_together,
     strict_with_rules,
 )
-from .filters import AnalogFilterIn, FilterFamily
+from .filters import AnalogFilterIn
 from .sources import SourceIn
 
 __all__ = [
-    "MAX_HZ",
-    "AnalogFilterIn",
     "ChainIn",
-    "Db",
-    "FilterFamily",
     "FoldIn",
-    "Hz",
-    "HzOrZero",
-    "Label",
-    "SourceIn",
     "StageIn",
-    "StrictModel",
     "ToneIn",
     "chain_from_request",
     "chain_to_request",
@@ -48,8 +38,8 @@ class SensorStageIn(StrictModel):
     natural_hz: Hz = Field(description="Mounted resonance of the sensor, Hz")
     q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
 
-    def to_core(self) -> ch.SensorResonance:
-        return ch.SensorResonance(natural_hz=self.natural_hz, q=self.q)
+    def to_core(self) -> stages.SensorResonance:
+        return stages.SensorResonance(natural_hz=self.natural_hz, q=self.q)
 
 
 class AnalogStageIn(AnalogFilterIn):
@@ -60,8 +50,8 @@ class SampleStageIn(StrictModel):
     stage: Literal["sample"]
     rate_hz: Rate = Field(description="Converter sample rate, Hz (S/s)")
 
-    def to_core(self) -> ch.Sample:
-        return ch.Sample(rate_hz=self.rate_hz)
+    def to_core(self) -> stages.Sample:
+        return stages.Sample(rate_hz=self.rate_hz)
 
 
 class DigitalStageIn(StrictModel):
@@ -98,8 +88,8 @@ class DigitalStageIn(StrictModel):
             )
         return self
 
-    def to_core(self) -> ch.DigitalLowpass:
-        return ch.DigitalLowpass(
+    def to_core(self) -> stages.DigitalLowpass:
+        return stages.DigitalLowpass(
             passband_hz=self.passband_hz,
             stopband_hz=self.stopband_hz,
             atten_db=self.atten_db,
@@ -117,8 +107,8 @@ class DecimateStageIn(StrictModel):
         "'none' is a bare slice x[::factor], so everything above the new Nyquist folds",
     )
 
-    def to_core(self) -> ch.Decimate:
-        return ch.Decimate(factor=self.factor, filter=self.filter)
+    def to_core(self) -> stages.Decimate:
+        return stages.Decimate(factor=self.factor, filter=self.filter)
 
 
 StageIn = Annotated[

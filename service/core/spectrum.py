@@ -46,11 +46,10 @@ from service.core.checks import (
 from service.core.errors import InputError
 
 from .analysis_lines import SPAN_DIVISOR
-from .windows import WINDOWS, kernel_tables, window_figures, window_samples
+from .windows import WINDOWS, kernel_tables, window_samples
 
 __all__ = [
     "USUAL_LINES",
-    "WINDOWS",
     "Peaks",
     "Spectrum",
     "amplitude_spectrum",
@@ -58,7 +57,6 @@ __all__ = [
     "find_peaks",
     "noise_floor",
     "to_linear",
-    "window_figures",
 ]
 
 FloatArray = NDArray[np.float64]

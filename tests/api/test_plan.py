@@ -1,7 +1,7 @@
 """POST /api/v1/plan through the real application.
 
 The recommendation is checked against a reference computed here, not through
-``service.core.planning``: true frequencies on a dense rpm grid, folded with
+the core's plan search: true frequencies on a dense rpm grid, folded with
 ``service.core.folding.fold``, attenuated by the analog filter designed with
 ``scipy.signal`` and evaluated with ``scipy.signal.freqs``.
 """

@@ -51,12 +51,14 @@ from typing import Any
 import numpy as np
 import scipy.signal
 
-from service.core.attribution import Attribution, attribute
+from service.core.attribution import attribute
+from service.core.attribution_model import Attribution
 from service.core.calibration import calibrate
-from service.core.chain import AnalogLowpass, Chain, Decimate, Sample
+from service.core.chain import Chain
 from service.core.harmonics import Family, find_families
 from service.core.sources import expand_sources, source_from_dict
 from service.core.spectrum import find_peaks, noise_floor
+from service.core.stages import AnalogLowpass, Decimate, Sample
 from service.core.tones import ToneSet, strings
 
 from .simulate import SimChain, decimate_taps, simulate_capture

@@ -10,17 +10,10 @@ import scipy.signal as sig
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from service.core.chain import (
-    AnalogLowpass,
-    Chain,
-    ChainResponse,
-    Decimate,
-    DigitalLowpass,
-    Sample,
-    SensorResonance,
-)
+from service.core.chain import Chain, ChainResponse
 from service.core.errors import InputError
 from service.core.folding import fold
+from service.core.stages import AnalogLowpass, Decimate, DigitalLowpass, Sample, SensorResonance
 
 
 def _simulate_levels_db(
