@@ -182,7 +182,7 @@ def _gain_curve(request_dict: Mapping[str, Any], out: Mapping[str, Any]) -> Any:
         rate = float(out["final_rate_hz"])
         tops = [p["true_hz"] for p in out["peaks"] if p.get("true_hz") is not None]
         top = max([*tops, rate])
-        x_max = figures.zone_count(top * 1.03, rate) * rate / 2.0
+        x_max = figures.fold_axis_end_hz(top, rate)
         return figures.chain_gain_curve(chain, x_max)
     except (ValueError, ValidationError, TypeError, KeyError):
         return None

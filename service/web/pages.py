@@ -101,7 +101,7 @@ def fold_result_context(req: FoldIn, out: dict[str, Any]) -> dict[str, Any]:
     chain = chain_from_request(req)
     rate = float(out["final_rate_hz"])
     top = max([t["freq_hz"] for t in out["tones"]] + [rate])
-    x_max = figures.zone_count(top * 1.03, rate) * rate / 2.0
+    x_max = figures.fold_axis_end_hz(top, rate)
     gain = figures.chain_gain_curve(chain, x_max)
     return {
         "out": out,
