@@ -29,6 +29,7 @@ from .diagnose_pages import (
     compare_result_context,
     diagnose_result_context,
     error_page,
+    read_page_form,
     request_json,
 )
 from .diagnose_pages import router as diagnose_router
@@ -157,8 +158,10 @@ async def predict_page(request: Request, demo: str | None = None) -> HTMLRespons
 
 @router.post("/predict", response_class=HTMLResponse)
 async def predict_submit(request: Request) -> HTMLResponse:
-    data = await request.form()
-    form = {k: v for k, v in data.items() if isinstance(v, str)}
+    try:
+        form = await read_page_form(request)
+    except ANSWERABLE as exc:
+        return error_page(request, as_problem(exc))
     return await _predict_response(request, form)
 
 
