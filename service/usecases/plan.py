@@ -80,11 +80,19 @@ _WORD = re.compile(r"[A-Za-z_]+")
 _FIELD = re.compile(r"^([A-Za-z_]+)(.*)$")
 
 
+#: Request members that are objects: a core field they do not map re-roots under them
+#: (``filters[2]`` + ``ripple_db`` -> ``filters[2].ripple_db``).
+_OBJECTS = re.compile(r"^(filters\[\d+\]|sensor)$")
+
+
 def _field_of(exc: ValueError, default: str) -> str:
-    """The request field a core error is about: its ``field`` through :data:`PLAN_FIELDS`;
-    for a plain ``ValueError``, the parameter its message starts with."""
+    """The request field a core error is about: its ``field`` through :data:`PLAN_FIELDS`
+    (or under ``default`` when that is an object of the request); for a plain
+    ``ValueError``, the parameter its message starts with."""
     if isinstance(exc, InputError) and exc.field:
         m = _FIELD.match(exc.field)
+        if _OBJECTS.match(default):
+            return str(InputError("", field=exc.field).under(default).field)
         if m and m.group(1) in PLAN_FIELDS:
             return PLAN_FIELDS[m.group(1)] + m.group(2)
         return default

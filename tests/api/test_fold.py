@@ -212,7 +212,8 @@ class TestFoldErrors:
         r = _fold(client, body)
         assert r.status_code == 422
         p = r.json()
-        assert p["errors"][0]["field"] == "chain" and "decimat" in p["detail"].lower()
+        # The first stage (a decimation with nothing sampled yet) is the one to move.
+        assert p["errors"][0]["field"] == "chain[0]" and "decimat" in p["detail"].lower()
 
     def test_unknown_field(self, client: TestClient) -> None:
         r = _fold(

@@ -385,7 +385,10 @@ class TestPlanErrors:
             ({"filters": []}, "filters"),
             ({"filters": [{"family": "butterworth"}]}, "filters[0].order"),
             ({"filters": [{"family": "none", "order": 4}]}, "filters[0].order"),
-            ({"filters": [{"family": "elliptic", "order": 4, "ripple_db": 0.1}]}, "filters[0]"),
+            (
+                {"filters": [{"family": "elliptic", "order": 4, "ripple_db": 0.1}]},
+                "filters[0].stop_atten_db",
+            ),
             ({"filters": [{"family": "butterworth", "order": 2}] * 51}, "filters"),
             (
                 {
