@@ -14,6 +14,7 @@ from typing import Any, Literal
 from pydantic import Field, ValidationInfo, field_validator, model_validator
 
 from ..core import stages
+from ..core.filters import MIN_RIPPLE_DB, MIN_STOP_ATTEN_DB
 from .common import Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
 
 __all__ = ["AnalogFilterIn", "FilterFamily", "FilterFields", "FilterIn", "PlanFilterFamily"]
@@ -60,18 +61,18 @@ class FilterFields(StrictModel):
     family: str | None = None
     order: int | None = None
     cutoff_hz: Hz | None = None
-    # At least 0.001 dB: below that the design is a Butterworth in all but name, and
-    # scipy's prototypes divide by a ripple factor that rounds to zero (found by fuzzing).
+    # The core's lower bounds (see service.core.filters): below them scipy's prototypes
+    # divide by a ripple factor that rounds to zero (found by fuzzing).
     ripple_db: float | None = Field(
         None,
-        ge=0.001,
+        ge=MIN_RIPPLE_DB,
         le=6,
         allow_inf_nan=False,
         description="Passband ripple, dB (chebyshev1, elliptic)",
     )
     stop_atten_db: float | None = Field(
         None,
-        ge=1,
+        ge=MIN_STOP_ATTEN_DB,
         le=200,
         allow_inf_nan=False,
         description="Stopband attenuation, dB (chebyshev2, elliptic)",

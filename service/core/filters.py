@@ -31,12 +31,14 @@ import numpy as np
 import scipy.signal as sig
 from numpy.typing import ArrayLike, NDArray
 
-from .checks import check_freqs, check_int, check_positive, show
+from .checks import check_freqs, check_int, check_positive, check_range, show
 from .errors import InputError
 
 __all__ = [
     "ANALOG_FAMILIES",
     "MAX_ATTENUATION_DB",
+    "MIN_RIPPLE_DB",
+    "MIN_STOP_ATTEN_DB",
     "analog_attenuation_db",
     "analog_unchecked",
     "check_coefficients",
@@ -67,6 +69,14 @@ MAX_ATTENUATION_DB = 300.0
 _MAX_ORDER = 20
 _MAX_RIPPLE_DB = 6.0
 _MAX_STOP_ATTEN_DB = 200.0
+#: Smallest passband ripple designed, dB. scipy's Chebyshev I prototype divides by the
+#: ripple factor sqrt(10^(rp/10) - 1), which rounds to 0 below about 1e-15 dB
+#: (ZeroDivisionError); 0.001 dB is already a Butterworth in all but name.
+MIN_RIPPLE_DB = 0.001
+#: Smallest stopband attenuation designed, dB. scipy's Chebyshev II prototype divides
+#: by the same factor of the stopband attenuation (ZeroDivisionError below ~1e-15 dB);
+#: a stopband less than 1 dB down is not a stopband.
+MIN_STOP_ATTEN_DB = 1.0
 # Factors multiplied before one logarithm is taken; each pole pair is of degree 4 in
 # the normalised frequency, so 4 of them stay finite up to f/fc ~ 1e19.
 _LOG_GROUP = 4
@@ -95,11 +105,11 @@ def check_family(
     if needs_ripple:
         if ripple_db is None:
             raise InputError(
-                f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)",
+                f"ripple_db is required for a {family} filter ({MIN_RIPPLE_DB:g} to 6 dB)",
                 field="ripple_db",
                 code="missing",
             )
-        rp = check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
+        rp = check_range(ripple_db, "ripple_db", MIN_RIPPLE_DB, _MAX_RIPPLE_DB, unit=" dB")
     elif ripple_db is not None:
         raise InputError(
             f"ripple_db={show(ripple_db)} does not apply to a {family} filter; omit it",
@@ -110,11 +120,14 @@ def check_family(
     if needs_stop:
         if stop_atten_db is None:
             raise InputError(
-                f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)",
+                f"stop_atten_db is required for a {family} filter "
+                f"({MIN_STOP_ATTEN_DB:g} to {_MAX_STOP_ATTEN_DB:g} dB)",
                 field="stop_atten_db",
                 code="missing",
             )
-        rs = check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
+        rs = check_range(
+            stop_atten_db, "stop_atten_db", MIN_STOP_ATTEN_DB, _MAX_STOP_ATTEN_DB, unit=" dB"
+        )
         if rp is not None and rs <= rp:
             raise InputError(
                 f"stop_atten_db={show(stop_atten_db)} must be > ripple_db={show(ripple_db)}",

@@ -171,10 +171,25 @@ def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]
 
 
 def zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
-    """:func:`nyquist_zone` without the input checks."""
+    """:func:`nyquist_zone` without the range checks; a NaN still raises.
+
+    Raises
+    ------
+    InputError
+        ``not_finite`` when a frequency (or ``f / fs``) is NaN: it has no zone, and the
+        cast to int64 would make one up.
+    """
     # f / fs first, then the exact doubling: fs / 2 underflows for the smallest rates.
     # The clip keeps the cast to int64 defined for unchecked callers (2**62 < int64 max).
-    zone = np.ceil(np.minimum((f / fs) * 2.0, 2.0**62))
+    ratio = (f / fs) * 2.0
+    if ratio.size and np.isnan(np.max(ratio)):
+        i = int(np.flatnonzero(np.isnan(ratio))[0])
+        raise bad(
+            f"freq_hz[{i}] is not a number; every frequency must be finite and >= 0 Hz",
+            "freq_hz",
+            "not_finite",
+        )
+    zone = np.ceil(np.minimum(ratio, 2.0**62))
     # Guard against round-off putting an exact multiple of fs/2 one zone high: the fold
     # formula is the arbiter, so zone and apparent frequency always agree.
     return np.maximum(zone, 1).astype(np.int64)
