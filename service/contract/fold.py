@@ -10,6 +10,7 @@ from pydantic import BaseModel, Field, TypeAdapter, model_validator
 from ..core import chain as ch
 from ..core import stages
 from .common import (
+    BandHz,
     Hz,
     HzOrZero,
     Label,
@@ -59,7 +60,12 @@ class DigitalStageIn(StrictModel):
 
     model_config = strict_with_rules(
         [exactly_one("passband_hz", "b")],
-        {"passband_hz": ["stopband_hz", "atten_db"], "a": ["b"]},
+        {
+            "passband_hz": ["stopband_hz", "atten_db"],
+            "stopband_hz": ["passband_hz", "atten_db"],
+            "atten_db": ["passband_hz", "stopband_hz"],
+            "a": ["b"],
+        },
     )
 
     stage: Literal["digital_lowpass"]
@@ -125,7 +131,14 @@ class ChainIn(StrictModel):
     anti_alias: AnalogFilterIn | None = Field(
         None, description="Shorthand: the analog anti-alias filter before the converter"
     )
-    chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
+    chain: list[StageIn] | None = Field(
+        None,
+        min_length=1,
+        max_length=64,
+        # A chain samples somewhere: the schema says so (the order of stages, sample
+        # before decimate or digital stages, stays a validator).
+        json_schema_extra={"contains": {"properties": {"stage": {"const": "sample"}}}},
+    )
 
     @model_validator(mode="after")
     def _shorthand_or_chain(self) -> ChainIn:
@@ -192,7 +205,7 @@ class FoldIn(ChainIn):
     sources: list[SourceIn] | None = Field(
         None, min_length=1, max_length=500, description="Machine sources expanded into tones"
     )
-    band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
+    band_hz: BandHz | None = Field(
         None, description="Band of interest [low, high], Hz; default DC to final rate / 2.56"
     )
     lines: int | None = Field(
@@ -221,8 +234,6 @@ class FoldIn(ChainIn):
     def _something_to_fold(self) -> FoldIn:
         if not self.tones and not self.sources:
             raise ValueError("give at least one tone in tones or one source in sources")
-        if self.band_hz is not None and self.band_hz[1] <= self.band_hz[0]:
-            raise ValueError(f"band_hz={list(self.band_hz)} must be [low, high] with low < high")
         return self
 
 

@@ -173,6 +173,8 @@ class ResonanceIn(_SourceBase):
 
 
 class TonesIn(_SourceBase):
+    model_config = strict_with_rules([not_together("amplitude", "amplitudes")])
+
     type: Literal["tones"]
     freq_hz: list[Hz] = Field(min_length=1, max_length=100_000)
     tone_labels: list[Label] | None = Field(None, max_length=100_000)

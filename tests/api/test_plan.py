@@ -367,7 +367,8 @@ class TestPlanErrors:
     @pytest.mark.parametrize(
         ("change", "field"),
         [
-            ({"band_hz": [5000, 0]}, "band_hz"),
+            ({"band_hz": [5000, 0]}, "band_hz[1]"),  # a band ending at 0 Hz is empty
+            ({"band_hz": [5000, 1000]}, "band_hz"),
             ({"band_hz": [-1, 5000]}, "band_hz[0]"),
             ({"band_hz": [0]}, "band_hz[1]"),
             ({"floor": 0.01}, "floor"),
