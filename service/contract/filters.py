@@ -9,13 +9,13 @@ planner may choose, which may also be "none" and may follow the sample rate
 
 from __future__ import annotations
 
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
 from pydantic import Field, ValidationInfo, field_validator, model_validator
 
 from ..core import stages
-from ..core.filters import MIN_RIPPLE_DB, MIN_STOP_ATTEN_DB
-from .common import Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
+from ..core.filters import MIN_CUTOFF_HZ, MIN_RIPPLE_DB, MIN_STOP_ATTEN_DB
+from .common import MAX_HZ, Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
 
 __all__ = ["AnalogFilterIn", "FilterFamily", "FilterFields", "FilterIn", "PlanFilterFamily"]
 
@@ -26,6 +26,10 @@ PlanFilterFamily = Literal[
 
 
 DESIGN_FAMILIES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel")
+
+
+#: A filter's cutoff, Hz: the core designs from MIN_CUTOFF_HZ (see service.core.filters).
+Cutoff = Annotated[float, Field(ge=MIN_CUTOFF_HZ, le=MAX_HZ, allow_inf_nan=False)]
 
 
 def _needs_when(families: tuple[str, ...], member: str) -> dict[str, Any]:
@@ -60,7 +64,7 @@ class FilterFields(StrictModel):
 
     family: str | None = None
     order: int | None = None
-    cutoff_hz: Hz | None = None
+    cutoff_hz: Cutoff | None = None
     # The core's lower bounds (see service.core.filters): below them scipy's prototypes
     # divide by a ripple factor that rounds to zero (found by fuzzing).
     ripple_db: float | None = Field(
@@ -107,7 +111,7 @@ class AnalogFilterIn(FilterFields):
         "edge for chebyshev2.",
     )
     order: int | None = Field(None, ge=1, le=20, description="Filter order, 1 to 20")
-    cutoff_hz: Hz | None = None
+    cutoff_hz: Cutoff | None = None
 
     @model_validator(mode="after")
     def _one_kind(self) -> AnalogFilterIn:

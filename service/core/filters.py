@@ -37,11 +37,13 @@ from .errors import InputError
 __all__ = [
     "ANALOG_FAMILIES",
     "MAX_ATTENUATION_DB",
+    "MIN_CUTOFF_HZ",
     "MIN_RIPPLE_DB",
     "MIN_STOP_ATTEN_DB",
     "analog_attenuation_db",
     "analog_unchecked",
     "check_coefficients",
+    "check_cutoff",
     "check_family",
     "check_table",
     "magnitude_to_attenuation",
@@ -77,6 +79,10 @@ MIN_RIPPLE_DB = 0.001
 #: by the same factor of the stopband attenuation (ZeroDivisionError below ~1e-15 dB);
 #: a stopband less than 1 dB down is not a stopband.
 MIN_STOP_ATTEN_DB = 1.0
+#: Lowest cutoff designed, Hz. The response is evaluated at f / cutoff; for a denormal
+#: cutoff 1 / cutoff is infinite and 0 Hz gives NaN. No anti-alias filter sits below a
+#: millihertz (the slowest rate followed is 1 S/s).
+MIN_CUTOFF_HZ = 1e-3
 # Factors multiplied before one logarithm is taken; each pole pair is of degree 4 in
 # the normalised frequency, so 4 of them stay finite up to f/fc ~ 1e19.
 _LOG_GROUP = 4
@@ -85,6 +91,13 @@ _MAG_FLOOR = 10.0 ** (-MAX_ATTENUATION_DB / 20.0)
 
 
 # --------------------------------------------------------------------------- checks
+
+
+def check_cutoff(cutoff_hz: object) -> float:
+    """A cutoff frequency, Hz: finite and at least :data:`MIN_CUTOFF_HZ`."""
+    return check_range(
+        cutoff_hz, "cutoff_hz", MIN_CUTOFF_HZ, math.inf, text=f">= {MIN_CUTOFF_HZ:g} Hz"
+    )
 
 
 def check_family(
@@ -411,7 +424,7 @@ def analog_attenuation_db(
     """
     rp, rs = check_family(family, ripple_db, stop_atten_db)
     n = check_int(order, "order", 1, _MAX_ORDER)
-    fc = check_positive(cutoff_hz, "cutoff_hz")
+    fc = check_cutoff(cutoff_hz)
     f = check_freqs(freq_hz)
     return analog_unchecked(f, family, n, fc, rp, rs)
 

@@ -230,7 +230,7 @@ class AnalogLowpass:
             )
         rp, rs = _flt.check_family(self.family, self.ripple_db, self.stop_atten_db)
         set_(self, "order", check_int(self.order, "order", 1, 20))
-        set_(self, "cutoff_hz", check_number(self.cutoff_hz, "cutoff_hz"))
+        set_(self, "cutoff_hz", _flt.check_cutoff(self.cutoff_hz))
         set_(self, "ripple_db", rp)
         set_(self, "stop_atten_db", rs)
 
