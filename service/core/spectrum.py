@@ -573,6 +573,10 @@ def detect_unit(amplitude: ArrayLike) -> tuple[str, str]:
     )
 
 
+#: Largest magnitude of a level in dB that a spectrum may hold.
+MAX_ABS_DB = 1000.0
+
+
 def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     """Convert spectrum values to linear amplitude.
 
@@ -593,6 +597,19 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     v = check_finite_array(values, "values")
     u = unit.lower() if isinstance(unit, str) else unit
     if u == "db":
+        # 10**(v/20) overflows a double above ~6165 dB and underflows to 0 below about
+        # -6465 dB; no measurement spans more than a few hundred dB.
+        bad_db = np.abs(v) > MAX_ABS_DB
+        if bad_db.any():
+            i = int(np.argmax(bad_db))
+            raise InputError(
+                f"values[{i}]={float(v[i])!r} dB is outside ±{MAX_ABS_DB:g} dB; "
+                "are the values linear amplitudes rather than dB?",
+                field=f"values[{i}]",
+                code="above_limit",
+                value=float(v[i]),
+                limit=MAX_ABS_DB,
+            )
         out: FloatArray = 10.0 ** (v / 20.0)
         return out
     if u == "linear":

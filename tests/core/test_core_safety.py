@@ -18,6 +18,7 @@ from service.core.errors import InputError
 from service.core.filter_catalogue import FilterOption
 from service.core.filters import MIN_RIPPLE_DB, MIN_STOP_ATTEN_DB, analog_attenuation_db
 from service.core.folding import zone_unchecked
+from service.core.spectrum import MAX_ABS_DB, to_linear
 from service.core.stages import AnalogLowpass, Sample
 
 
@@ -110,3 +111,22 @@ class TestNanFrequencies:
             got = chain.evaluate(f).zone.tolist()
             assert all(abs(g - e) <= 1 for g, e in zip(got, expected, strict=True))
             assert all(g >= 1 for g in got)
+
+
+class TestDbLevels:
+    @settings(max_examples=40, deadline=None)
+    @given(level=st.floats(min_value=1000.0, max_value=1e308, exclude_min=True))
+    def test_levels_past_the_double_range_are_refused(self, level: float) -> None:
+        # Reference: 10**(L/20) overflows a double (max ~1.8e308) above about 6165 dB;
+        # the bound is far below that and far above any measurement.
+        with pytest.raises(InputError) as err:
+            to_linear([0.0, level], "db")
+        assert (err.value.field, err.value.code, err.value.limit) == (
+            "values[1]",
+            "above_limit",
+            MAX_ABS_DB,
+        )
+
+    def test_levels_inside_the_bound_convert(self) -> None:
+        # Reference: 20·log10 definition of the decibel for an amplitude ratio.
+        assert to_linear([-120.0, 0.0, 20.0], "db").tolist() == pytest.approx([1e-6, 1.0, 10.0])
