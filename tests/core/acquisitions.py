@@ -158,7 +158,7 @@ def _sources(rng: np.random.Generator, rpm: float) -> list[dict[str, Any]]:
 
 
 def _fold(f: np.ndarray, fs: float) -> np.ndarray:
-    """Apparent frequency (DESIGN.md §2; Oppenheim & Schafer sec. 4.2)."""
+    """Apparent frequency (Oppenheim & Schafer sec. 4.2)."""
     return np.abs(f - fs * np.round(f / fs))
 
 

@@ -89,7 +89,7 @@ def group_near(result, k, freq_hz, tol_hz):
 
 
 def fold_ref(f, fs):
-    # Source: DESIGN.md sec. 2 (and Oppenheim & Schafer sec. 4.2): |f - fs*round(f/fs)|;
+    # Source: Oppenheim & Schafer, DTSP, sec. 4.2: |f - fs*round(f/fs)|;
     # checked against the numpy FFT in TestApparent.
     return np.abs(f - fs * np.rint(f / fs))
 
