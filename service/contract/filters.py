@@ -161,6 +161,7 @@ class FilterIn(FilterFields):
             _needs_when(DESIGN_FAMILIES, "order"),
             _needs_when(("table",), "table_hz"),
             _forbids_when(("none", "table"), "order"),
+            _forbids_when((*DESIGN_FAMILIES, "none"), "table_hz"),
             *_RIPPLE_AND_STOP,
         ],
         {"table_hz": ["table_gain_db"], "table_gain_db": ["table_hz"]},

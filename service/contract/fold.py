@@ -183,7 +183,7 @@ class ToneIn(StrictModel):
     label: Label
     freq_hz: HzOrZero
     amplitude: float | None = Field(
-        None, ge=0, le=1e12, allow_inf_nan=False, description="Amplitude at the sensor, any unit"
+        None, gt=0, le=1e12, allow_inf_nan=False, description="Amplitude at the sensor, any unit"
     )
 
 
