@@ -17,6 +17,7 @@ __all__ = [
     "Rate",
     "StrictModel",
     "at_least_one",
+    "band_order",
     "by_json_type",
     "exactly_one",
     "not_together",
@@ -38,7 +39,7 @@ Rate = Annotated[
 ]
 
 
-def _band_order(v: tuple[float, float]) -> tuple[float, float]:
+def band_order(v: tuple[float, float]) -> tuple[float, float]:
     if v[1] <= v[0]:
         raise ValueError(f"band_hz={list(v)} must be [low, high] with low < high")
     return v
@@ -46,7 +47,7 @@ def _band_order(v: tuple[float, float]) -> tuple[float, float]:
 
 #: A band of interest ``[low, high]``, Hz. The schema says what it can: low >= 0,
 #: high > 0 (a band ending at 0 Hz is empty); low < high stays a validator.
-BandHz = Annotated[tuple[HzOrZero, Hz], AfterValidator(_band_order)]
+BandHz = Annotated[tuple[HzOrZero, Hz], AfterValidator(band_order)]
 
 #: Union members are tagged ``as-…`` so a value is checked against the member its JSON
 #: type picks, and the error names that member's rule (an error path skips the tag).

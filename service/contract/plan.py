@@ -10,15 +10,26 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, Discriminator, Field, Tag, ValidationInfo, field_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    Discriminator,
+    Field,
+    Tag,
+    ValidationInfo,
+    field_validator,
+)
 
+from ..core.filters import MIN_CUTOFF_HZ
 from .common import (
-    BandHz,
+    MAX_HZ,
     Hz,
+    HzOrZero,
     Label,
     Rate,
     StrictModel,
     at_least_one,
+    band_order,
     by_json_type,
     exactly_one,
     not_together,
@@ -85,6 +96,14 @@ class RunUpIn(StrictModel):
     )
 
 
+#: The plan's band: its high edge is where filter cutoffs go, so it starts at the
+#: core's lowest cutoff (MIN_CUTOFF_HZ).
+PlanBandHz = Annotated[
+    tuple[HzOrZero, Annotated[float, Field(ge=MIN_CUTOFF_HZ, le=MAX_HZ, allow_inf_nan=False)]],
+    AfterValidator(band_order),
+]
+
+
 def _some_member(*names: str) -> dict[str, Any]:
     return {"anyOf": [{"required": [n]} for n in names]}
 
@@ -127,7 +146,7 @@ class PlanIn(StrictModel):
         {"speed_range_rpm": ["nominal_rpm"]},
     )
 
-    band_hz: BandHz = Field(description="Band of interest [low, high], Hz")
+    band_hz: PlanBandHz = Field(description="Band of interest [low, high], Hz")
     tones: list[ToneIn] | None = Field(
         None, min_length=1, max_length=MAX_TONES_IN, description="Explicit tones"
     )

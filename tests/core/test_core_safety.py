@@ -16,8 +16,14 @@ from hypothesis import strategies as st
 from service.core.chain import Chain
 from service.core.errors import InputError
 from service.core.filter_catalogue import FilterOption
-from service.core.filters import MIN_RIPPLE_DB, MIN_STOP_ATTEN_DB, analog_attenuation_db
+from service.core.filters import (
+    MIN_CUTOFF_HZ,
+    MIN_RIPPLE_DB,
+    MIN_STOP_ATTEN_DB,
+    analog_attenuation_db,
+)
 from service.core.folding import zone_unchecked
+from service.core.plan_common import check_band
 from service.core.spectrum import MAX_ABS_DB, to_linear
 from service.core.stages import AnalogLowpass, Sample
 
@@ -130,3 +136,14 @@ class TestDbLevels:
     def test_levels_inside_the_bound_convert(self) -> None:
         # Reference: 20·log10 definition of the decibel for an amplitude ratio.
         assert to_linear([-120.0, 0.0, 20.0], "db").tolist() == pytest.approx([1e-6, 1.0, 10.0])
+
+
+class TestPlanBand:
+    def test_band_below_the_lowest_cutoff_is_refused(self) -> None:
+        # The plan puts cutoffs at the band's high edge; 5e-324 Hz (found by fuzzing)
+        # made 0 Hz evaluate to NaN attenuation.
+        with pytest.raises(InputError) as err:
+            check_band((0.0, 5e-324))
+        e = err.value
+        assert (e.field, e.code, e.limit) == ("band_hz[1]", "below_limit", MIN_CUTOFF_HZ)
+        assert check_band((0.0, MIN_CUTOFF_HZ)) == (0.0, MIN_CUTOFF_HZ)
