@@ -9,6 +9,7 @@ from pydantic import BaseModel, Field, TypeAdapter, model_validator
 
 from ..core import chain as ch
 from ..core import stages
+from ..core.filters import MAX_Q, MIN_Q
 from .common import (
     BandHz,
     Hz,
@@ -37,7 +38,7 @@ __all__ = [
 class SensorStageIn(StrictModel):
     stage: Literal["sensor"]
     natural_hz: Hz = Field(description="Mounted resonance of the sensor, Hz")
-    q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
+    q: float = Field(ge=MIN_Q, le=MAX_Q, allow_inf_nan=False, description="Quality factor")
 
     def to_core(self) -> stages.SensorResonance:
         return stages.SensorResonance(natural_hz=self.natural_hz, q=self.q)

@@ -20,7 +20,7 @@ from pydantic import (
     field_validator,
 )
 
-from ..core.filters import MIN_CUTOFF_HZ
+from ..core.filters import MAX_Q, MIN_CUTOFF_HZ, MIN_Q
 from .common import (
     MAX_HZ,
     Hz,
@@ -73,7 +73,7 @@ class SensorIn(StrictModel):
     """Mounted sensor resonance ahead of the filter (it can lift an alias)."""
 
     natural_hz: Hz = Field(description="Mounted resonance, Hz")
-    q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
+    q: float = Field(ge=MIN_Q, le=MAX_Q, allow_inf_nan=False, description="Quality factor")
 
 
 class RunUpIn(StrictModel):

@@ -37,7 +37,9 @@ from .errors import InputError
 __all__ = [
     "ANALOG_FAMILIES",
     "MAX_ATTENUATION_DB",
+    "MAX_Q",
     "MIN_CUTOFF_HZ",
+    "MIN_Q",
     "MIN_RIPPLE_DB",
     "MIN_STOP_ATTEN_DB",
     "analog_attenuation_db",
@@ -83,6 +85,11 @@ MIN_STOP_ATTEN_DB = 1.0
 #: cutoff 1 / cutoff is infinite and 0 Hz gives NaN. No anti-alias filter sits below a
 #: millihertz (the slowest rate followed is 1 S/s).
 MIN_CUTOFF_HZ = 1e-3
+#: Quality factor range of a sensor resonance. Below 1e-3 the damping term r²/Q²
+#: overflows (Q² underflows to 0 for a denormal Q, found by fuzzing); a mounted sensor
+#: is never that damped. Above 1000 no mounting rings.
+MIN_Q = 1e-3
+MAX_Q = 1000.0
 # Factors multiplied before one logarithm is taken; each pole pair is of degree 4 in
 # the normalised frequency, so 4 of them stay finite up to f/fc ~ 1e19.
 _LOG_GROUP = 4
@@ -505,7 +512,7 @@ def sensor_attenuation_db(freq_hz: ArrayLike, natural_hz: float, q: float) -> Fl
     .. [4] Harris' Shock and Vibration Handbook, 5th ed., 2002, ch. 2 (from memory).
     """
     fn = check_positive(natural_hz, "natural_hz")
-    qq = check_positive(q, "q", 1000.0)
+    qq = check_range(q, "q", MIN_Q, MAX_Q)
     f = check_freqs(freq_hz)
     return sensor_unchecked(f, fn, qq)
 

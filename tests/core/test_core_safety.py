@@ -18,9 +18,11 @@ from service.core.errors import InputError
 from service.core.filter_catalogue import FilterOption
 from service.core.filters import (
     MIN_CUTOFF_HZ,
+    MIN_Q,
     MIN_RIPPLE_DB,
     MIN_STOP_ATTEN_DB,
     analog_attenuation_db,
+    sensor_attenuation_db,
 )
 from service.core.folding import zone_unchecked
 from service.core.plan_common import check_band
@@ -147,3 +149,14 @@ class TestPlanBand:
         e = err.value
         assert (e.field, e.code, e.limit) == ("band_hz[1]", "below_limit", MIN_CUTOFF_HZ)
         assert check_band((0.0, MIN_CUTOFF_HZ)) == (0.0, MIN_CUTOFF_HZ)
+
+
+class TestSensorQ:
+    @settings(max_examples=30, deadline=None)
+    @given(q=st.floats(min_value=0.0, max_value=MIN_Q, exclude_max=True))
+    def test_q_below_the_floor_is_refused(self, q: float) -> None:
+        # Reference: |H|² = 1/((1 - r²)² + r²/Q²); a denormal Q makes Q² = 0 in double
+        # precision (found by fuzzing: 5e-324).
+        with pytest.raises(InputError) as err:
+            sensor_attenuation_db([10.0], 100.0, q)
+        assert err.value.field == "q" and err.value.code in ("below_limit", "not_positive")
