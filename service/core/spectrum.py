@@ -42,6 +42,7 @@ from service.core.checks import (
     check_one_of,
     check_positive,
     check_range,
+    refuse_first,
 )
 from service.core.errors import InputError
 
@@ -599,29 +600,24 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     if u == "db":
         # 10**(v/20) overflows a double above ~6165 dB and underflows to 0 below about
         # -6465 dB; no measurement spans more than a few hundred dB.
-        bad_db = np.abs(v) > MAX_ABS_DB
-        if bad_db.any():
-            i = int(np.argmax(bad_db))
-            raise InputError(
-                f"values[{i}]={float(v[i])!r} dB is outside ±{MAX_ABS_DB:g} dB; "
-                "are the values linear amplitudes rather than dB?",
-                field=f"values[{i}]",
-                code="above_limit",
-                value=float(v[i]),
-                limit=MAX_ABS_DB,
-            )
+        refuse_first(
+            np.abs(v) > MAX_ABS_DB,
+            v,
+            "values",
+            f"dB is outside ±{MAX_ABS_DB:g} dB; are the values linear amplitudes rather than dB?",
+            "above_limit",
+            limit=MAX_ABS_DB,
+        )
         out: FloatArray = 10.0 ** (v / 20.0)
         return out
     if u == "linear":
-        if np.any(v < 0):
-            i = int(np.argmax(v < 0))
-            raise InputError(
-                f"values[{i}]={float(v[i])!r} is negative; a linear amplitude must be >= 0 "
-                "(are the values in dB?)",
-                field=f"values[{i}]",
-                code="below_limit",
-                value=float(v[i]),
-            )
+        refuse_first(
+            v < 0,
+            v,
+            "values",
+            "is negative; a linear amplitude must be >= 0 (are the values in dB?)",
+            "below_limit",
+        )
         return v.copy()
     raise InputError(
         f"unit={unit!r} must be 'linear' or 'db'", field="unit", code="invalid", value=unit
