@@ -34,7 +34,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from service.core.attribution import MIN_CONFIDENCE  # noqa: E402
+from service.core.attribution_model import MIN_CONFIDENCE  # noqa: E402
 from service.core.calibration import (  # noqa: E402
     ALTERNATIVE,
     GROUPS,

@@ -14,8 +14,9 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from bench._util import best_of
-from service.core.chain import AnalogLowpass, Chain, Decimate, Sample
+from service.core.chain import Chain
 from service.core.folding import fold
+from service.core.stages import AnalogLowpass, Decimate, Sample
 
 N = 1_000_000
 

@@ -23,7 +23,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from service.core import planning as P
+from service.core import filter_catalogue, plan_model, plan_search
 from service.core.filters import analog_attenuation_db
 from service.core.tones import ToneSet
 
@@ -34,12 +34,12 @@ BAND = (0.0, 2000.0)
 REJECTION_DB = 120.0
 SPEED_RANGE = (0.1, 1.0)
 FILTERS = (
-    P.FilterOption("butterworth", 2),
-    P.FilterOption("butterworth", 4),
-    P.FilterOption("butterworth", 6),
-    P.FilterOption("butterworth", 8),
-    P.FilterOption("chebyshev1", 8, ripple_db=0.5),
-    P.FilterOption("elliptic", 8, ripple_db=0.1, stop_atten_db=90.0),
+    filter_catalogue.FilterOption("butterworth", 2),
+    filter_catalogue.FilterOption("butterworth", 4),
+    filter_catalogue.FilterOption("butterworth", 6),
+    filter_catalogue.FilterOption("butterworth", 8),
+    filter_catalogue.FilterOption("chebyshev1", 8, ripple_db=0.5),
+    filter_catalogue.FilterOption("elliptic", 8, ripple_db=0.1, stop_atten_db=90.0),
 )
 REPEATS = 5
 
@@ -95,8 +95,8 @@ def main() -> None:
     rng = np.random.default_rng(20240601)
     tones = make_tones(rng)
 
-    def request(rates: np.ndarray) -> P.PlanRequest:
-        return P.PlanRequest(
+    def request(rates: np.ndarray) -> plan_model.PlanRequest:
+        return plan_model.PlanRequest(
             tones=tones,
             band_hz=BAND,
             rejection_db=REJECTION_DB,
@@ -107,11 +107,11 @@ def main() -> None:
         )
 
     # Find the cheapest passing rate on a fine series, then end the candidate list there.
-    probe = P.plan(request(np.geomspace(5120.0, 409600.0, 200)))
+    probe = plan_search.plan(request(np.geomspace(5120.0, 409600.0, 200)))
     rates = np.geomspace(5120.0, probe.sample_rate_hz, N_RATES)
 
-    t_plan, result = best_of(lambda: P.plan(request(rates)))
-    assert isinstance(result, P.Plan)
+    t_plan, result = best_of(lambda: plan_search.plan(request(rates)))
+    assert isinstance(result, plan_model.Plan)
     t_base, _ = best_of(lambda: baseline(tones, rates))
     evaluated = len({r.sample_rate_hz for r in result.rejected}) + 1
     print(

@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .contract.fold import AnalogFilterIn
+from .contract.filters import AnalogFilterIn
 from .core.chain import Chain
 from .core.sources import expand_sources, source_from_dict
 from .core.spectrum import amplitude_spectrum

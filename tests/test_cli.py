@@ -20,7 +20,9 @@ class TestFoldCommand:
         code = main(["fold", "--sample-rate", "10000", "--tone", "a=7300@1", "--tone", "b=1000"])
         out = capsys.readouterr().out
         assert code == 0
-        # Source: DESIGN.md §5: 7.3 kHz at 10 kS/s shows at 2.7 kHz, zone 2, inverted.
+        # Source: Oppenheim & Schafer, Discrete-Time Signal Processing, 3rd ed., sec. 4.2, and
+        # Lyons, Understanding DSP, 3rd ed., sec. 2.3: 7.3 kHz at 10 kS/s shows at
+        # |7300 - 10000| = 2.7 kHz, in zone 2 (inverted).
         line = next(row for row in out.splitlines() if row.startswith("a "))
         assert "2700.0" in line and "alias, inverted" in line
         # The pages' words and levels: dB re 1 input unit, never linear.

@@ -4,11 +4,12 @@ from __future__ import annotations
 
 from typing import Annotated, Any
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import AfterValidator, BaseModel, ConfigDict, Field
 
 __all__ = [
     "MAX_HZ",
     "UNION_TAG_PREFIX",
+    "BandHz",
     "Db",
     "Hz",
     "HzOrZero",
@@ -16,6 +17,7 @@ __all__ = [
     "Rate",
     "StrictModel",
     "at_least_one",
+    "band_order",
     "by_json_type",
     "exactly_one",
     "not_together",
@@ -35,6 +37,17 @@ Label = Annotated[str, Field(min_length=1, max_length=200)]
 Rate = Annotated[
     float, Field(ge=1, le=MAX_HZ, allow_inf_nan=False, description="Sample rate, S/s, >= 1")
 ]
+
+
+def band_order(v: tuple[float, float]) -> tuple[float, float]:
+    if v[1] <= v[0]:
+        raise ValueError(f"band_hz={list(v)} must be [low, high] with low < high")
+    return v
+
+
+#: A band of interest ``[low, high]``, Hz. The schema says what it can: low >= 0,
+#: high > 0 (a band ending at 0 Hz is empty); low < high stays a validator.
+BandHz = Annotated[tuple[HzOrZero, Hz], AfterValidator(band_order)]
 
 #: Union members are tagged ``as-…`` so a value is checked against the member its JSON
 #: type picks, and the error names that member's rule (an error path skips the tag).

@@ -15,7 +15,8 @@ from .common import (
     not_together,
     strict_with_rules,
 )
-from .fold import AnalogFilterIn, StageIn, ToneIn
+from .filters import AnalogFilterIn
+from .fold import StageIn, ToneIn
 from .saved import SavedLinkOut
 from .sources import SourceIn
 

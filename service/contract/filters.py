@@ -9,12 +9,13 @@ planner may choose, which may also be "none" and may follow the sample rate
 
 from __future__ import annotations
 
-from typing import Any, Literal
+from typing import Annotated, Any, Literal
 
 from pydantic import Field, ValidationInfo, field_validator, model_validator
 
-from ..core import chain as ch
-from .common import Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
+from ..core import stages
+from ..core.filters import MIN_CUTOFF_HZ, MIN_RIPPLE_DB, MIN_STOP_ATTEN_DB
+from .common import MAX_HZ, Db, Hz, StrictModel, exactly_one, not_together, strict_with_rules
 
 __all__ = ["AnalogFilterIn", "FilterFamily", "FilterFields", "FilterIn", "PlanFilterFamily"]
 
@@ -25,6 +26,10 @@ PlanFilterFamily = Literal[
 
 
 DESIGN_FAMILIES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel")
+
+
+#: A filter's cutoff, Hz: the core designs from MIN_CUTOFF_HZ (see service.core.filters).
+Cutoff = Annotated[float, Field(ge=MIN_CUTOFF_HZ, le=MAX_HZ, allow_inf_nan=False)]
 
 
 def _needs_when(families: tuple[str, ...], member: str) -> dict[str, Any]:
@@ -59,19 +64,19 @@ class FilterFields(StrictModel):
 
     family: str | None = None
     order: int | None = None
-    cutoff_hz: Hz | None = None
-    # At least 0.001 dB: below that the design is a Butterworth in all but name, and
-    # scipy's prototypes divide by a ripple factor that rounds to zero (found by fuzzing).
+    cutoff_hz: Cutoff | None = None
+    # The core's lower bounds (see service.core.filters): below them scipy's prototypes
+    # divide by a ripple factor that rounds to zero (found by fuzzing).
     ripple_db: float | None = Field(
         None,
-        ge=0.001,
+        ge=MIN_RIPPLE_DB,
         le=6,
         allow_inf_nan=False,
         description="Passband ripple, dB (chebyshev1, elliptic)",
     )
     stop_atten_db: float | None = Field(
         None,
-        ge=1,
+        ge=MIN_STOP_ATTEN_DB,
         le=200,
         allow_inf_nan=False,
         description="Stopband attenuation, dB (chebyshev2, elliptic)",
@@ -106,7 +111,7 @@ class AnalogFilterIn(FilterFields):
         "edge for chebyshev2.",
     )
     order: int | None = Field(None, ge=1, le=20, description="Filter order, 1 to 20")
-    cutoff_hz: Hz | None = None
+    cutoff_hz: Cutoff | None = None
 
     @model_validator(mode="after")
     def _one_kind(self) -> AnalogFilterIn:
@@ -135,8 +140,8 @@ class AnalogFilterIn(FilterFields):
             raise ValueError(f"a {self.family} filter needs stop_atten_db")
         return self
 
-    def to_core(self) -> ch.AnalogLowpass:
-        return ch.AnalogLowpass(
+    def to_core(self) -> stages.AnalogLowpass:
+        return stages.AnalogLowpass(
             family=self.family,
             order=self.order,
             cutoff_hz=self.cutoff_hz,
@@ -156,6 +161,7 @@ class FilterIn(FilterFields):
             _needs_when(DESIGN_FAMILIES, "order"),
             _needs_when(("table",), "table_hz"),
             _forbids_when(("none", "table"), "order"),
+            _forbids_when((*DESIGN_FAMILIES, "none"), "table_hz"),
             *_RIPPLE_AND_STOP,
         ],
         {"table_hz": ["table_gain_db"], "table_gain_db": ["table_hz"]},

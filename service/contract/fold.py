@@ -8,9 +8,10 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, Field, TypeAdapter, model_validator
 
 from ..core import chain as ch
+from ..core import stages
+from ..core.filters import MAX_Q, MIN_Q
 from .common import (
-    MAX_HZ,
-    Db,
+    BandHz,
     Hz,
     HzOrZero,
     Label,
@@ -21,22 +22,13 @@ from .common import (
     not_together,
     strict_with_rules,
 )
-from .filters import AnalogFilterIn, FilterFamily
+from .filters import AnalogFilterIn
 from .sources import SourceIn
 
 __all__ = [
-    "MAX_HZ",
-    "AnalogFilterIn",
     "ChainIn",
-    "Db",
-    "FilterFamily",
     "FoldIn",
-    "Hz",
-    "HzOrZero",
-    "Label",
-    "SourceIn",
     "StageIn",
-    "StrictModel",
     "ToneIn",
     "chain_from_request",
     "chain_to_request",
@@ -46,10 +38,10 @@ __all__ = [
 class SensorStageIn(StrictModel):
     stage: Literal["sensor"]
     natural_hz: Hz = Field(description="Mounted resonance of the sensor, Hz")
-    q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
+    q: float = Field(ge=MIN_Q, le=MAX_Q, allow_inf_nan=False, description="Quality factor")
 
-    def to_core(self) -> ch.SensorResonance:
-        return ch.SensorResonance(natural_hz=self.natural_hz, q=self.q)
+    def to_core(self) -> stages.SensorResonance:
+        return stages.SensorResonance(natural_hz=self.natural_hz, q=self.q)
 
 
 class AnalogStageIn(AnalogFilterIn):
@@ -60,8 +52,8 @@ class SampleStageIn(StrictModel):
     stage: Literal["sample"]
     rate_hz: Rate = Field(description="Converter sample rate, Hz (S/s)")
 
-    def to_core(self) -> ch.Sample:
-        return ch.Sample(rate_hz=self.rate_hz)
+    def to_core(self) -> stages.Sample:
+        return stages.Sample(rate_hz=self.rate_hz)
 
 
 class DigitalStageIn(StrictModel):
@@ -69,7 +61,12 @@ class DigitalStageIn(StrictModel):
 
     model_config = strict_with_rules(
         [exactly_one("passband_hz", "b")],
-        {"passband_hz": ["stopband_hz", "atten_db"], "a": ["b"]},
+        {
+            "passband_hz": ["stopband_hz", "atten_db"],
+            "stopband_hz": ["passband_hz", "atten_db"],
+            "atten_db": ["passband_hz", "stopband_hz"],
+            "a": ["b"],
+        },
     )
 
     stage: Literal["digital_lowpass"]
@@ -98,8 +95,8 @@ class DigitalStageIn(StrictModel):
             )
         return self
 
-    def to_core(self) -> ch.DigitalLowpass:
-        return ch.DigitalLowpass(
+    def to_core(self) -> stages.DigitalLowpass:
+        return stages.DigitalLowpass(
             passband_hz=self.passband_hz,
             stopband_hz=self.stopband_hz,
             atten_db=self.atten_db,
@@ -117,8 +114,8 @@ class DecimateStageIn(StrictModel):
         "'none' is a bare slice x[::factor], so everything above the new Nyquist folds",
     )
 
-    def to_core(self) -> ch.Decimate:
-        return ch.Decimate(factor=self.factor, filter=self.filter)
+    def to_core(self) -> stages.Decimate:
+        return stages.Decimate(factor=self.factor, filter=self.filter)
 
 
 StageIn = Annotated[
@@ -135,7 +132,14 @@ class ChainIn(StrictModel):
     anti_alias: AnalogFilterIn | None = Field(
         None, description="Shorthand: the analog anti-alias filter before the converter"
     )
-    chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
+    chain: list[StageIn] | None = Field(
+        None,
+        min_length=1,
+        max_length=64,
+        # A chain samples somewhere: the schema says so (the order of stages, sample
+        # before decimate or digital stages, stays a validator).
+        json_schema_extra={"contains": {"properties": {"stage": {"const": "sample"}}}},
+    )
 
     @model_validator(mode="after")
     def _shorthand_or_chain(self) -> ChainIn:
@@ -180,7 +184,7 @@ class ToneIn(StrictModel):
     label: Label
     freq_hz: HzOrZero
     amplitude: float | None = Field(
-        None, ge=0, le=1e12, allow_inf_nan=False, description="Amplitude at the sensor, any unit"
+        None, gt=0, le=1e12, allow_inf_nan=False, description="Amplitude at the sensor, any unit"
     )
 
 
@@ -202,7 +206,7 @@ class FoldIn(ChainIn):
     sources: list[SourceIn] | None = Field(
         None, min_length=1, max_length=500, description="Machine sources expanded into tones"
     )
-    band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
+    band_hz: BandHz | None = Field(
         None, description="Band of interest [low, high], Hz; default DC to final rate / 2.56"
     )
     lines: int | None = Field(
@@ -231,8 +235,6 @@ class FoldIn(ChainIn):
     def _something_to_fold(self) -> FoldIn:
         if not self.tones and not self.sources:
             raise ValueError("give at least one tone in tones or one source in sources")
-        if self.band_hz is not None and self.band_hz[1] <= self.band_hz[0]:
-            raise ValueError(f"band_hz={list(self.band_hz)} must be [low, high] with low < high")
         return self
 
 

@@ -10,15 +10,26 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, Discriminator, Field, Tag, ValidationInfo, field_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    Discriminator,
+    Field,
+    Tag,
+    ValidationInfo,
+    field_validator,
+)
 
+from ..core.filters import MAX_Q, MIN_CUTOFF_HZ, MIN_Q
 from .common import (
+    MAX_HZ,
     Hz,
     HzOrZero,
     Label,
     Rate,
     StrictModel,
     at_least_one,
+    band_order,
     by_json_type,
     exactly_one,
     not_together,
@@ -62,7 +73,7 @@ class SensorIn(StrictModel):
     """Mounted sensor resonance ahead of the filter (it can lift an alias)."""
 
     natural_hz: Hz = Field(description="Mounted resonance, Hz")
-    q: float = Field(gt=0, le=1000, allow_inf_nan=False, description="Quality factor")
+    q: float = Field(ge=MIN_Q, le=MAX_Q, allow_inf_nan=False, description="Quality factor")
 
 
 class RunUpIn(StrictModel):
@@ -85,6 +96,42 @@ class RunUpIn(StrictModel):
     )
 
 
+#: The plan's band: its high edge is where filter cutoffs go, so it starts at the
+#: core's lowest cutoff (MIN_CUTOFF_HZ).
+PlanBandHz = Annotated[
+    tuple[HzOrZero, Annotated[float, Field(ge=MIN_CUTOFF_HZ, le=MAX_HZ, allow_inf_nan=False)]],
+    AfterValidator(band_order),
+]
+
+
+def _some_member(*names: str) -> dict[str, Any]:
+    return {"anyOf": [{"required": [n]} for n in names]}
+
+
+#: An absolute floor is compared with tone levels, so some tone must have one: an
+#: explicit tone's ``amplitude`` or a source's ``amplitude``, ``amplitudes`` or
+#: ``harmonic_amplitudes`` (the core's rule in plan_engine, written as JSON Schema).
+_FLOOR_NEEDS_AN_AMPLITUDE: dict[str, Any] = {
+    "if": {"required": ["floor"]},
+    "then": {
+        "anyOf": [
+            {
+                "required": ["tones"],
+                "properties": {"tones": {"contains": _some_member("amplitude")}},
+            },
+            {
+                "required": ["sources"],
+                "properties": {
+                    "sources": {
+                        "contains": _some_member("amplitude", "amplitudes", "harmonic_amplitudes")
+                    }
+                },
+            },
+        ]
+    },
+}
+
+
 class PlanIn(StrictModel):
     """Choose the cheapest sample rate and anti-alias filter for the given sources."""
 
@@ -94,11 +141,12 @@ class PlanIn(StrictModel):
             exactly_one("rejection_db", "floor"),
             not_together("speed_range_rpm", "speed_tolerance_pct"),
             not_together("rates_hz", "rate_series"),
+            _FLOOR_NEEDS_AN_AMPLITUDE,
         ],
         {"speed_range_rpm": ["nominal_rpm"]},
     )
 
-    band_hz: tuple[HzOrZero, HzOrZero] = Field(description="Band of interest [low, high], Hz")
+    band_hz: PlanBandHz = Field(description="Band of interest [low, high], Hz")
     tones: list[ToneIn] | None = Field(
         None, min_length=1, max_length=MAX_TONES_IN, description="Explicit tones"
     )
@@ -147,6 +195,7 @@ class PlanIn(StrictModel):
         None,
         description="Two tones ('label' or 'source: label') that must be resolved at every "
         "speed in the range",
+        json_schema_extra={"uniqueItems": True},
     )
     window: Window = Field("hann", description="Analysis window (sets the main-lobe width)")
     rates_hz: list[Rate] | None = Field(
@@ -185,13 +234,6 @@ class PlanIn(StrictModel):
     runup: RunUpIn | None = Field(
         None, description="Include the run-up through the recommended chain"
     )
-
-    @field_validator("band_hz")
-    @classmethod
-    def _band_order(cls, v: tuple[float, float]) -> tuple[float, float]:
-        if v[1] <= v[0]:
-            raise ValueError(f"band_hz={list(v)} must be [low, high] with low < high")
-        return v
 
     @field_validator("sources")
     @classmethod

@@ -23,7 +23,9 @@ __all__ = ["SOURCE_MODELS", "SourceIn", "source_to_core"]
 #: standing still and the tones' arithmetic turns to denormals (found by fuzzing).
 Rpm = Annotated[float, Field(ge=1e-3, le=6e6, allow_inf_nan=False)]
 SpeedHz = Annotated[float, Field(ge=1e-3 / 60, le=1e5, allow_inf_nan=False)]
-Amplitude = Annotated[float, Field(ge=0, le=1e12, allow_inf_nan=False)]
+#: An amplitude, in any unit: > 0 (a tone of no amplitude is left out; a level in dB
+#: needs a positive amplitude) and at most 1e12.
+Amplitude = Annotated[float, Field(gt=0, le=1e12, allow_inf_nan=False)]
 Harmonics = Annotated[int, Field(ge=1, le=100, description="Number of harmonics, 1 to 100")]
 
 
@@ -173,6 +175,8 @@ class ResonanceIn(_SourceBase):
 
 
 class TonesIn(_SourceBase):
+    model_config = strict_with_rules([not_together("amplitude", "amplitudes")])
+
     type: Literal["tones"]
     freq_hz: list[Hz] = Field(min_length=1, max_length=100_000)
     tone_labels: list[Label] | None = Field(None, max_length=100_000)

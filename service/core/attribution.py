@@ -55,14 +55,11 @@ from .attribution_model import (
     KIND_DIRECT,
     KIND_FAMILY,
     KIND_MIRROR,
-    KINDS,
     MAX_CONFIDENCE,
-    MIN_CONFIDENCE,
     MIRROR_CONFIDENCE,
     REFINE_ERROR_BINS,
     REFINE_ERROR_UNKNOWN_BINS,
     SIGMA_FRACTION,
-    TIE_RATIO,
     UNKNOWN_LEVEL_SCORE,
     Attribution,
     Explanation,
@@ -70,13 +67,6 @@ from .attribution_model import (
 from .attribution_text import SentenceContext, assemble, explanation_for
 
 __all__ = [
-    "BELOW_FLOOR_DB",
-    "KINDS",
-    "MAX_CONFIDENCE",
-    "MIN_CONFIDENCE",
-    "TIE_RATIO",
-    "Attribution",
-    "Explanation",
     "attribute",
     "frequency_tolerance_hz",
 ]

@@ -50,14 +50,8 @@ from .stages import (
 )
 
 __all__ = [
-    "AnalogLowpass",
     "Chain",
     "ChainResponse",
-    "Decimate",
-    "DigitalLowpass",
-    "Sample",
-    "SensorResonance",
-    "Stage",
 ]
 
 FloatArray = NDArray[np.float64]

@@ -35,6 +35,7 @@ __all__ = [
     "check_one_of",
     "check_positive",
     "check_range",
+    "refuse_first",
     "show",
 ]
 
@@ -69,6 +70,28 @@ def bad(
 ) -> InputError:
     """An :class:`InputError` for ``field``, to be raised by the caller."""
     return InputError(message, field=field, value=value, limit=limit, code=code)
+
+
+def refuse_first(
+    where: NDArray[np.bool_],
+    values: NDArray[np.float64],
+    name: str,
+    says: str,
+    code: str,
+    *,
+    limit: float | None = None,
+) -> None:
+    """Raise for the first element where ``where`` holds: ``name[i]=value says``.
+
+    Raises
+    ------
+    InputError
+        ``code``, field ``name[i]``, the element's value and ``limit``.
+    """
+    if where.any():
+        i = int(np.argmax(where))
+        v = float(values[i])
+        raise bad(f"{name}[{i}]={v!r} {says}", f"{name}[{i}]", code, value=v, limit=limit)
 
 
 def _is_number(value: object) -> bool:

@@ -111,7 +111,7 @@ class FilterOption:
             set_(
                 self,
                 "cutoff_hz",
-                check_positive(self.cutoff_hz, "cutoff_hz", unit=" Hz", separate=True),
+                _flt.check_cutoff(self.cutoff_hz),
             )
         if self.cutoff_fraction is not None:
             frac = check_positive(self.cutoff_fraction, "cutoff_fraction", separate=True)

@@ -31,15 +31,21 @@ import numpy as np
 import scipy.signal as sig
 from numpy.typing import ArrayLike, NDArray
 
-from .checks import check_freqs, check_int, check_positive, show
+from .checks import check_freqs, check_int, check_positive, check_range, show
 from .errors import InputError
 
 __all__ = [
     "ANALOG_FAMILIES",
     "MAX_ATTENUATION_DB",
+    "MAX_Q",
+    "MIN_CUTOFF_HZ",
+    "MIN_Q",
+    "MIN_RIPPLE_DB",
+    "MIN_STOP_ATTEN_DB",
     "analog_attenuation_db",
     "analog_unchecked",
     "check_coefficients",
+    "check_cutoff",
     "check_family",
     "check_table",
     "magnitude_to_attenuation",
@@ -67,6 +73,23 @@ MAX_ATTENUATION_DB = 300.0
 _MAX_ORDER = 20
 _MAX_RIPPLE_DB = 6.0
 _MAX_STOP_ATTEN_DB = 200.0
+#: Smallest passband ripple designed, dB. scipy's Chebyshev I prototype divides by the
+#: ripple factor sqrt(10^(rp/10) - 1), which rounds to 0 below about 1e-15 dB
+#: (ZeroDivisionError); 0.001 dB is already a Butterworth in all but name.
+MIN_RIPPLE_DB = 0.001
+#: Smallest stopband attenuation designed, dB. scipy's Chebyshev II prototype divides
+#: by the same factor of the stopband attenuation (ZeroDivisionError below ~1e-15 dB);
+#: a stopband less than 1 dB down is not a stopband.
+MIN_STOP_ATTEN_DB = 1.0
+#: Lowest cutoff designed, Hz. The response is evaluated at f / cutoff; for a denormal
+#: cutoff 1 / cutoff is infinite and 0 Hz gives NaN. No anti-alias filter sits below a
+#: millihertz (the slowest rate followed is 1 S/s).
+MIN_CUTOFF_HZ = 1e-3
+#: Quality factor range of a sensor resonance. Below 1e-3 the damping term r²/Q²
+#: overflows (Q² underflows to 0 for a denormal Q, found by fuzzing); a mounted sensor
+#: is never that damped. Above 1000 no mounting rings.
+MIN_Q = 1e-3
+MAX_Q = 1000.0
 # Factors multiplied before one logarithm is taken; each pole pair is of degree 4 in
 # the normalised frequency, so 4 of them stay finite up to f/fc ~ 1e19.
 _LOG_GROUP = 4
@@ -75,6 +98,13 @@ _MAG_FLOOR = 10.0 ** (-MAX_ATTENUATION_DB / 20.0)
 
 
 # --------------------------------------------------------------------------- checks
+
+
+def check_cutoff(cutoff_hz: object) -> float:
+    """A cutoff frequency, Hz: finite and at least :data:`MIN_CUTOFF_HZ`."""
+    return check_range(
+        cutoff_hz, "cutoff_hz", MIN_CUTOFF_HZ, math.inf, text=f">= {MIN_CUTOFF_HZ:g} Hz"
+    )
 
 
 def check_family(
@@ -95,11 +125,11 @@ def check_family(
     if needs_ripple:
         if ripple_db is None:
             raise InputError(
-                f"ripple_db is required for a {family} filter (0 < ripple_db <= 6)",
+                f"ripple_db is required for a {family} filter ({MIN_RIPPLE_DB:g} to 6 dB)",
                 field="ripple_db",
                 code="missing",
             )
-        rp = check_positive(ripple_db, "ripple_db", _MAX_RIPPLE_DB)
+        rp = check_range(ripple_db, "ripple_db", MIN_RIPPLE_DB, _MAX_RIPPLE_DB, unit=" dB")
     elif ripple_db is not None:
         raise InputError(
             f"ripple_db={show(ripple_db)} does not apply to a {family} filter; omit it",
@@ -110,11 +140,14 @@ def check_family(
     if needs_stop:
         if stop_atten_db is None:
             raise InputError(
-                f"stop_atten_db is required for a {family} filter (<= {_MAX_STOP_ATTEN_DB:g} dB)",
+                f"stop_atten_db is required for a {family} filter "
+                f"({MIN_STOP_ATTEN_DB:g} to {_MAX_STOP_ATTEN_DB:g} dB)",
                 field="stop_atten_db",
                 code="missing",
             )
-        rs = check_positive(stop_atten_db, "stop_atten_db", _MAX_STOP_ATTEN_DB)
+        rs = check_range(
+            stop_atten_db, "stop_atten_db", MIN_STOP_ATTEN_DB, _MAX_STOP_ATTEN_DB, unit=" dB"
+        )
         if rp is not None and rs <= rp:
             raise InputError(
                 f"stop_atten_db={show(stop_atten_db)} must be > ripple_db={show(ripple_db)}",
@@ -398,7 +431,7 @@ def analog_attenuation_db(
     """
     rp, rs = check_family(family, ripple_db, stop_atten_db)
     n = check_int(order, "order", 1, _MAX_ORDER)
-    fc = check_positive(cutoff_hz, "cutoff_hz")
+    fc = check_cutoff(cutoff_hz)
     f = check_freqs(freq_hz)
     return analog_unchecked(f, family, n, fc, rp, rs)
 
@@ -479,7 +512,7 @@ def sensor_attenuation_db(freq_hz: ArrayLike, natural_hz: float, q: float) -> Fl
     .. [4] Harris' Shock and Vibration Handbook, 5th ed., 2002, ch. 2 (from memory).
     """
     fn = check_positive(natural_hz, "natural_hz")
-    qq = check_positive(q, "q", 1000.0)
+    qq = check_range(q, "q", MIN_Q, MAX_Q)
     f = check_freqs(freq_hz)
     return sensor_unchecked(f, fn, qq)
 

@@ -22,6 +22,7 @@ __all__ = [
     "check_fold_range",
     "fold",
     "fold_intervals",
+    "fold_line",
     "fold_offset",
     "fold_unchecked",
     "is_inverted",
@@ -170,13 +171,60 @@ def nyquist_zone(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.int64]
 
 
 def zone_unchecked(f: FloatArray, fs: float) -> NDArray[np.int64]:
-    """:func:`nyquist_zone` without the input checks."""
+    """:func:`nyquist_zone` without the range checks; a NaN still raises.
+
+    Raises
+    ------
+    InputError
+        ``not_finite`` when a frequency (or ``f / fs``) is NaN: it has no zone, and the
+        cast to int64 would make one up.
+    """
     # f / fs first, then the exact doubling: fs / 2 underflows for the smallest rates.
     # The clip keeps the cast to int64 defined for unchecked callers (2**62 < int64 max).
-    zone = np.ceil(np.minimum((f / fs) * 2.0, 2.0**62))
+    ratio = (f / fs) * 2.0
+    if ratio.size and np.isnan(np.max(ratio)):
+        i = int(np.flatnonzero(np.isnan(ratio))[0])
+        raise bad(
+            f"freq_hz[{i}] is not a number; every frequency must be finite and >= 0 Hz",
+            "freq_hz",
+            "not_finite",
+        )
+    zone = np.ceil(np.minimum(ratio, 2.0**62))
     # Guard against round-off putting an exact multiple of fs/2 one zone high: the fold
     # formula is the arbiter, so zone and apparent frequency always agree.
     return np.maximum(zone, 1).astype(np.int64)
+
+
+def fold_line(
+    top_hz: float, sample_rate_hz: float, min_zones: int = 2
+) -> tuple[FloatArray, FloatArray]:
+    """Corners of the fold line from 0 Hz to the end of the Nyquist zone holding ``top_hz``.
+
+    Apparent frequency is piecewise linear in true frequency, with corners at every
+    multiple of fs/2: 0 Hz at even multiples, fs/2 at odd ones [1]_. The corners are
+    the zone edges, folded with the one fold formula, so a figure drawn from them agrees
+    with :func:`fold` everywhere.
+
+    Parameters
+    ----------
+    top_hz : float
+        Highest true frequency the line must reach, Hz, >= 0.
+    sample_rate_hz : float
+        Sample rate, Hz, > 0.
+    min_zones : int
+        Fewest zones to draw (the first alias zone is shown even when nothing reaches it).
+
+    Returns
+    -------
+    true_hz, apparent_hz : ndarray
+        ``zones + 1`` corner frequencies ``k·fs/2`` and their apparent values. The last
+        true frequency is the end of the zone holding ``top_hz``; ``zones`` is
+        ``len(true_hz) - 1``.
+    """
+    fs = check_positive(sample_rate_hz, "sample_rate_hz")
+    zones = max(int(min_zones), int(np.max(nyquist_zone(top_hz, fs))))
+    true_hz: FloatArray = np.arange(zones + 1, dtype=np.float64) * (fs / 2.0)
+    return true_hz, fold_unchecked(true_hz, fs)
 
 
 def is_inverted(freq_hz: ArrayLike, sample_rate_hz: float) -> NDArray[np.bool_]:

@@ -16,6 +16,7 @@ from service.core.tones import ToneSet
 
 from .checks import check_finite
 from .errors import InputError
+from .filters import MIN_CUTOFF_HZ
 
 __all__ = [
     "ANALYSER_RATES_HZ",
@@ -115,6 +116,16 @@ def check_band(band_hz: object) -> tuple[float, float]:
             field="band_hz[1]",
             code="not_increasing",
             value=hi_raw,
+        )
+    if hi < MIN_CUTOFF_HZ:
+        # The plan puts filter cutoffs at the band edge; none is designed below this.
+        raise InputError(
+            f"band_hz[1]={hi_raw!r} must be >= {MIN_CUTOFF_HZ:g} Hz, the lowest cutoff an "
+            "anti-alias filter is designed for",
+            field="band_hz[1]",
+            code="below_limit",
+            value=hi_raw,
+            limit=MIN_CUTOFF_HZ,
         )
     return lo, hi
 

@@ -20,7 +20,12 @@ from .errors import InputError
 from .folding import fold_intervals
 from .tones import ToneSet
 
-__all__ = ["DEFAULT_LINES", "SPAN_DIVISOR", "Collisions", "Prediction", "predict"]
+__all__ = [
+    "DEFAULT_LINES",
+    "Collisions",
+    "Prediction",
+    "predict",
+]
 
 FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]

@@ -36,30 +36,18 @@ from service.core.checks import check_positive
 from service.core.errors import InputError
 from service.core.tones import ToneSet
 
-from .bearing_sources import BEARING_DEFECTS, Bearing, bearing_multiples
+from .bearing_sources import Bearing
 from .electrical_sources import LineHarmonics, PwmCarrier, fundamental_from_shaft
 from .fixed_sources import ExplicitTones, Resonance
 from .rotating_sources import BladePass, GearMesh, Shaft
 from .source_base import short_repr, speed_to_hz
 
 __all__ = [
-    "BEARING_DEFECTS",
     "SOURCE_TYPES",
-    "Bearing",
-    "BladePass",
-    "ExplicitTones",
-    "GearMesh",
-    "LineHarmonics",
-    "PwmCarrier",
-    "Resonance",
-    "Shaft",
     "Source",
-    "bearing_multiples",
     "expand_sources",
-    "fundamental_from_shaft",
     "source_from_dict",
     "source_to_dict",
-    "speed_to_hz",
 ]
 
 FloatArray = NDArray[np.float64]

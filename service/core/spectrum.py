@@ -42,15 +42,15 @@ from service.core.checks import (
     check_one_of,
     check_positive,
     check_range,
+    refuse_first,
 )
 from service.core.errors import InputError
 
 from .analysis_lines import SPAN_DIVISOR
-from .windows import WINDOWS, kernel_tables, window_figures, window_samples
+from .windows import WINDOWS, kernel_tables, window_samples
 
 __all__ = [
     "USUAL_LINES",
-    "WINDOWS",
     "Peaks",
     "Spectrum",
     "amplitude_spectrum",
@@ -60,7 +60,6 @@ __all__ = [
     "find_peaks",
     "noise_floor",
     "to_linear",
-    "window_figures",
 ]
 
 FloatArray = NDArray[np.float64]
@@ -652,6 +651,10 @@ def bad_negative_cells(amplitude: ArrayLike, reason: str, field: str = "amplitud
     return negative
 
 
+#: Largest magnitude of a level in dB that a spectrum may hold.
+MAX_ABS_DB = 1000.0
+
+
 def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     """Convert spectrum values to linear amplitude.
 
@@ -672,18 +675,26 @@ def to_linear(values: ArrayLike, unit: str) -> FloatArray:
     v = check_finite_array(values, "values")
     u = unit.lower() if isinstance(unit, str) else unit
     if u == "db":
+        # 10**(v/20) overflows a double above ~6165 dB and underflows to 0 below about
+        # -6465 dB; no measurement spans more than a few hundred dB.
+        refuse_first(
+            np.abs(v) > MAX_ABS_DB,
+            v,
+            "values",
+            f"dB is outside ±{MAX_ABS_DB:g} dB; are the values linear amplitudes rather than dB?",
+            "above_limit",
+            limit=MAX_ABS_DB,
+        )
         out: FloatArray = 10.0 ** (v / 20.0)
         return out
     if u == "linear":
-        if np.any(v < 0):
-            i = int(np.argmax(v < 0))
-            raise InputError(
-                f"values[{i}]={float(v[i])!r} is negative; a linear amplitude must be >= 0 "
-                "(are the values in dB?)",
-                field=f"values[{i}]",
-                code="below_limit",
-                value=float(v[i]),
-            )
+        refuse_first(
+            v < 0,
+            v,
+            "values",
+            "is negative; a linear amplitude must be >= 0 (are the values in dB?)",
+            "below_limit",
+        )
         return v.copy()
     raise InputError(
         f"unit={unit!r} must be 'linear' or 'db'", field="unit", code="invalid", value=unit

@@ -24,7 +24,7 @@ from numpy.typing import NDArray
 
 from service.core import digital as _dig
 from service.core import filters as _flt
-from service.core.checks import bad, check_finite, check_int, show
+from service.core.checks import bad, check_finite, check_int, check_range, show
 from service.core.errors import InputError
 
 __all__ = [
@@ -154,7 +154,7 @@ class SensorResonance:
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "natural_hz", check_number(self.natural_hz, "natural_hz"))
-        object.__setattr__(self, "q", check_number(self.q, "q", high=1000.0))
+        object.__setattr__(self, "q", check_range(self.q, "q", _flt.MIN_Q, _flt.MAX_Q))
 
     def name(self) -> str:
         return f"sensor resonance {fmt_hz(self.natural_hz)}, Q {fmt_number(self.q)}"
@@ -230,7 +230,7 @@ class AnalogLowpass:
             )
         rp, rs = _flt.check_family(self.family, self.ripple_db, self.stop_atten_db)
         set_(self, "order", check_int(self.order, "order", 1, 20))
-        set_(self, "cutoff_hz", check_number(self.cutoff_hz, "cutoff_hz"))
+        set_(self, "cutoff_hz", _flt.check_cutoff(self.cutoff_hz))
         set_(self, "ripple_db", rp)
         set_(self, "stop_atten_db", rs)
 

@@ -8,6 +8,7 @@ small cache before any parsing. Errors still go through the same problem handler
 from __future__ import annotations
 
 from collections import OrderedDict
+from dataclasses import dataclass
 from typing import Any, TypeVar
 
 from fastapi import Request
@@ -19,11 +20,15 @@ from ..usecases.measure import Upload
 from .problems import Problem
 
 __all__ = [
+    "API_UPLOAD",
+    "PAGE_FORM",
+    "FormRules",
     "ResponseCache",
     "body_openapi",
     "is_multipart",
     "parse_json_body",
     "read_body",
+    "read_form",
     "read_multipart",
     "refuse_declared_size",
     "register_models",
@@ -150,58 +155,107 @@ def register_models(schema: dict[str, Any], models: list[type[BaseModel]]) -> No
         comps.setdefault(model.__name__, js)
 
 
+@dataclass(frozen=True)
+class FormRules:
+    """What a form may hold and how the reader's messages name it.
+
+    The API's multipart upload and a page's form go through the one reader,
+    :func:`read_form`; this is the only thing that differs between them.
+    """
+
+    #: How messages name the body ("multipart form" for the API, "form" for a page).
+    noun: str
+    #: The text fields allowed (the API's ``request``); None: any (a page form's fields).
+    text_fields: tuple[str, ...] | None
+    #: A named part that is not a file, or an empty file, is a 422 (the API); on a page
+    #: an empty file input means "no file".
+    strict_files: bool
+    max_fields: int = 4
+
+
+#: The JSON API's upload: the named files and one ``request`` field of JSON.
+API_UPLOAD = FormRules("multipart form", ("request",), strict_files=True)
+#: A page's form: any number of text fields, file inputs that may be left empty.
+PAGE_FORM = FormRules("form", None, strict_files=False, max_fields=2000)
+
+
+async def read_form(
+    request: Request, files: tuple[str, ...], max_bytes: int, rules: FormRules
+) -> tuple[dict[str, str], dict[str, Upload]]:
+    """A multipart or urlencoded form: its text fields and the files ``files`` (each
+    under ``max_bytes``), read under ``rules``. A declared ``Content-Length`` over the
+    limit is refused before reading (413); an unreadable form is a 400."""
+    refuse_declared_size(request, max_bytes, field=files[0] if files else "body", noun="upload")
+    try:
+        form = await request.form(
+            max_files=len(files), max_fields=rules.max_fields, max_part_size=max_bytes
+        )
+    except Exception as exc:  # malformed multipart, too many parts, part too large
+        raise Problem(400, f"the {rules.noun} cannot be read: {exc}", field="body") from exc
+    try:
+        if rules.text_fields is not None:
+            expected = (*files, *rules.text_fields)
+            for key in form:
+                if key not in expected:
+                    raise Problem(
+                        422,
+                        f"unexpected form field {key!r}; expected {', '.join(expected)}",
+                        field=key,
+                    )
+        uploads: dict[str, Upload] = {}
+        for name in files:
+            upload = await _read_file(form.get(name), name, max_bytes, rules.strict_files)
+            if upload is not None:
+                uploads[name] = upload
+        text: dict[str, str] = {}
+        for key, value in form.items():
+            if key in files:
+                continue
+            if isinstance(value, UploadFile):
+                value = (await value.read()).decode("utf-8", errors="replace")
+            text[key] = value
+        return text, uploads
+    finally:
+        await form.close()
+
+
 async def read_multipart(
     request: Request, names: tuple[str, ...], max_bytes: int
 ) -> tuple[bytes, dict[str, Upload]]:
-    """A multipart upload: the files ``names`` (each under ``max_bytes``, none empty)
-    and the raw ``request`` JSON field (``{}`` when absent)."""
-    refuse_declared_size(request, max_bytes, field="file", noun="upload")
-    try:
-        form = await request.form(max_files=len(names), max_fields=4, max_part_size=1024 * 1024)
-    except Exception as exc:  # malformed multipart, too many parts, part too large
-        raise Problem(400, f"the multipart form cannot be read: {exc}", field="body") from exc
-    try:
-        uploads: dict[str, Upload] = {}
-        for key in form:
-            if key not in (*names, "request"):
-                raise Problem(
-                    422,
-                    f"unexpected form field {key!r}; expected {', '.join((*names, 'request'))}",
-                    field=key,
-                )
-        for name in names:
-            item = form.get(name)
-            if item is None:
-                continue
-            if not isinstance(item, UploadFile):
-                raise Problem(422, f"form field {name!r} must be a file", field=name)
-            if item.size is not None and item.size > max_bytes:
-                raise Problem(
-                    413,
-                    f"{name} is {item.size} bytes; the limit is {max_bytes}",
-                    field=name,
-                    value=item.size,
-                    limit=max_bytes,
-                )
-            data = await item.read()
-            if len(data) > max_bytes:
-                raise Problem(
-                    413,
-                    f"{name} is over the limit of {max_bytes} bytes",
-                    field=name,
-                    limit=max_bytes,
-                )
-            if not data:
-                raise Problem(422, f"{name} is empty", field=name)
-            uploads[name] = Upload(data=data, filename=item.filename or name)
-        raw = form.get("request")
-        if isinstance(raw, UploadFile):
-            raw_bytes = await raw.read()
-        else:
-            raw_bytes = (raw or "{}").encode()
-        return raw_bytes, uploads
-    finally:
-        await form.close()
+    """The API's upload (:data:`API_UPLOAD`): the raw ``request`` JSON (``{}`` when
+    absent) and the files ``names``."""
+    text, uploads = await read_form(request, names, max_bytes, API_UPLOAD)
+    return (text.get("request") or "{}").encode(), uploads
+
+
+async def _read_file(
+    item: UploadFile | str | None, name: str, max_bytes: int, strict: bool
+) -> Upload | None:
+    """One file part, or None when it is absent (or, leniently, empty)."""
+    if item is None:
+        return None
+    if not isinstance(item, UploadFile) or (not strict and not item.filename):
+        if strict:
+            raise Problem(422, f"form field {name!r} must be a file", field=name)
+        return None
+    if item.size is not None and item.size > max_bytes:
+        raise Problem(
+            413,
+            f"{name} is {item.size} bytes; the limit is {max_bytes}",
+            field=name,
+            value=item.size,
+            limit=max_bytes,
+        )
+    data = await item.read()
+    if len(data) > max_bytes:
+        raise Problem(
+            413, f"{name} is over the limit of {max_bytes} bytes", field=name, limit=max_bytes
+        )
+    if not data:
+        if strict:
+            raise Problem(422, f"{name} is empty", field=name)
+        return None
+    return Upload(data=data, filename=item.filename or name)
 
 
 def is_multipart(request: Request) -> bool:

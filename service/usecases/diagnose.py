@@ -16,7 +16,8 @@ from ..contract.caution import CAUTION
 from ..contract.diagnose import (
     DiagnoseIn,
 )
-from ..core.attribution import Attribution, attribute
+from ..core.attribution import attribute
+from ..core.attribution_model import Attribution
 from ..core.harmonics import Family, find_families
 from ..core.spectrum import find_peaks, noise_floor
 from .errors import input_errors

@@ -8,7 +8,7 @@ message beside a form field, or a CLI line and exit status.
 
 from __future__ import annotations
 
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from typing import Any
 
@@ -64,15 +64,42 @@ class PlanImpossibleError(RequestError):
 
 
 @contextmanager
-def input_errors(field: str | None = None, status: int = 422) -> Iterator[None]:
-    """A ``ValueError`` from the core or the readers becomes a :class:`RequestError`
-    naming ``field``; errors already placed on a request field pass unchanged."""
+def input_errors(
+    field: str | None = None,
+    status: int = 422,
+    *,
+    under: str | None = None,
+    rename: Callable[[InputError], str] | None = None,
+) -> Iterator[None]:
+    """A ``ValueError`` from the core or the readers becomes a :class:`RequestError`;
+    errors already placed on a request field pass unchanged.
+
+    Parameters
+    ----------
+    field : str, optional
+        The request field to blame, in place of whatever the core named.
+    status : int
+        The status of the answer.
+    under : str, optional
+        Instead of ``field``: keep the core's own field and re-root it under this request
+        path with :meth:`InputError.under` (``sources[2]`` + ``rpm`` ->
+        ``sources[2].rpm``; ``""`` keeps it at the top level). The core's value and limit
+        travel with it.
+    rename : callable, optional
+        Maps the core's error to the request's name of its field first (``stages[1]`` ->
+        ``chain[1]``); called only when the core names a field.
+    """
     try:
         yield
     except RequestError:
         raise
     except InputError as exc:
-        # Only the field is re-rooted onto the request; the rest travels on.
-        raise RequestError.placed(exc, field, status) from exc
+        # The field is placed on the request; code, remedy, value, limit travel on.
+        if under is None:
+            raise RequestError.placed(exc, field, status) from exc
+        if exc.field is not None and rename is not None:
+            exc.field = rename(exc)
+        exc.under(under)
+        raise RequestError.placed(exc, exc.field or field, status) from exc
     except ValueError as exc:
         raise RequestError(str(exc), field=field, status=status, code="invalid") from exc

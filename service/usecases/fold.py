@@ -5,6 +5,7 @@ Shared by the routers and the command line so both give the same answer.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -16,13 +17,64 @@ from ..contract.sources import source_to_core
 from ..core.prediction import Prediction, predict
 from ..core.sources import expand_sources
 from ..core.tones import ToneSet
-from .errors import RequestError, input_errors
+from .errors import InputError, RequestError, input_errors
 
 __all__ = ["fold_payload", "prediction_to_dict", "run_fold", "tones_from_request"]
 
 
 def _nan_to_none(values: np.ndarray) -> list[Any]:
     return [None if v != v else v for v in values.tolist()]
+
+
+def _sent_as(source: Any) -> Callable[[InputError], str]:
+    """The request's name of a core source field: a speed the core holds in Hz
+    (``shaft_hz``) is named as it was sent (``shaft_rpm``, ``shaft_cpm``)."""
+    sent = source.model_fields_set
+
+    def rename(exc: InputError) -> str:
+        name = str(exc.field)
+        if name in sent or not name.endswith("_hz"):
+            return name
+        for unit in ("_rpm", "_cpm"):
+            if name[:-3] + unit in sent:
+                return name[:-3] + unit
+        return name
+
+    return rename
+
+
+def _chain_field(req: FoldIn) -> Callable[[InputError], str]:
+    """The request's name of a core chain field: the core numbers ``stages``; a request
+    writes them as ``chain`` or as the shorthand ``anti_alias`` + ``sample_rate_hz``."""
+
+    def rename(exc: InputError) -> str:
+        name = str(exc.field)
+        head, sep, rest = name.partition(".")
+        if not head.startswith("stages"):
+            return name
+        if req.chain is not None:
+            return "chain" + head[len("stages") :] + sep + rest
+        if req.anti_alias is not None and head == "stages[0]":
+            return "anti_alias" + sep + rest
+        return "sample_rate_hz"
+
+    return rename
+
+
+def _tone_field(req: FoldIn) -> Callable[[InputError], str]:
+    """The request's name of a core tone field: ``freq_hz`` is the first explicit tone
+    with the offending value (``tones[3].freq_hz``), else the sources that made it."""
+
+    def rename(exc: InputError) -> str:
+        name = str(exc.field)
+        if name != "freq_hz":
+            return name
+        for i, tone in enumerate(req.tones or ()):
+            if tone.freq_hz == exc.value:
+                return f"tones[{i}].freq_hz"
+        return "sources"
+
+    return rename
 
 
 def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
@@ -45,7 +97,7 @@ def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
     if req.sources:
         core_sources = []
         for i, s in enumerate(req.sources):
-            with input_errors(f"sources[{i}]"):
+            with input_errors(f"sources[{i}]", under=f"sources[{i}]", rename=_sent_as(s)):
                 core_sources.append(source_to_core(s))
         with input_errors("sources"):
             parts.append(expand_sources(core_sources))
@@ -63,10 +115,12 @@ def tones_from_request(req: FoldIn, max_tones: int) -> ToneSet:
 
 def run_fold(req: FoldIn, settings: Settings) -> Prediction:
     tones = tones_from_request(req, settings.max_tones)
-    with input_errors("chain" if req.chain is not None else "sample_rate_hz"):
+    with input_errors(
+        "chain" if req.chain is not None else "sample_rate_hz", under="", rename=_chain_field(req)
+    ):
         chain = chain_from_request(req)
         chain.validate()
-    with input_errors():
+    with input_errors(under="", rename=_tone_field(req)):
         return predict(
             tones,
             chain,

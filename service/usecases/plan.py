@@ -18,10 +18,9 @@ from ..config import Settings
 from ..contract.caution import CAUTION
 from ..contract.fold import chain_to_request
 from ..contract.plan import FilterIn, PlanIn
-from ..core import planning as pl
-from ..core.chain import SensorResonance
+from ..core import filter_catalogue, plan_common, plan_model, plan_search, runup
 from ..core.multirate import settle_rate
-from ..core.plan_common import RATE_SERIES
+from ..core.stages import SensorResonance
 from ..core.tones import ToneSet
 from .errors import InputError, PlanImpossibleError, RequestError
 from .fold import tones_from_request
@@ -82,11 +81,19 @@ _WORD = re.compile(r"[A-Za-z_]+")
 _FIELD = re.compile(r"^([A-Za-z_]+)(.*)$")
 
 
+#: Request members that are objects: a core field they do not map re-roots under them
+#: (``filters[2]`` + ``ripple_db`` -> ``filters[2].ripple_db``).
+_OBJECTS = re.compile(r"^(filters\[\d+\]|sensor)$")
+
+
 def _field_of(exc: ValueError, default: str) -> str:
-    """The request field a core error is about: its ``field`` through :data:`PLAN_FIELDS`;
-    for a plain ``ValueError``, the parameter its message starts with."""
+    """The request field a core error is about: its ``field`` through :data:`PLAN_FIELDS`
+    (or under ``default`` when that is an object of the request); for a plain
+    ``ValueError``, the parameter its message starts with."""
     if isinstance(exc, InputError) and exc.field:
         m = _FIELD.match(exc.field)
+        if _OBJECTS.match(default):
+            return str(InputError("", field=exc.field).under(default).field)
         if m and m.group(1) in PLAN_FIELDS:
             return PLAN_FIELDS[m.group(1)] + m.group(2)
         return default
@@ -107,14 +114,14 @@ def _core_errors(default: str) -> Iterator[None]:
     """A core ``ValueError`` becomes a 422 problem naming the request field."""
     try:
         yield
-    except pl.PlanImpossible:
+    except plan_common.PlanImpossible:
         raise
     except ValueError as exc:
         code = exc.code if isinstance(exc, InputError) else "invalid"
         raise RequestError(str(exc), field=_field_of(exc, default), code=code) from exc
 
 
-def _impossible(exc: pl.PlanImpossible, req: PlanIn) -> PlanImpossibleError:
+def _impossible(exc: plan_common.PlanImpossible, req: PlanIn) -> PlanImpossibleError:
     msg = str(exc)
     if msg.startswith("no listed rate covers"):
         field = "rates_hz" if req.rates_hz is not None else "rate_series"
@@ -136,8 +143,8 @@ def _impossible(exc: pl.PlanImpossible, req: PlanIn) -> PlanImpossibleError:
 # --------------------------------------------------------------------------- request
 
 
-def _filter_option(f: FilterIn) -> pl.FilterOption:
-    return pl.FilterOption(
+def _filter_option(f: FilterIn) -> filter_catalogue.FilterOption:
+    return filter_catalogue.FilterOption(
         family=f.family,
         order=f.order or 0,
         ripple_db=f.ripple_db,
@@ -157,13 +164,13 @@ def _speed_range(req: PlanIn) -> tuple[float, float]:
         return (lo / req.nominal_rpm, hi / req.nominal_rpm)
     if req.speed_tolerance_pct is not None:
         with _core_errors("speed_tolerance_pct"):
-            return pl.speed_range_from_tolerance(req.speed_tolerance_pct)
+            return plan_common.speed_range_from_tolerance(req.speed_tolerance_pct)
     return (1.0, 1.0)
 
 
 def plan_request_from_model(
     req: PlanIn, max_tones: int = PLAN_MAX_TONES, tones: ToneSet | None = None
-) -> pl.PlanRequest:
+) -> plan_model.PlanRequest:
     """The core request a validated :class:`PlanIn` describes.
 
     ``tones`` may be passed when already expanded from the request; otherwise the tones
@@ -185,7 +192,7 @@ def plan_request_from_model(
     extra: dict[str, Any] = {}
     if req.lines_options is not None:
         extra["lines_options"] = tuple(req.lines_options)
-    return pl.PlanRequest(
+    return plan_model.PlanRequest(
         tones=tones,
         band_hz=(float(req.band_hz[0]), float(req.band_hz[1])),
         rejection_db=req.rejection_db,
@@ -217,7 +224,7 @@ def _num(x: Any) -> float | None:
     return v if math.isfinite(v) else None
 
 
-def _filter_dict(opt: pl.FilterOption, cutoff_hz: float | None) -> dict[str, Any]:
+def _filter_dict(opt: filter_catalogue.FilterOption, cutoff_hz: float | None) -> dict[str, Any]:
     return {
         "name": opt.describe(cutoff_hz),
         "family": opt.family,
@@ -235,7 +242,7 @@ def _rpm(speed_factor: float, nominal_rpm: float | None) -> float | None:
     return speed_factor * nominal_rpm
 
 
-def plan_to_dict(p: pl.Plan, tones: ToneSet, nominal_rpm: float | None) -> dict[str, Any]:
+def plan_to_dict(p: plan_model.Plan, tones: ToneSet, nominal_rpm: float | None) -> dict[str, Any]:
     """The JSON body of a plan (without run-up, caution and version)."""
     rec = p.record
     recommendation = {
@@ -308,7 +315,7 @@ def plan_to_dict(p: pl.Plan, tones: ToneSet, nominal_rpm: float | None) -> dict[
     }
 
 
-def _runup_dict(ru: pl.RunUp, max_crossings: int) -> dict[str, Any]:
+def _runup_dict(ru: runup.RunUp, max_crossings: int) -> dict[str, Any]:
     s_n, l_n = ru.apparent_hz.shape
     points = min(s_n, RUNUP_JSON_POINTS, max(50, RUNUP_JSON_VALUES // max(1, l_n)))
     keep = np.unique(np.rint(np.linspace(0, s_n - 1, points)).astype(np.int64))
@@ -374,7 +381,7 @@ def _runup_dict(ru: pl.RunUp, max_crossings: int) -> dict[str, Any]:
     }
 
 
-def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
+def runup_payload(req: PlanIn, plan: plan_model.Plan, tones: ToneSet) -> dict[str, Any]:
     """The run-up through the plan's recommended chain, as asked for in ``req.runup``."""
     assert req.runup is not None
     lo, hi = plan.speed_range
@@ -404,7 +411,7 @@ def runup_payload(req: PlanIn, plan: pl.Plan, tones: ToneSet) -> dict[str, Any]:
             limit=limit if limit >= 2 else None,
         )
     with _core_errors("runup"):
-        ru = pl.run_up(
+        ru = runup.run_up(
             tones,
             plan.chain,
             np.linspace(lo, hi, n),
@@ -421,9 +428,15 @@ def _check_work(req: PlanIn, n_tones: int) -> None:
     n_rates = (
         len(set(req.rates_hz))
         if req.rates_hz is not None
-        else len(pl.ANALYSER_RATES_HZ if req.rate_series == "analyser" else pl.CONVERTER_RATES_HZ)
+        else len(
+            plan_common.ANALYSER_RATES_HZ
+            if req.rate_series == "analyser"
+            else plan_common.CONVERTER_RATES_HZ
+        )
     )
-    n_filters = len(req.filters) if req.filters is not None else len(pl.DEFAULT_FILTERS)
+    n_filters = (
+        len(req.filters) if req.filters is not None else len(filter_catalogue.DEFAULT_FILTERS)
+    )
     work = n_tones * n_rates * n_filters
     if work <= PLAN_MAX_WORK:
         return
@@ -458,7 +471,9 @@ def confirm_rate(req: PlanIn, out: dict[str, Any]) -> dict[str, Any] | None:
     rows = rows[:CONFIRM_MAX_TONES]
     rec = out["recommendation"]
     offered = (
-        req.rates_hz if req.rates_hz is not None else RATE_SERIES[req.rate_series or "converter"]
+        req.rates_hz
+        if req.rates_hz is not None
+        else plan_common.RATE_SERIES[req.rate_series or "converter"]
     )
     # Common practice: analysed span = rate / 2.56; the second capture still covers the band.
     pool = [r for r in offered if r / 2.56 >= out["band_hz"][1]] or list(offered)
@@ -506,8 +521,8 @@ def plan_payload(req: PlanIn, settings: Settings) -> dict[str, Any]:
     _check_work(req, len(tones))
     try:
         with _core_errors("body"):
-            result = pl.plan(core_req)
-    except pl.PlanImpossible as exc:
+            result = plan_search.plan(core_req)
+    except plan_common.PlanImpossible as exc:
         raise _impossible(exc, req) from exc
     out = plan_to_dict(result, tones, req.nominal_rpm)
     out["runup"] = runup_payload(req, result, tones) if req.runup is not None else None

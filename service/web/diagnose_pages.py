@@ -18,7 +18,6 @@ from fastapi import APIRouter, Request
 from fastapi.responses import HTMLResponse
 from pydantic import ValidationError
 from starlette.concurrency import run_in_threadpool
-from starlette.datastructures import FormData, UploadFile
 
 from ..config import Settings
 from ..contract.diagnose import CompareIn, DiagnoseIn
@@ -26,6 +25,7 @@ from ..contract.fold import FoldIn, chain_from_request
 from ..core.chain import Chain
 from ..core.spectrum import noise_floor
 from ..demo import demo_compare_request, demo_diagnose_request
+from ..http.bodies import PAGE_FORM, read_form
 from ..http.keys import require_api_key
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..http.store_access import StoreAccess
@@ -57,7 +57,7 @@ __all__ = [
     "compare_result_context",
     "diagnose_result_context",
     "error_page",
-    "read_share_form",
+    "read_page_form",
     "recompute_shared",
     "request_json",
     "router",
@@ -67,7 +67,6 @@ __all__ = [
 router = APIRouter(include_in_schema=False)
 
 #: Form fields the diagnose and compare forms may send (sources add a few per row).
-MAX_FORM_FIELDS = 2000
 #: Peaks listed in the table; the rest stay on the plot (a page must stay light).
 MAX_TABLE_PEAKS = 400
 #: Verdicts that mean "folded back": drawn and counted as aliases.
@@ -105,42 +104,10 @@ def error_page(request: Request, p: Problem) -> HTMLResponse:
 
 async def _read_form(
     request: Request, files: tuple[str, ...]
-) -> tuple[FormData, dict[str, Upload]]:
-    """The multipart (or urlencoded) form, with the size limit checked before reading."""
+) -> tuple[dict[str, str], dict[str, Upload]]:
+    """The page's form (text fields, files) through the one form reader."""
     settings: Settings = request.app.state.settings
-    limit = settings.max_upload_bytes
-    declared = request.headers.get("content-length", "")
-    if declared.isdigit() and int(declared) > limit + 1024 * 1024:
-        raise Problem(
-            413,
-            f"the form is {int(declared):,} bytes; the limit is {limit:,} bytes",
-            field=files[0],
-            value=int(declared),
-            limit=limit,
-        )
-    try:
-        form = await request.form(
-            max_files=len(files), max_fields=MAX_FORM_FIELDS, max_part_size=limit
-        )
-    except Exception as exc:  # malformed multipart, too many parts, part too large
-        raise Problem(400, f"the form cannot be read: {exc}", field=files[0]) from exc
-    uploads: dict[str, Upload] = {}
-    for name in files:
-        item = form.get(name)
-        if not isinstance(item, UploadFile) or not item.filename:
-            continue
-        if item.size is not None and item.size > limit:
-            raise Problem(
-                413, f"the file is {item.size:,} bytes; the limit is {limit:,} bytes", field=name
-            )
-        data = await item.read()
-        if data:
-            uploads[name] = Upload(data=data, filename=item.filename)
-    return form, uploads
-
-
-def _text_fields(form: FormData) -> dict[str, str]:
-    return {k: v for k, v in form.items() if isinstance(v, str)}
+    return await read_form(request, files, settings.max_upload_bytes, PAGE_FORM)
 
 
 # --------------------------------------------------------------------------- saving
@@ -189,7 +156,7 @@ def _gain_curve(request_dict: Mapping[str, Any], out: Mapping[str, Any]) -> Any:
         rate = float(out["final_rate_hz"])
         tops = [p["true_hz"] for p in out["peaks"] if p.get("true_hz") is not None]
         top = max([*tops, rate])
-        x_max = figures.zone_count(top * 1.03, rate) * rate / 2.0
+        x_max = figures.fold_axis_end_hz(top, rate)
         return figures.chain_gain_curve(chain, x_max)
     except (ValueError, ValidationError, TypeError, KeyError):
         return None
@@ -359,9 +326,7 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
         st = blank_diagnose_form()
         st.add_error("file", DIAGNOSE_LABELS["file"], p.detail)
         return await _diagnose_page(request, st, None, status_code=p.status)
-    fields = _text_fields(form)
-    f = parse_diagnose_form(fields, files.get("file"))
-    await form.close()
+    f = parse_diagnose_form(form, files.get("file"))
     if f.req is None:
         return await _diagnose_page(request, f.state, None, status_code=422)
     try:
@@ -376,8 +341,8 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
         out,
         (m.freq_hz, m.amplitude),
         stored,
-        fields.get("amplitude_unit", ""),
-        fields.get("amplitude_kind", "peak"),
+        form.get("amplitude_unit", ""),
+        form.get("amplitude_kind", "peak"),
     )
     saved = None
     if f.share:
@@ -388,7 +353,7 @@ async def diagnose_submit(request: Request) -> HTMLResponse:
             p = as_problem(exc)
             return error_page(request, p)
     elif f.pasted:
-        ctx["share_inputs"] = share_fields(fields, DIAGNOSE_TEXTS)
+        ctx["share_inputs"] = share_fields(form, DIAGNOSE_TEXTS)
     _keep_pasted(f.state, DIAGNOSE_TEXTS)
     return await _diagnose_page(request, f.state, ctx, saved=saved)
 
@@ -507,9 +472,7 @@ async def compare_submit(request: Request) -> HTMLResponse:
         st = blank_compare_form()
         st.add_error("a_file", COMPARE_LABELS["a_file"], p.detail)
         return await _compare_page(request, st, None, status_code=p.status)
-    fields = _text_fields(form)
-    f = parse_compare_form(fields, {k[0]: v for k, v in files.items()})
-    await form.close()
+    f = parse_compare_form(form, {k[0]: v for k, v in files.items()})
     if f.req is None:
         return await _compare_page(request, f.state, None, status_code=422)
     try:
@@ -530,10 +493,9 @@ async def compare_submit(request: Request) -> HTMLResponse:
             return error_page(request, p)
     else:
         if f.rows and all(f.pasted[r] for r in f.rows):
-            ctx["share_inputs"] = share_fields(fields, COMPARE_TEXTS)
+            ctx["share_inputs"] = share_fields(form, COMPARE_TEXTS)
         ctx["share_hint"] = ctx["share_inputs"] is None
-    for s in SIDES:
-        f.state.values.pop(f"{s}_spectrum_text", None)
+    _keep_pasted(f.state, COMPARE_TEXTS)
     return await _compare_page(request, f.state, ctx, saved=saved)
 
 
@@ -579,7 +541,7 @@ async def share(request: Request) -> HTMLResponse:
     page's form fields travel in the form) or the demo diagnosis (made by the app)."""
     settings: Settings = request.app.state.settings
     try:
-        form = await read_share_form(request)
+        form = await read_page_form(request)
         kind = str(form.get("kind", ""))
         title = str(form.get("title", "")).strip()[:200] or None
         if kind == "fold":
@@ -611,13 +573,11 @@ async def share(request: Request) -> HTMLResponse:
     return _render(request, "shared.html", {"active": "", "saved": saved, "kind": kind})
 
 
-async def read_share_form(request: Request) -> FormData:
-    """A share action's small form (no files); 400 when it cannot be read."""
+async def read_page_form(request: Request) -> dict[str, str]:
+    """A page's form without files (text fields only); 400 when it cannot be read."""
     settings: Settings = request.app.state.settings
-    try:
-        return await request.form(max_files=0, max_fields=8, max_part_size=settings.max_body_bytes)
-    except Exception as exc:  # malformed or oversized form
-        raise Problem(400, f"the form cannot be read: {exc}") from exc
+    text, _ = await read_form(request, (), settings.max_body_bytes, PAGE_FORM)
+    return text
 
 
 async def recompute_shared(

@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 
 from ..core.chain import Chain
+from ..core.folding import fold_line
 from .display import DEFAULT_BUCKETS, minmax_decimate
 
 __all__ = [
@@ -25,10 +26,10 @@ __all__ = [
     "chain_gain_curve",
     "compare_spectra",
     "diagnosis_folding_diagram",
+    "fold_axis_end_hz",
     "folding_diagram",
     "measured_spectrum",
     "predicted_spectrum",
-    "zone_count",
 ]
 
 #: Foldwise's palette (shared with static/foldwise.css).
@@ -87,10 +88,10 @@ def _axis(title: str, **extra: Any) -> dict[str, Any]:
     return out
 
 
-def zone_count(max_freq_hz: float, rate_hz: float) -> int:
-    """Number of Nyquist zones of ``rate_hz`` needed to reach ``max_freq_hz`` (at least 2)."""
-    nyq = rate_hz / 2.0
-    return max(2, math.ceil(max_freq_hz / nyq - 1e-9))
+def fold_axis_end_hz(top_hz: float, rate_hz: float) -> float:
+    """End of the true-frequency axis: the zone edge past ``top_hz`` plus a 3 % margin."""
+    true_hz, _ = fold_line(top_hz * 1.03, rate_hz)
+    return float(true_hz[-1])
 
 
 def chain_gain_curve(chain: Chain, max_freq_hz: float, points: int = 800) -> dict[str, list[float]]:
@@ -221,12 +222,11 @@ def folding_diagram(
     nyq = rate / 2.0
     tones = prediction["tones"]
     top = max([t["freq_hz"] for t in tones] + [rate])
-    zones = zone_count(top * 1.03, rate)
-    x_max = zones * nyq
-
-    # The fold line is exactly piecewise linear: 0 at even multiples of fs/2, fs/2 at odd.
-    vx = [k * nyq for k in range(zones + 1)]
-    vy = [0.0 if k % 2 == 0 else nyq for k in range(zones + 1)]
+    corner_x, corner_y = fold_line(top * 1.03, rate)
+    zones = len(corner_x) - 1
+    x_max = float(corner_x[-1])
+    vx = corner_x.tolist()
+    vy = corner_y.tolist()
     data: list[dict[str, Any]] = [
         {
             "type": "scatter",
@@ -280,8 +280,8 @@ def folding_diagram(
                     "name": f"zone {k + 1}",
                     "xref": "x",
                     "yref": "paper",
-                    "x0": k * nyq,
-                    "x1": (k + 1) * nyq,
+                    "x0": vx[k],
+                    "x1": vx[k + 1],
                     "y0": 0,
                     "y1": 1,
                     "fillcolor": COLOURS["zone_even"] if k % 2 else "rgba(0,0,0,0)",
@@ -291,7 +291,7 @@ def folding_diagram(
             )
             annotations.append(
                 {
-                    "x": (k + 0.5) * nyq,
+                    "x": (vx[k] + vx[k + 1]) / 2.0,
                     "y": 1.0,
                     "xref": "x",
                     "yref": "paper",

@@ -32,6 +32,7 @@ from .diagnose_pages import (
     compare_result_context,
     diagnose_result_context,
     error_page,
+    read_page_form,
     request_json,
 )
 from .diagnose_pages import router as diagnose_router
@@ -110,7 +111,7 @@ def fold_result_context(req: FoldIn, out: dict[str, Any]) -> dict[str, Any]:
     chain = chain_from_request(req)
     rate = float(out["final_rate_hz"])
     top = max([t["freq_hz"] for t in out["tones"]] + [rate])
-    x_max = figures.zone_count(top * 1.03, rate) * rate / 2.0
+    x_max = figures.fold_axis_end_hz(top, rate)
     gain = figures.chain_gain_curve(chain, x_max)
     return {
         "out": out,
@@ -167,8 +168,10 @@ async def predict_page(request: Request, demo: str | None = None) -> HTMLRespons
 
 @router.post("/predict", response_class=HTMLResponse)
 async def predict_submit(request: Request) -> HTMLResponse:
-    data = await request.form()
-    form = {k: v for k, v in data.items() if isinstance(v, str)}
+    try:
+        form = await read_page_form(request)
+    except ANSWERABLE as exc:
+        return error_page(request, as_problem(exc))
     return await _predict_response(request, form)
 
 

@@ -20,6 +20,9 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
+from ..core.folding import fold_unchecked
 from .figures import COLOURS, FONT
 
 __all__ = ["MAX_DRAWN_LINES", "runup_figure"]
@@ -48,6 +51,11 @@ class _Point:
     multiple: int | None  # fold points: k of k·fs/2
 
 
+def _corner_hz(k: int, half: float) -> float:
+    """Where the true frequency k·fs/2 shows: fs/2 for odd k, 0 Hz for even k (the fold)."""
+    return float(fold_unchecked(np.array([k * half]), 2.0 * half)[0])
+
+
 def _points(xs: Sequence[float], line: Mapping[str, Any], use_rpm: bool, half: float) -> list:
     """Grid points and fold points of one line, in order of speed."""
     pts = [
@@ -62,8 +70,7 @@ def _points(xs: Sequence[float], line: Mapping[str, Any], use_rpm: bool, half: f
         if x is None or not lo < x < hi:
             continue
         k = int(f["multiple"])
-        # True frequency k·fs/2 shows at fs/2 for odd k and at 0 Hz for even k.
-        folds.append(_Point(float(x), half if k % 2 else 0.0, None, k))
+        folds.append(_Point(float(x), _corner_hz(k, half), None, k))
     if not folds:
         return pts
     grid_x = [p.x for p in pts]
@@ -221,7 +228,7 @@ def runup_figure(plan: Mapping[str, Any], max_lines: int = MAX_DRAWN_LINES) -> d
                 continue
             k = int(f["multiple"])
             fold_x.append(float(x))
-            fold_y.append(half if k % 2 else 0.0)
+            fold_y.append(_corner_hz(k, half))
             at = f"{x:,.0f} rpm" if use_rpm else f"{x:.3f} × nominal"
             fold_text.append(
                 f"<b>{name}</b><br>true frequency crosses {k}·fs/2 = {_fmt_hz(f['true_hz'])}"

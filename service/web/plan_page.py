@@ -31,7 +31,7 @@ from ..contract.plan import PlanIn
 from ..demo import demo_plan_request
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..usecases.plan import plan_payload
-from .diagnose_pages import error_page, read_share_form, recompute_shared, save_result
+from .diagnose_pages import error_page, read_page_form, recompute_shared, save_result
 from .forms import (
     FIELD_LABELS,
     NUMBER_KINDS,
@@ -66,7 +66,6 @@ router = APIRouter(include_in_schema=False)
 #: Crossings listed in the table; all of them are on the plot (and in the JSON answer).
 MAX_TABLE_CROSSINGS = 300
 #: Form fields the plan form may send (sources add a few per row).
-MAX_FORM_FIELDS = 2000
 
 PLAN_WINDOWS = [
     ("hann", "Hann"),
@@ -534,14 +533,10 @@ async def plan_form(request: Request, demo: str | None = None) -> HTMLResponse:
 
 @router.post("/plan", response_class=HTMLResponse)
 async def plan_submit(request: Request) -> HTMLResponse:
-    settings: Settings = request.app.state.settings
     try:
-        data = await request.form(
-            max_files=0, max_fields=MAX_FORM_FIELDS, max_part_size=settings.max_body_bytes
-        )
-    except Exception as exc:  # malformed or oversized form
-        return error_page(request, Problem(400, f"the form cannot be read: {exc}"))
-    form = {k: v for k, v in data.items() if isinstance(v, str)}
+        form = await read_page_form(request)
+    except ANSWERABLE as exc:
+        return error_page(request, as_problem(exc))
     return await _answer(request, parse_plan_form(form))
 
 
@@ -555,7 +550,7 @@ async def plan_share(request: Request) -> HTMLResponse:
     """Save a plan under a link: its request travels in the form and is recomputed."""
     settings: Settings = request.app.state.settings
     try:
-        form = await read_share_form(request)
+        form = await read_page_form(request)
         title = str(form.get("title", "")).strip()[:200] or None
         parts = await recompute_shared(_share_plan, str(form.get("request", "")), settings)
         saved = await save_result(request, "plan", parts, title)

@@ -33,7 +33,8 @@ class TestFoldEndpoint:
         out = r.json()
         assert out["nyquist_hz"] == 5000
         a, b, c = out["tones"]
-        # Source: DESIGN.md §5: 7.3 kHz → 2.7 kHz (zone 2, inverted); 13.2 kHz → 3.2 kHz (zone 3).
+        # Source: Oppenheim & Schafer, DTSP, sec. 4.2 (fold) and Lyons, Understanding DSP,
+        # sec. 2.3 (zones): 7.3 kHz → 2.7 kHz (zone 2, inverted); 13.2 kHz → 3.2 kHz (zone 3).
         assert (a["apparent_hz"], a["zone"], a["inverted"], a["aliased"]) == (2700, 2, True, True)
         assert (b["apparent_hz"], b["zone"], b["inverted"]) == (3200, 3, False)
         assert (c["apparent_hz"], c["aliased"]) == (1000, False)
@@ -62,7 +63,7 @@ class TestFoldEndpoint:
             "tones": [{"label": "x", "freq_hz": 5000, "amplitude": 2.0}],
         }
         t = _fold(client, body).json()["tones"][0]
-        # Source: Butterworth |H|² = 1/(1+(f/fc)^(2N)); N=4 at 2·fc → 24.10 dB (DESIGN.md §5).
+        # Source: Butterworth |H|² = 1/(1+(f/fc)^(2N)); N=4 at 2·fc → 24.10 dB (Butterworth, 1930).
         assert t["attenuation_db"] == pytest.approx(24.10, abs=0.01)
         assert t["apparent_amplitude"] == pytest.approx(2.0 * 10 ** (-24.10 / 20), rel=1e-3)
 
@@ -212,7 +213,8 @@ class TestFoldErrors:
         r = _fold(client, body)
         assert r.status_code == 422
         p = r.json()
-        assert p["errors"][0]["field"] == "chain" and "decimat" in p["detail"].lower()
+        # The first stage (a decimation with nothing sampled yet) is the one to move.
+        assert p["errors"][0]["field"] == "chain[0]" and "decimat" in p["detail"].lower()
 
     def test_unknown_field(self, client: TestClient) -> None:
         r = _fold(

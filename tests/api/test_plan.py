@@ -1,7 +1,7 @@
 """POST /api/v1/plan through the real application.
 
 The recommendation is checked against a reference computed here, not through
-``service.core.planning``: true frequencies on a dense rpm grid, folded with
+the core's plan search: true frequencies on a dense rpm grid, folded with
 ``service.core.folding.fold``, attenuated by the analog filter designed with
 ``scipy.signal`` and evaluated with ``scipy.signal.freqs``.
 """
@@ -367,7 +367,8 @@ class TestPlanErrors:
     @pytest.mark.parametrize(
         ("change", "field"),
         [
-            ({"band_hz": [5000, 0]}, "band_hz"),
+            ({"band_hz": [5000, 0]}, "band_hz[1]"),  # a band ending at 0 Hz is empty
+            ({"band_hz": [5000, 1000]}, "band_hz"),
             ({"band_hz": [-1, 5000]}, "band_hz[0]"),
             ({"band_hz": [0]}, "band_hz[1]"),
             ({"floor": 0.01}, "floor"),
@@ -385,7 +386,10 @@ class TestPlanErrors:
             ({"filters": []}, "filters"),
             ({"filters": [{"family": "butterworth"}]}, "filters[0].order"),
             ({"filters": [{"family": "none", "order": 4}]}, "filters[0].order"),
-            ({"filters": [{"family": "elliptic", "order": 4, "ripple_db": 0.1}]}, "filters[0]"),
+            (
+                {"filters": [{"family": "elliptic", "order": 4, "ripple_db": 0.1}]},
+                "filters[0].stop_atten_db",
+            ),
             ({"filters": [{"family": "butterworth", "order": 2}] * 51}, "filters"),
             (
                 {

@@ -108,7 +108,8 @@ def test_unreachable_database_is_503(tmp_path: Path) -> None:
 def test_save_diagnosis_by_kind(client: TestClient) -> None:
     # A diagnose request saved through the generic endpoint keeps its spectrum apart.
     f = np.arange(0, 5001, 10.0)
-    # Reference: a 7.3 kHz tone sampled at 10 kS/s reads 2.7 kHz (DESIGN.md §5).
+    # Reference: a 7.3 kHz tone sampled at 10 kS/s reads 2.7 kHz (Oppenheim & Schafer,
+    # DTSP, sec. 4.2).
     amp = 1e-4 + np.where(np.abs(f - 2700) < 1, 0.5, 0.0)
     req = {
         "sample_rate_hz": 10_000,

@@ -64,7 +64,7 @@ class TestDiagnoseInBrowser:
             "Array.from(document.querySelector('#measured-figure').data)"
             ".filter(t => t.name === 'alias')[0].x"
         )
-        # Reference: fold(7.3 kHz, 10 kS/s) = 2.7 kHz (DESIGN.md §5).
+        # Reference: fold(7.3 kHz, 10 kS/s) = 2.7 kHz (Oppenheim & Schafer, DTSP, sec. 4.2).
         assert len(alias_x) == 1 and abs(alias_x[0] - 2700.0) < 5.0
         # The label is text in the source and explanation cells, never markup.
         cells = page.locator("table.peaks td").filter(has_text="<script>alert(1)</script>")

@@ -51,12 +51,14 @@ from typing import Any
 import numpy as np
 import scipy.signal
 
-from service.core.attribution import Attribution, attribute
+from service.core.attribution import attribute
+from service.core.attribution_model import Attribution
 from service.core.calibration import calibrate
-from service.core.chain import AnalogLowpass, Chain, Decimate, Sample
+from service.core.chain import Chain
 from service.core.harmonics import Family, find_families
 from service.core.sources import expand_sources, source_from_dict
 from service.core.spectrum import find_peaks, noise_floor
+from service.core.stages import AnalogLowpass, Decimate, Sample
 from service.core.tones import ToneSet, strings
 
 from .simulate import SimChain, decimate_taps, simulate_capture
@@ -156,7 +158,7 @@ def _sources(rng: np.random.Generator, rpm: float) -> list[dict[str, Any]]:
 
 
 def _fold(f: np.ndarray, fs: float) -> np.ndarray:
-    """Apparent frequency (DESIGN.md §2; Oppenheim & Schafer sec. 4.2)."""
+    """Apparent frequency (Oppenheim & Schafer sec. 4.2)."""
     return np.abs(f - fs * np.round(f / fs))
 
 

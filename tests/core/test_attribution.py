@@ -11,22 +11,15 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from service.core.attribution import (
-    MIN_CONFIDENCE,
-    Attribution,
-    attribute,
-    frequency_tolerance_hz,
-)
-from service.core.chain import AnalogLowpass, Chain, Decimate, DigitalLowpass, Sample
+from service.core.attribution import attribute, frequency_tolerance_hz
+from service.core.attribution_model import MIN_CONFIDENCE, Attribution
+from service.core.chain import Chain
+from service.core.electrical_sources import PwmCarrier
+from service.core.fixed_sources import ExplicitTones
 from service.core.harmonics import find_families
-from service.core.sources import (
-    BladePass,
-    ExplicitTones,
-    GearMesh,
-    PwmCarrier,
-    Shaft,
-    expand_sources,
-)
+from service.core.rotating_sources import BladePass, GearMesh, Shaft
+from service.core.sources import expand_sources
+from service.core.stages import AnalogLowpass, Decimate, DigitalLowpass, Sample
 from service.core.tones import ToneSet
 
 from .simulate import (

@@ -188,7 +188,8 @@ class TestCalibrate:
 
 class TestHarnessTruth:
     def test_fold(self):
-        # Source: DESIGN.md §5 — fs = 10 kHz: 7.3 kHz -> 2.7 kHz, 13.2 kHz -> 3.2 kHz.
+        # Source: Oppenheim & Schafer, DTSP, sec. 4.2 — fs = 10 kHz: 7.3 kHz -> 2.7 kHz,
+        # 13.2 kHz -> 3.2 kHz.
         np.testing.assert_allclose(_fold(np.array([7300.0, 13200.0]), 10_000.0), [2700, 3200])
 
     def test_right(self):

@@ -11,12 +11,13 @@ import numpy as np
 import pytest
 
 from service.core import checks
-from service.core.chain import Chain, Decimate, SensorResonance
+from service.core.chain import Chain
 from service.core.errors import InputError
 from service.core.filters import analog_attenuation_db
 from service.core.folding import fold
 from service.core.plan_model import API_FAILURE, REJECTION_CODES
-from service.core.sources import GearMesh, Shaft
+from service.core.rotating_sources import GearMesh, Shaft
+from service.core.stages import Decimate, SensorResonance
 
 
 def _refusal(fn, *args, **kwargs) -> InputError:  # type: ignore[no-untyped-def]

@@ -8,7 +8,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from service.core.errors import InputError
-from service.core.folding import fold, fold_intervals, is_inverted, nyquist_zone
+from service.core.folding import fold, fold_intervals, fold_line, is_inverted, nyquist_zone
 from service.core.spectrum import amplitude_spectrum
 
 
@@ -105,6 +105,37 @@ class TestNyquistZone:
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match="sample_rate_hz"):
             nyquist_zone(1.0, 0.0)
+
+
+class TestFoldLine:
+    def test_corners_of_seven_zones(self) -> None:
+        # Source: Lyons, Understanding DSP, 3rd ed., sec. 2.3: zone k covers
+        # ((k-1)·fs/2, k·fs/2], so 3,100 Hz at 1 kS/s lies in zone 7, which ends at 3,500 Hz;
+        # the apparent frequency is 0 Hz at even multiples of fs/2 and fs/2 at odd ones.
+        x, y = fold_line(3100.0, 1000.0)
+        assert x.tolist() == [0.0, 500.0, 1000.0, 1500.0, 2000.0, 2500.0, 3000.0, 3500.0]
+        assert y.tolist() == [0.0, 500.0, 0.0, 500.0, 0.0, 500.0, 0.0, 500.0]
+
+    def test_at_least_two_zones(self) -> None:
+        # Common practice: a folding diagram shows the first alias zone even when empty.
+        x, _ = fold_line(10.0, 1000.0)
+        assert x.tolist() == [0.0, 500.0, 1000.0]
+
+    @settings(max_examples=60, deadline=None)
+    @given(
+        fs=st.floats(1.0, 1e6),
+        top_ratio=st.floats(0.0, 40.0),
+    )
+    def test_line_through_corners_is_the_fold(self, fs: float, top_ratio: float) -> None:
+        # Reference: the apparent frequency is the distance to the nearest multiple of fs
+        # (Oppenheim & Schafer, Discrete-Time Signal Processing, 3rd ed., sec. 4.2),
+        # computed here by brute force over the multiples, not with the project's fold.
+        x, y = fold_line(top_ratio * fs, fs)
+        assert x[-1] >= top_ratio * fs
+        f = np.linspace(0.0, x[-1], 997)
+        k = np.arange(0, int(np.ceil(x[-1] / fs)) + 2)
+        brute = np.min(np.abs(f[:, None] - k[None, :] * fs), axis=1)
+        assert np.allclose(np.interp(f, x, y), brute, rtol=0, atol=1e-9 * fs)
 
 
 class TestFoldIntervals:

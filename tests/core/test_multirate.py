@@ -89,7 +89,7 @@ def group_near(result, k, freq_hz, tol_hz):
 
 
 def fold_ref(f, fs):
-    # Source: DESIGN.md sec. 2 (and Oppenheim & Schafer sec. 4.2): |f - fs*round(f/fs)|;
+    # Source: Oppenheim & Schafer, DTSP, sec. 4.2: |f - fs*round(f/fs)|;
     # checked against the numpy FFT in TestApparent.
     return np.abs(f - fs * np.rint(f / fs))
 
@@ -436,7 +436,8 @@ class TestManyCaptures:
     def test_with_project_chain(self):
         # The attenuation protocol takes the project's chain as a callable; its value at
         # the candidate is checked against scipy.signal.freqs (reference).
-        from service.core.chain import AnalogLowpass, Chain
+        from service.core.chain import Chain
+        from service.core.stages import AnalogLowpass
 
         flt = AnalogLowpass(family="butterworth", order=2, cutoff_hz=5_000.0)
         tones = [(10_000.0, -6.0)]

@@ -1,4 +1,5 @@
-"""Tests for service.core.planning: planner, record arithmetic, resolution rule, run-ups.
+"""Tests for the plan modules: planner (plan_search), record arithmetic and resolution rule
+(analysis_lines), filter options (filter_catalogue), run-ups (runup).
 
 Main computations are checked against independent references: the folding formula of
 service.core.folding applied point by point, scipy.signal analog designs with
@@ -14,9 +15,17 @@ import numpy as np
 import pytest
 import scipy.signal as sig
 
-from service.core import planning as P
-from service.core.chain import AnalogLowpass, Chain
+from service.core import (
+    analysis_lines,
+    filter_catalogue,
+    plan_common,
+    plan_model,
+    plan_search,
+    runup,
+)
+from service.core.chain import Chain
 from service.core.folding import fold
+from service.core.stages import AnalogLowpass
 from service.core.tones import ToneSet
 
 NOMINAL_RPM = 12_000.0
@@ -26,8 +35,8 @@ SPEEDS = (0.2, 1.0)
 BAND = (0.0, 2000.0)
 RATES = (5120.0, 6400.0, 10240.0, 12800.0, 25600.0)
 FILTERS = (
-    *(P.FilterOption("butterworth", n) for n in (2, 4, 6, 8)),
-    P.FilterOption("chebyshev1", 8, ripple_db=0.5),
+    *(filter_catalogue.FilterOption("butterworth", n) for n in (2, 4, 6, 8)),
+    filter_catalogue.FilterOption("chebyshev1", 8, ripple_db=0.5),
 )
 
 
@@ -61,7 +70,7 @@ def drive_unit_tones() -> ToneSet:
     )
 
 
-def request(**kw: object) -> P.PlanRequest:
+def request(**kw: object) -> plan_model.PlanRequest:
     base: dict[str, object] = dict(
         tones=drive_unit_tones(),
         band_hz=BAND,
@@ -72,10 +81,12 @@ def request(**kw: object) -> P.PlanRequest:
         filters=FILTERS,
     )
     base.update(kw)
-    return P.PlanRequest(**base)  # type: ignore[arg-type]
+    return plan_model.PlanRequest(**base)  # type: ignore[arg-type]
 
 
-def scipy_attenuation_db(f: np.ndarray, opt: P.FilterOption, cutoff: float) -> np.ndarray:
+def scipy_attenuation_db(
+    f: np.ndarray, opt: filter_catalogue.FilterOption, cutoff: float
+) -> np.ndarray:
     """Reference: scipy.signal analog design (ba form) + scipy.signal.freqs."""
     wc = 2 * np.pi * cutoff
     if opt.family == "butterworth":
@@ -91,7 +102,7 @@ def scipy_attenuation_db(f: np.ndarray, opt: P.FilterOption, cutoff: float) -> n
 def brute_force_worst(
     tones: ToneSet,
     fs: float,
-    opt: P.FilterOption,
+    opt: filter_catalogue.FilterOption,
     cutoff: float,
     band: tuple[float, float],
     speeds: np.ndarray,
@@ -109,7 +120,7 @@ def brute_force_worst(
 
 class TestPlan:
     def test_basic(self) -> None:
-        p = P.plan(request())
+        p = plan_search.plan(request())
         tones = drive_unit_tones()
         speeds = np.linspace(*SPEEDS, 2000)
         # Reference level: strongest tone inside the band at some speed (17× at 2.0).
@@ -140,7 +151,7 @@ class TestPlan:
         assert "rpm" in cheaper.reason
 
     def test_every_rejected_option_fails_by_brute_force(self) -> None:
-        p = P.plan(request())
+        p = plan_search.plan(request())
         tones = drive_unit_tones()
         speeds = np.linspace(*SPEEDS, 2000)
         limit = p.limit_db
@@ -155,7 +166,7 @@ class TestPlan:
         assert all(r.sample_rate_hz <= p.sample_rate_hz for r in p.rejected)
 
     def test_tone_reports(self) -> None:
-        p = P.plan(request())
+        p = plan_search.plan(request())
         tones = drive_unit_tones()
         for t in p.tones:
             if not t.aliases_into_band:
@@ -176,19 +187,21 @@ class TestPlan:
     def test_record_and_resolution(self) -> None:
         # The 1× and 2× of the motor are at least 40 Hz apart (0.2 × 200 Hz); with a
         # Hann window (4-bin main lobe) the bins must be <= 10 Hz.
-        p = P.plan(request(resolve=("1×", "2×"), window="hann", averages=10, overlap_pct=50.0))
+        p = plan_search.plan(
+            request(resolve=("1×", "2×"), window="hann", averages=10, overlap_pct=50.0)
+        )
         assert p.required_bin_hz == pytest.approx(40.0 / 4)
         assert p.record.bin_width_hz <= 10.0
         # Smallest standard count: fs/(2.56 · lines) <= 10 Hz.
         assert p.record.lines == min(
-            n for n in P.STANDARD_LINES if p.sample_rate_hz / (2.56 * n) <= 10.0
+            n for n in analysis_lines.STANDARD_LINES if p.sample_rate_hz / (2.56 * n) <= 10.0
         )
 
     def test_edges(self) -> None:
         # Common practice: a test up to 20 kHz needs more than 40 kS/s (span fs/2.56).
         tones = ToneSet.explicit([1000.0, 15000.0], ["a", "b"], amplitude=[1.0, 1.0])
-        p = P.plan(
-            P.PlanRequest(
+        p = plan_search.plan(
+            plan_model.PlanRequest(
                 tones=tones, band_hz=(0, 20000), rejection_db=40, rates_hz=(40960.0, 51200.0)
             )
         )
@@ -205,10 +218,10 @@ class TestPlan:
         # 7.3 kHz at 10 kS/s folds to 10 − 7.3 = 2.7 kHz (Oppenheim & Schafer 2010, sec. 4.2); band
         # edge 2.7 kHz exactly.
         tones = ToneSet.explicit([1000.0, 7300.0], ["direct", "alias"], amplitude=[1, 1])
-        opt = P.FilterOption("butterworth", 4)
-        with pytest.raises(P.PlanImpossible):
-            P.plan(
-                P.PlanRequest(
+        opt = filter_catalogue.FilterOption("butterworth", 4)
+        with pytest.raises(plan_common.PlanImpossible):
+            plan_search.plan(
+                plan_model.PlanRequest(
                     tones=tones,
                     band_hz=(0, 2700),
                     rejection_db=60,
@@ -216,8 +229,8 @@ class TestPlan:
                     filters=(opt,),
                 )
             )
-        p = P.plan(
-            P.PlanRequest(
+        p = plan_search.plan(
+            plan_model.PlanRequest(
                 tones=tones, band_hz=(0, 2700), rejection_db=30, rates_hz=(10000.0,), filters=(opt,)
             )
         )
@@ -228,19 +241,24 @@ class TestPlan:
 
     def test_unknown_amplitude_assumed_at_strongest(self) -> None:
         tones = ToneSet.explicit([1000.0, 7300.0], ["direct", "alias"], amplitude=[0.5, np.nan])
-        p = P.plan(
-            P.PlanRequest(tones=tones, band_hz=(0, 2000), rejection_db=20, rates_hz=(10000.0,))
+        p = plan_search.plan(
+            plan_model.PlanRequest(
+                tones=tones, band_hz=(0, 2000), rejection_db=20, rates_hz=(10000.0,)
+            )
         )
         assert p.tones[1].amplitude_assumed
         assert any("assumed" in note for note in p.residual_risk)
 
     def test_impossible_suggestions(self) -> None:
-        with pytest.raises(P.PlanImpossible) as err:
-            P.plan(
+        with pytest.raises(plan_common.PlanImpossible) as err:
+            plan_search.plan(
                 request(
                     rejection_db=125.0,
                     rates_hz=(5120.0, 6400.0, 10240.0),
-                    filters=(P.FilterOption("butterworth", 4), P.FilterOption("butterworth", 8)),
+                    filters=(
+                        filter_catalogue.FilterOption("butterworth", 4),
+                        filter_catalogue.FilterOption("butterworth", 8),
+                    ),
                 )
             )
         e = err.value
@@ -259,13 +277,13 @@ class TestPlan:
         speeds = np.linspace(*SPEEDS, 2000)
         limit = 20 * np.log10(2.0) - 125.0
         worst, _, _ = brute_force_worst(
-            tones, offered, P.FilterOption("butterworth", 8), 2000.0, BAND, speeds
+            tones, offered, filter_catalogue.FilterOption("butterworth", 8), 2000.0, BAND, speeds
         )
         assert worst <= limit
         worst, _, _ = brute_force_worst(
             tones,
             10240.0,
-            P.FilterOption("butterworth", int(order.group(1))),
+            filter_catalogue.FilterOption("butterworth", int(order.group(1))),
             2000.0,
             BAND,
             speeds,
@@ -274,7 +292,7 @@ class TestPlan:
         worst, _, _ = brute_force_worst(
             tones,
             10240.0,
-            P.FilterOption("butterworth", int(order.group(1)) - 1),
+            filter_catalogue.FilterOption("butterworth", int(order.group(1)) - 1),
             2000.0,
             BAND,
             speeds,
@@ -282,51 +300,51 @@ class TestPlan:
         assert worst > limit
 
     def test_impossible_span_and_resolution(self) -> None:
-        with pytest.raises(P.PlanImpossible) as err:
-            P.plan(request(rates_hz=(2560.0, 5000.0)))
+        with pytest.raises(plan_common.PlanImpossible) as err:
+            plan_search.plan(request(rates_hz=(2560.0, 5000.0)))
         assert "5.12 kS/s" in err.value.suggestions[0]
-        with pytest.raises(P.PlanImpossible) as err:
-            P.plan(request(bin_width_hz=0.001, lines_options=(100, 200)))
+        with pytest.raises(plan_common.PlanImpossible) as err:
+            plan_search.plan(request(bin_width_hz=0.001, lines_options=(100, 200)))
         assert "resolution" in str(err.value)
         assert any("analysis lines" in s for s in err.value.suggestions)
 
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match="rates_hz is empty"):
-            P.plan(request(rates_hz=()))
+            plan_search.plan(request(rates_hz=()))
         with pytest.raises(ValueError, match=r"band_hz\[0\]=-5"):
-            P.plan(request(band_hz=(-5, 100)))
+            plan_search.plan(request(band_hz=(-5, 100)))
         with pytest.raises(ValueError, match=r"band_hz\[1\]"):
-            P.plan(request(band_hz=(500, 100)))
+            plan_search.plan(request(band_hz=(500, 100)))
         with pytest.raises(ValueError, match=r"speed_range\[1\]=0.5 is below"):
-            P.plan(request(speed_range=(1.0, 0.5)))
+            plan_search.plan(request(speed_range=(1.0, 0.5)))
         with pytest.raises(ValueError, match="exactly one of rejection_db"):
-            P.plan(request(floor=0.01))
+            plan_search.plan(request(floor=0.01))
         with pytest.raises(ValueError, match="rates_hz\\[1\\]=-1"):
-            P.plan(request(rates_hz=(1000.0, -1.0)))
+            plan_search.plan(request(rates_hz=(1000.0, -1.0)))
         with pytest.raises(ValueError, match="matches no tone"):
-            P.plan(request(resolve=("1×", "99×")))
+            plan_search.plan(request(resolve=("1×", "99×")))
         with pytest.raises(ValueError, match="window="):
-            P.plan(request(window="triangle"))
+            plan_search.plan(request(window="triangle"))
         with pytest.raises(ValueError, match="filters is empty"):
-            P.plan(request(filters=()))
+            plan_search.plan(request(filters=()))
         with pytest.raises(ValueError, match="order=0"):
-            P.FilterOption("butterworth", 0)
+            filter_catalogue.FilterOption("butterworth", 0)
         with pytest.raises(ValueError, match=r"cutoff_fraction=0\.7"):
-            P.FilterOption("butterworth", 4, cutoff_fraction=0.7)
+            filter_catalogue.FilterOption("butterworth", 4, cutoff_fraction=0.7)
         no_amp = ToneSet.explicit([100.0], ["a"])
         with pytest.raises(ValueError, match="floor needs tone amplitudes"):
-            P.plan(P.PlanRequest(tones=no_amp, band_hz=(0, 200), floor=0.1))
+            plan_search.plan(plan_model.PlanRequest(tones=no_amp, band_hz=(0, 200), floor=0.1))
 
 
 class TestFilterOption:
     def test_basic(self) -> None:
         # Cost order: poles first, then Butterworth before Chebyshev before elliptic.
         opts = [
-            P.FilterOption("elliptic", 4, ripple_db=0.1, stop_atten_db=80),
-            P.FilterOption("chebyshev1", 4, ripple_db=0.5),
-            P.FilterOption("butterworth", 6),
-            P.FilterOption("butterworth", 4),
-            P.FilterOption("none"),
+            filter_catalogue.FilterOption("elliptic", 4, ripple_db=0.1, stop_atten_db=80),
+            filter_catalogue.FilterOption("chebyshev1", 4, ripple_db=0.5),
+            filter_catalogue.FilterOption("butterworth", 6),
+            filter_catalogue.FilterOption("butterworth", 4),
+            filter_catalogue.FilterOption("none"),
         ]
         ranked = sorted(opts, key=lambda o: o.cost())
         assert [(o.family, o.order) for o in ranked] == [
@@ -339,23 +357,23 @@ class TestFilterOption:
 
     def test_edges(self) -> None:
         # Chebyshev II "at the band edge": its -3 dB point sits on the edge.
-        opt = P.FilterOption("chebyshev2", 6, stop_atten_db=60)
+        opt = filter_catalogue.FilterOption("chebyshev2", 6, stop_atten_db=60)
         cut = opt.cutoff_for(10000.0, (0.0, 1000.0))
         assert cut is not None
         # Reference: scipy.signal.cheby2 + freqs.
         b, a = sig.cheby2(6, 60, 2 * np.pi * cut, analog=True)
         _, h = sig.freqs(b, a, worN=[2 * np.pi * 1000.0])
         assert -20 * np.log10(abs(h[0])) == pytest.approx(3.0103, abs=1e-6)
-        frac = P.FilterOption("butterworth", 4, cutoff_fraction=0.25)
+        frac = filter_catalogue.FilterOption("butterworth", 4, cutoff_fraction=0.25)
         assert frac.cutoff_for(51200.0, (0.0, 1.0)) == pytest.approx(12800.0)
 
     def test_cutoff_following_rate(self) -> None:
         # A Butterworth at fs/4 taking 3 dB at fs/4: band 0-2 kHz passes only where
         # fs/4 >= 2 kHz... and the band loss check rejects lower rates.
         tones = ToneSet.explicit([1000.0, 30000.0], ["a", "b"], amplitude=[1.0, 1.0])
-        opt = P.FilterOption("butterworth", 8, cutoff_fraction=0.25)
-        p = P.plan(
-            P.PlanRequest(
+        opt = filter_catalogue.FilterOption("butterworth", 8, cutoff_fraction=0.25)
+        p = plan_search.plan(
+            plan_model.PlanRequest(
                 tones=tones,
                 band_hz=(0, 2000),
                 rejection_db=40,
@@ -374,10 +392,10 @@ class TestResolutionBins:
     def test_basic(self) -> None:
         # Source: J. O. Smith, Spectral Audio Signal Processing, "Resolving sinusoids";
         # Harris, Proc. IEEE 66(1) 1978: main lobe of an L-term cosine window = 2L bins.
-        assert P.resolution_bins("rectangular") == 2
-        assert P.resolution_bins("hann") == 4
-        assert P.resolution_bins("hamming") == 4
-        assert P.resolution_bins("blackmanharris") == 8
+        assert analysis_lines.resolution_bins("rectangular") == 2
+        assert analysis_lines.resolution_bins("hann") == 4
+        assert analysis_lines.resolution_bins("hamming") == 4
+        assert analysis_lines.resolution_bins("blackmanharris") == 8
 
     @pytest.mark.parametrize(
         "name,scipy_name",
@@ -396,7 +414,9 @@ class TestResolutionBins:
         mag = np.abs(np.fft.rfft(w, n * pad))
         d = np.diff(mag)
         first_min = int(np.flatnonzero((d[:-1] < 0) & (d[1:] >= 0))[0]) + 1
-        assert 2 * first_min / pad == pytest.approx(P.resolution_bins(name), abs=1 / pad)
+        assert 2 * first_min / pad == pytest.approx(
+            analysis_lines.resolution_bins(name), abs=1 / pad
+        )
 
     def test_hann_two_tones(self) -> None:
         # Reference: numpy FFT of two sampled sines through a Hann window, 32× padded.
@@ -413,7 +433,7 @@ class TestResolutionBins:
             pk, _ = sig.find_peaks(seg, height=0.1 * seg.max())
             return (pk + lo) / pad - f1
 
-        width = P.resolution_bins("hann")
+        width = analysis_lines.resolution_bins("hann")
         # At the main-lobe width and beyond: two peaks for every relative phase, each
         # within one interpolation step of its tone.
         for sep in (width, width + 0.5):
@@ -427,41 +447,41 @@ class TestResolutionBins:
 
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match="window='kaiser'"):
-            P.resolution_bins("kaiser")
+            analysis_lines.resolution_bins("kaiser")
 
 
 class TestRecordLength:
     def test_basic(self) -> None:
         # Common practice: span = fs/2.56, bin width = span/lines, N = 2.56·lines.
-        r = P.record_length(51200.0, 3200)
+        r = analysis_lines.record_length(51200.0, 3200)
         assert r.span_hz == pytest.approx(20000.0)
         assert r.bin_width_hz == pytest.approx(20000.0 / 3200)
         assert r.samples == 8192
         assert r.record_s == pytest.approx(3200 / 20000.0)  # T = lines / span = 1 / bin
         # Welch averaging: 10 records overlapped 50 % need N + 9·N/2 samples.
-        r = P.record_length(51200.0, 3200, averages=10, overlap_pct=50.0)
+        r = analysis_lines.record_length(51200.0, 3200, averages=10, overlap_pct=50.0)
         assert r.total_s == pytest.approx((8192 + 9 * 4096) / 51200.0)
 
     def test_edges(self) -> None:
-        r = P.record_length(1000.0, 1, averages=1, overlap_pct=99.9)
+        r = analysis_lines.record_length(1000.0, 1, averages=1, overlap_pct=99.9)
         assert r.samples == 3 and r.total_s == pytest.approx(3 / 1000.0)
 
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match="overlap_pct=100"):
-            P.record_length(1000.0, 100, overlap_pct=100)
+            analysis_lines.record_length(1000.0, 100, overlap_pct=100)
         with pytest.raises(ValueError, match="lines=0"):
-            P.record_length(1000.0, 0)
+            analysis_lines.record_length(1000.0, 0)
         with pytest.raises(ValueError, match="sample_rate_hz=0"):
-            P.record_length(0.0, 100)
+            analysis_lines.record_length(0.0, 100)
 
 
 class TestSpeedRange:
     def test_basic(self) -> None:
-        assert P.speed_range_from_tolerance(5) == pytest.approx((0.95, 1.05))
+        assert plan_common.speed_range_from_tolerance(5) == pytest.approx((0.95, 1.05))
 
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match="tolerance_pct=-1"):
-            P.speed_range_from_tolerance(-1)
+            plan_common.speed_range_from_tolerance(-1)
 
 
 def brute_crossings(
@@ -483,7 +503,7 @@ class TestRunUp:
         tones = drive_unit_tones()
         chain = Chain.shorthand(5120.0, AnalogLowpass("butterworth", 2, 2000.0))
         grid = np.linspace(0.05, 1.0, 400)
-        ru = P.run_up(
+        ru = runup.run_up(
             tones, chain, grid, nominal_rpm=NOMINAL_RPM, orders_of_interest=["1×", "2×", "3×", 4.5]
         )
         assert ru.apparent_hz.shape == (400, 9)
@@ -518,7 +538,7 @@ class TestRunUp:
             amplitude=[1.0],
         )
         chain = Chain.shorthand(12800.0)
-        ru = P.run_up(tones, chain, rpm=np.linspace(600, 12000, 50), nominal_rpm=NOMINAL_RPM)
+        ru = runup.run_up(tones, chain, rpm=np.linspace(600, 12000, 50), nominal_rpm=NOMINAL_RPM)
         # Reference: 34 × rpm/60 = k × 6400 Hz → rpm = k × 6400 × 60 / 34.
         k = np.arange(1, 4)
         rpm = k * 6400 * 60 / 34
@@ -534,7 +554,7 @@ class TestRunUp:
         # Two fixed tones whose folds sit 1 Hz apart: no sign change, but within a bin.
         tones = ToneSet.explicit([2000.0, 10801.0], ["direct", "alias"], amplitude=[1, 1])
         chain = Chain.shorthand(12800.0)
-        ru = P.run_up(tones, chain, [0.5, 1.0, 1.5], lines=3200)
+        ru = runup.run_up(tones, chain, [0.5, 1.0, 1.5], lines=3200)
         assert ru.tolerance_hz == pytest.approx(12800 / 8192)
         assert ru.crossings.total >= 1
         assert ru.crossings.touching.all()
@@ -544,12 +564,12 @@ class TestRunUp:
         tones = drive_unit_tones()
         chain = Chain.shorthand(12800.0)
         with pytest.raises(ValueError, match="exactly one of speed_factors and rpm"):
-            P.run_up(tones, chain)
+            runup.run_up(tones, chain)
         with pytest.raises(ValueError, match="needs nominal_rpm"):
-            P.run_up(tones, chain, rpm=[1000, 2000])
+            runup.run_up(tones, chain, rpm=[1000, 2000])
         with pytest.raises(ValueError, match="must increase"):
-            P.run_up(tones, chain, [1.0, 0.5])
+            runup.run_up(tones, chain, [1.0, 0.5])
         with pytest.raises(ValueError, match="numeric order; it needs nominal_rpm"):
-            P.run_up(tones, chain, [0.5, 1.0], orders_of_interest=[2.0])
+            runup.run_up(tones, chain, [0.5, 1.0], orders_of_interest=[2.0])
         with pytest.raises(ValueError, match="matches no tone"):
-            P.run_up(tones, chain, [0.5, 1.0], orders_of_interest=["nope"])
+            runup.run_up(tones, chain, [0.5, 1.0], orders_of_interest=["nope"])

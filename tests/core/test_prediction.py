@@ -5,8 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from service.core.chain import AnalogLowpass, Chain
+from service.core.chain import Chain
 from service.core.prediction import predict
+from service.core.stages import AnalogLowpass
 from service.core.tones import ToneSet
 
 

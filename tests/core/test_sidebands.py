@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from service.core.attribution import attribute
-from service.core.chain import AnalogLowpass, Chain, Decimate, Sample
+from service.core.chain import Chain
+from service.core.electrical_sources import PwmCarrier
 from service.core.errors import InputError
 from service.core.sidebands import (
     FLOOR_WEIGHT,
@@ -14,7 +15,7 @@ from service.core.sidebands import (
     prefer_strongest_carrier,
     pwm_carriers,
 )
-from service.core.sources import PwmCarrier
+from service.core.stages import AnalogLowpass, Decimate, Sample
 
 from .simulate import SimChain, analog_attenuation_db, nearest_peak, simulate_capture
 

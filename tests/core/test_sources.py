@@ -9,23 +9,12 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from service.core.sources import (
-    SOURCE_TYPES,
-    Bearing,
-    BladePass,
-    ExplicitTones,
-    GearMesh,
-    LineHarmonics,
-    PwmCarrier,
-    Resonance,
-    Shaft,
-    bearing_multiples,
-    expand_sources,
-    fundamental_from_shaft,
-    source_from_dict,
-    source_to_dict,
-    speed_to_hz,
-)
+from service.core.bearing_sources import Bearing, bearing_multiples
+from service.core.electrical_sources import LineHarmonics, PwmCarrier, fundamental_from_shaft
+from service.core.fixed_sources import ExplicitTones, Resonance
+from service.core.rotating_sources import BladePass, GearMesh, Shaft
+from service.core.source_base import speed_to_hz
+from service.core.sources import SOURCE_TYPES, expand_sources, source_from_dict, source_to_dict
 from service.core.tones import ToneSet
 
 # Drive-end bearing geometry of the Case Western Reserve University bearing data set

@@ -10,6 +10,7 @@ import scipy.signal
 import scipy.stats
 
 from service.core import spectrum as sp
+from service.core import windows
 from service.core.folding import fold, nyquist_zone
 
 
@@ -37,13 +38,13 @@ def _welch_amplitude(x: np.ndarray, fs: float, window: str, nfft: int, noverlap:
 
 class TestWindowFigures:
     def test_basic(self) -> None:
-        hann = sp.window_figures("hann")
+        hann = windows.window_figures("hann")
         # Source: Harris, Proc. IEEE 66(1) 1978, Table 1 (Hanning, alpha = 2)
         assert hann["enbw_bins"] == pytest.approx(1.50, abs=0.005)
         assert hann["scalloping_loss_db"] == pytest.approx(1.42, abs=0.01)
         assert hann["highest_sidelobe_db"] == pytest.approx(-31.5, abs=0.1)
         assert hann["coherent_gain"] == pytest.approx(0.50, abs=0.005)
-        hamming = sp.window_figures("hamming")
+        hamming = windows.window_figures("hamming")
         # Source: Harris, Proc. IEEE 66(1) 1978, Table 1 (Hamming)
         assert hamming["enbw_bins"] == pytest.approx(1.36, abs=0.005)
         # From memory: Harris 1978, Table 1, Hamming: highest side lobe -43 dB.
@@ -59,13 +60,13 @@ class TestWindowFigures:
         # From memory: Harris 1978, Table 1 prints 1.78 dB for the Hamming window; the
         # table rounds differently from the exact value, hence the wider tolerance.
         assert hamming["scalloping_loss_db"] == pytest.approx(1.78, abs=0.05)
-        bh = sp.window_figures("blackmanharris")
+        bh = windows.window_figures("blackmanharris")
         # Source: Harris, Proc. IEEE 66(1) 1978, Table 1 (4-term Blackman-Harris, -92 dB)
         assert bh["enbw_bins"] == pytest.approx(2.00, abs=0.01)
         assert bh["highest_sidelobe_db"] == pytest.approx(-92.0, abs=0.5)
         # From memory: Harris 1978, Table 1, 4-term Blackman-Harris scalloping 0.83 dB
         assert bh["scalloping_loss_db"] == pytest.approx(0.83, abs=0.01)
-        rect = sp.window_figures("rectangular")
+        rect = windows.window_figures("rectangular")
         # From memory: Harris, Proc. IEEE 66(1) 1978, Table 1 (rectangle): ENBW 1.00,
         # scalloping loss 3.92 dB, highest side lobe -13 dB
         assert rect["enbw_bins"] == pytest.approx(1.00, abs=1e-9)
@@ -73,26 +74,26 @@ class TestWindowFigures:
         assert rect["highest_sidelobe_db"] == pytest.approx(-13.3, abs=0.05)
         # Source: Harris, Proc. IEEE 66(1) 1978, sec. IV: a flat-top window trades
         # bandwidth for (almost) no scalloping loss.
-        assert sp.window_figures("flattop")["scalloping_loss_db"] < 0.05
+        assert windows.window_figures("flattop")["scalloping_loss_db"] < 0.05
 
     def test_mainlobe(self) -> None:
         # Source: J. O. Smith, Spectral Audio Signal Processing, "Resolving sinusoids":
         # main lobe of an L-term cosine window is 2L bins wide (half width L).
-        assert sp.window_figures("rectangular")["mainlobe_half_width_bins"] == 1.0
-        assert sp.window_figures("hann")["mainlobe_half_width_bins"] == 2.0
-        assert sp.window_figures("blackmanharris")["mainlobe_half_width_bins"] == 4.0
+        assert windows.window_figures("rectangular")["mainlobe_half_width_bins"] == 1.0
+        assert windows.window_figures("hann")["mainlobe_half_width_bins"] == 2.0
+        assert windows.window_figures("blackmanharris")["mainlobe_half_width_bins"] == 4.0
 
     def test_edges(self) -> None:
         # Reference: closed form for the periodic Hann window, ENBW = 1.5 bins for any n
         for n in (16, 17, 1000):
-            assert sp.window_figures("hann", n)["enbw_bins"] == pytest.approx(1.5, rel=1e-12)
-        assert sp.window_figures("HANN")["enbw_bins"] == pytest.approx(1.5)
+            assert windows.window_figures("hann", n)["enbw_bins"] == pytest.approx(1.5, rel=1e-12)
+        assert windows.window_figures("HANN")["enbw_bins"] == pytest.approx(1.5)
 
     def test_errors(self) -> None:
         with pytest.raises(ValueError, match="name='kaiser' must be one of"):
-            sp.window_figures("kaiser")
+            windows.window_figures("kaiser")
         with pytest.raises(ValueError, match="n=8 must be between 16"):
-            sp.window_figures("hann", 8)
+            windows.window_figures("hann", 8)
 
 
 class TestAmplitudeSpectrum:
@@ -119,7 +120,7 @@ class TestAmplitudeSpectrum:
         rng = np.random.default_rng(7)
         fs = 12_800.0
         x = rng.standard_normal(50_000) + _tone(50_000, fs, 1234.5, 3.0)
-        for window in sorted(sp.WINDOWS):
+        for window in sorted(windows.WINDOWS):
             s = sp.amplitude_spectrum(x, fs, lines=800, window=window, overlap_pct=50.0)
             scipy_name = "boxcar" if window == "rectangular" else window
             f, ref = _welch_amplitude(x, fs, scipy_name, s.nfft, s.nfft // 2)
@@ -310,7 +311,7 @@ class TestFindPeaks:
         np.testing.assert_allclose(pk.snr_db, 20 * np.log10(pk.amplitude / pk.floor))
         assert np.all(pk.prominence_db >= 6.0)
 
-    @pytest.mark.parametrize("window", sorted(sp.WINDOWS))
+    @pytest.mark.parametrize("window", sorted(windows.WINDOWS))
     def test_refinement_between_bins(self, window: str) -> None:
         fs, nfft = 4096.0, 4096
         offsets = np.linspace(-0.5, 0.5, 21)

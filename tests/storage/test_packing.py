@@ -22,7 +22,8 @@ def _amplitudes(n: int, seed: int = 1) -> np.ndarray:
 
 class TestPackSpectrum:
     def test_basic(self) -> None:
-        # A one-sided FFT axis: 12.8 kS/s, 8192-point record (the bench converter, DESIGN §6).
+        # Reference: numpy.fft.rfftfreq, a one-sided FFT axis of an 8192-point record at
+        # 12.8 kS/s (the rate of the invented demo converter).
         freq = np.fft.rfftfreq(8192, d=1 / 12_800)
         amp = _amplitudes(freq.size)
         f_out, a_out = unpack_spectrum(pack_spectrum(freq, amp))

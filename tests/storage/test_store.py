@@ -20,7 +20,7 @@ from service.storage import KINDS, SavedDiagnosis, Store, StoreUnavailable
 F32_EPS = float(np.finfo(np.float32).eps)
 URLSAFE = re.compile(r"[A-Za-z0-9_-]+")
 
-# Demo scenario (DESIGN §6): accelerometer on the drive unit bench, 12.8 kS/s converter.
+# Invented demo scenario: an accelerometer on a drive-unit bench, 12.8 kS/s converter.
 REQUEST: dict[str, Any] = {
     "sample_rate_hz": 12_800.0,
     "anti_alias": {"type": "butterworth", "order": 2, "cutoff_hz": 5_000.0},

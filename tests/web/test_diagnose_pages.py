@@ -27,7 +27,8 @@ MAX_PAGE_BYTES = 1_500_000
 
 
 def _fold(f: float, fs: float) -> float:
-    # Reference: DESIGN.md §2, fold(f, fs) = |f - fs*round(f/fs)|, evaluated with numpy.
+    # Reference: Oppenheim & Schafer, DTSP, sec. 4.2, fold(f, fs) = |f - fs*round(f/fs)|,
+    # evaluated with numpy.
     return float(np.abs(f - fs * np.round(f / fs)))
 
 
@@ -152,7 +153,7 @@ class TestDiagnosePage:
     def test_post_paste(self, page_client: TestClient) -> None:
         r = _basic_post(page_client)
         assert r.status_code == 200, _summary(r.text)
-        alias_at = _fold(7300.0, 10_000.0)  # Source: DESIGN.md §5, 7.3 kHz at 10 kS/s → 2.7 kHz
+        alias_at = _fold(7300.0, 10_000.0)  # Source: O&S sec. 4.2, 7.3 kHz at 10 kS/s → 2.7 kHz
         assert alias_at == 2700.0
         rows = {x["verdict"]: x for x in _rows(r.text)}
         assert abs(float(rows["alias"]["at"].replace(",", "")) - alias_at) < 2.5

@@ -33,7 +33,7 @@ def _trace(fig: dict[str, Any], name: str) -> dict[str, Any]:
 
 
 def _reference_fold(x: np.ndarray, fs: float) -> np.ndarray:
-    # Reference: numpy, |x − fs·round(x/fs)| (DESIGN.md §2).
+    # Reference: numpy, |x − fs·round(x/fs)| (Oppenheim & Schafer, DTSP, sec. 4.2).
     return np.abs(x - fs * np.round(x / fs))
 
 
@@ -73,7 +73,8 @@ class TestFoldingDiagram:
         aliases, direct = _trace(fig, "aliases"), _trace(fig, "direct tones")
         for tr in (aliases, direct):
             np.testing.assert_allclose(tr["y"], _reference_fold(np.array(tr["x"]), FS), atol=1e-9)
-        # Source: DESIGN.md §5: 7.3 kHz → 2.7 kHz and 13.2 kHz → 3.2 kHz at 10 kS/s.
+        # Source: Oppenheim & Schafer, DTSP, sec. 4.2: at 10 kS/s, 7.3 kHz → |7.3 - 10| =
+        # 2.7 kHz and 13.2 kHz → |13.2 - 10| = 3.2 kHz.
         assert sorted(zip(aliases["x"], aliases["y"], strict=True)) == [
             (7300.0, pytest.approx(2700.0)),
             (13200.0, pytest.approx(3200.0)),
@@ -132,7 +133,8 @@ class TestFoldingDiagram:
         b, a = signal.butter(4, 2 * np.pi * 5000.0, analog=True)
         _, h = signal.freqs(b, a, worN=2 * np.pi * f[1:])
         np.testing.assert_allclose(curve["gain_db"][1:], 20 * np.log10(np.abs(h)), atol=2e-3)
-        # Source: DESIGN.md §5, Butterworth N = 4 at 2·fc → 24.10 dB.
+        # Source: Butterworth (1930), |H|² = 1/(1+(f/fc)^(2N)): N = 4 at 2·fc →
+        # 10·log10(1 + 2^8) = 24.10 dB.
         assert curve["gain_db"][100] == pytest.approx(-24.10, abs=0.01)
         fig = folding_diagram(_fold(body), gain_curve=curve)
         gain = _trace(fig, "chain gain")

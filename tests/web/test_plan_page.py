@@ -78,7 +78,7 @@ def _line_points(fig: dict[str, Any], line: int) -> tuple[np.ndarray, np.ndarray
 
 
 def _fold_reference(f: np.ndarray, fs: float) -> np.ndarray:
-    # Reference: numpy, |f - fs·round(f/fs)| (DESIGN.md §2; Oppenheim & Schafer sec. 4.2).
+    # Reference: numpy, |f - fs·round(f/fs)| (Oppenheim & Schafer sec. 4.2).
     return np.abs(f - fs * np.round(f / fs))
 
 

@@ -220,6 +220,18 @@ def run_cases(client: TestClient) -> dict[str, dict[str, Any]]:
         },
     )
     c(
+        "fold_422_core_source",
+        "POST",
+        "/api/v1/fold",
+        json={
+            "sample_rate_hz": 12800,
+            "sources": [
+                {"type": "shaft", "label": "motor", "speed_rpm": 1500},
+                {"type": "shaft", "label": "output", "speed_rpm": 500, "orders": [1, 2, 1]},
+            ],
+        },
+    )
+    c(
         "fold_400_unreadable",
         "POST",
         "/api/v1/fold",
