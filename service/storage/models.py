@@ -12,7 +12,7 @@ from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 __all__ = ["KINDS", "Base", "SavedDiagnosisRow"]
 
 # What a saved record holds: the output of one of the service's computations.
-KINDS: tuple[str, ...] = ("diagnose", "compare", "fold", "plan")
+KINDS: tuple[str, ...] = ("diagnose", "compare", "fold", "plan", "run-up")
 
 # Stable constraint names, so later migrations can refer to them on both backends.
 _NAMING = {
@@ -51,7 +51,7 @@ class SavedDiagnosisRow(Base):
     title: Mapped[str | None] = mapped_column(String(200))
 
     __table_args__ = (
-        CheckConstraint("kind IN ('diagnose', 'compare', 'fold', 'plan')", name="kind"),
+        CheckConstraint("kind IN ('diagnose', 'compare', 'fold', 'plan', 'run-up')", name="kind"),
         # For a retention job that removes old records; ids themselves are never listed.
         Index("ix_saved_diagnosis_created_at", "created_at"),
     )

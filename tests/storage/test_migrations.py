@@ -34,7 +34,7 @@ class TestMigrate:
             with store.engine.connect() as conn:
                 assert not inspect(conn).has_table("saved_diagnosis")
             store.migrate()
-            assert store.schema_revision() == Store.head_revision() == "0001"
+            assert store.schema_revision() == Store.head_revision() == "0002"
             with store.engine.connect() as conn:
                 insp = inspect(conn)
                 assert {c["name"] for c in insp.get_columns("saved_diagnosis")} == COLUMNS
@@ -77,6 +77,39 @@ class TestMigrate:
                 raise AssertionError("insert with kind='other' was accepted")
             finally:
                 conn.rollback()
+            # Migration 0002 widened the constraint to the run-up kind.
+            conn.execute(
+                text(
+                    "INSERT INTO saved_diagnosis (id, delete_token_hash, kind, created_at, "
+                    "computation_version, app_version, request, result) VALUES "
+                    "('y', 'h', 'run-up', CURRENT_TIMESTAMP, 'c', 'a', '{}', '{}')"
+                )
+            )
+            conn.rollback()
+
+    def test_upgrade_from_0001_keeps_rows(self, db_url: str) -> None:
+        # A store saved under 0001 keeps its rows when 0002 swaps the kind constraint.
+        cfg = Config()
+        cfg.set_main_option("script_location", str(store_module._MIGRATIONS_DIR))
+        cfg.set_main_option("path_separator", "os")
+        cfg.set_main_option("sqlalchemy.url", db_url.replace("%", "%%"))
+        store = Store.from_url(db_url)
+        try:
+            command.upgrade(cfg, "0001")
+            with store.engine.begin() as conn:
+                conn.execute(
+                    text(
+                        "INSERT INTO saved_diagnosis (id, delete_token_hash, kind, created_at, "
+                        "computation_version, app_version, request, result) VALUES "
+                        "('old', 'h', 'plan', CURRENT_TIMESTAMP, 'c', 'a', '{}', '{}')"
+                    )
+                )
+            command.upgrade(cfg, "head")
+            with store.engine.connect() as conn:
+                kinds = conn.execute(text("SELECT kind FROM saved_diagnosis")).scalars().all()
+            assert kinds == ["plan"]
+        finally:
+            store.close()
 
     def test_downgrade_and_command_line_config(self, db_url: str) -> None:
         # The path an operator takes with the alembic command: a config naming only the
@@ -88,12 +121,12 @@ class TestMigrate:
         store = Store.from_url(db_url)  # creates the SQLite file's directory
         try:
             command.upgrade(cfg, "head")
-            assert store.schema_revision() == "0001"
+            assert store.schema_revision() == "0002"
             command.downgrade(cfg, "base")
             assert store.schema_revision() is None
             with store.engine.connect() as conn:
                 assert not inspect(conn).has_table("saved_diagnosis")
             store.migrate()
-            assert store.schema_revision() == "0001"
+            assert store.schema_revision() == "0002"
         finally:
             store.close()
