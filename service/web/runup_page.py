@@ -121,11 +121,15 @@ async def runup_submit(request: Request) -> HTMLResponse:
         )
     except Exception as exc:  # malformed or oversized form
         return error_page(request, Problem(400, f"the form cannot be read: {exc}"))
-    values = {k: v for k, v in data.items() if isinstance(v, str)}
-    file = data.get("file")
-    if not isinstance(file, UploadFile) or not file.filename:
+    try:
+        values = {k: v for k, v in data.items() if isinstance(v, str)}
+        file = data.get("file")
+        name = file.filename if isinstance(file, UploadFile) else None
+        raw = await file.read(settings.max_upload_bytes + 1) if name else b""
+    finally:
+        await data.close()  # the spooled upload file
+    if not name or not isinstance(file, UploadFile):
         return _page(request, values, errors=["Choose a file to upload."], status=422)
-    raw = await file.read(settings.max_upload_bytes + 1)
     if len(raw) > settings.max_upload_bytes:
         return _page(
             request,
@@ -138,7 +142,7 @@ async def runup_submit(request: Request) -> HTMLResponse:
     except ValidationError as exc:
         msgs = [f"{'.'.join(str(p) for p in e['loc'][-1:])}: {e['msg']}" for e in exc.errors()]
         return _page(request, values, errors=msgs, status=422)
-    upload = Upload(raw, file.filename)
+    upload = Upload(raw, name)
     try:
         out = await run_in_threadpool(runup_payload, req, settings, upload)
         saved = None
