@@ -326,6 +326,9 @@ def build_parser() -> argparse.ArgumentParser:
     from .plan import register as register_plan
 
     register_plan(sub)
+    from .runup import register as register_runup
+
+    register_runup(sub)
 
     d = sub.add_parser("diagnose", help="which peaks of a spectrum or record are aliases")
     d.add_argument(
