@@ -163,6 +163,7 @@ class RunUpLineOut(BaseModel):
 
 
 class RunUpOut(BaseModel):
+    input: str = Field(description="What was read: the file, its format and channels")
     speed: dict[str, Any] = Field(description="Source, range, duration, pulses repaired")
     map: dict[str, Any] = Field(description="Sample rate, Nyquist, bin width, frames")
     counts: dict[str, int]
