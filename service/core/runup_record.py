@@ -1,41 +1,21 @@
 """Run-up records: the frequency × speed map, its lines, their folding verdicts, orders.
 
-In a map of apparent frequency against shaft speed ``r`` (Hz) a real order ``k`` is the
-ray ``f = k·r``; its alias is the same ray folded at multiples of fs/2,
-``fold(k·r + c, fs)`` (:func:`service.core.folding.fold`), rising in odd Nyquist zones
-and falling in even ones; a fixed-frequency line (``k = 0``) folds to a horizontal line
-and its sidebands ``c ± k·r`` fan out from it.
+A real order is a ray through the origin of the frequency × speed map, its alias the same
+ray folded at multiples of fs/2 (:mod:`service.core.runup_lines` says how lines are told
+apart).
 
-Method
-------
-1. *Map* (:func:`service.core.runup_map.runup_map`): short-time spectra
-   (``scipy.signal.ShortTimeFFT``, Hann, amplitude-scaled) computed a block of frames
-   at a time; each block's magnitude (float32) is reduced at once to a bounded number
-   of speed slices (the maximum per speed bin) and time slices (the maximum per group
-   of frames), so memory never holds the whole complex transform of a long record.
-2. *Ridges*: per speed slice, peaks standing ``PEAK_DB`` above a running median
-   floor (medians of blocks of ``FLOOR_BLOCK`` bins), refined by a parabola through
-   the log magnitudes.
-3. *Tracks*: peaks are linked slice by slice to the nearest prediction within a gate
-   (``GATE_BINS`` bins plus half a slice's travel); the prediction extrapolates the
-   track's recent slope and reflects at 0 Hz and fs/2, so a track follows an order
-   through its fold. Each track keeps its *unfolded* coordinate
-   ``u = base + σ·f`` (σ flips and the base moves by fs at each reflection).
-4. *Hypotheses*: the known lines given (order ``k``, fixed part ``c``), and blind ones
-   from a Theil–Sen line through the unfolded points (``u = a + b·r``): an order through
-   the origin (``c = 0``, allowed when the intercept is within ``ORIGIN_BINS`` bins
-   of a multiple of fs), a fixed line (``k = 0``), or a line with an offset. Each is
-   refined by Gauss–Newton with Huber weights on ``f − fold(k·r + c, fs)`` (iteratively
-   reweighted least squares [3]_) and scored by the share of points within tolerance
-   (``TOL_BINS`` bins plus half a speed slice's travel). The best hypothesis with
-   ``MIN_INLIERS`` of the points explains the track; tracks with the same
-   explanation are merged into one line.
-5. *Verdict*: a real order (every point in zone 1), a folded order (the zones and the
-   speed range of each; inverted in even zones), a fixed-frequency alias (a known fixed
-   line above Nyquist), a sideband (``k ≠ 0``, ``c ≠ 0``), a resonance (a fixed line
-   whose level rises and falls by ``RESONANCE_DB`` inside the sweep), a fixed line
-   (true frequency unknown without sources), or unexplained. Confidence is the share of
-   inliers times ``exp(−½(rms/tol)²)`` times ``min(1, sweep / FULL_SWEEP)``.
+Steps
+-----
+1. *Map* (:mod:`service.core.runup_map`): short-time spectra computed a block of frames
+   at a time and reduced at once by speed slice and by time slice, so memory stays
+   bounded for long records.
+2. *Lines* (:mod:`service.core.runup_lines`): ridges of the speed map, linked into
+   tracks that follow a line through its folds, fitted to the folding hypotheses
+   ``fold(k·r + c, fs)`` with a robust fit, and classified (real order, folded order,
+   fixed-frequency alias, sideband, resonance, fixed line, unexplained) with a
+   confidence from the fit residual and the sweep covered.
+3. *Order view* (:mod:`service.core.order_tracking`, called by the caller when wanted):
+   computed order tracking [2]_.
 
 References
 ----------
@@ -44,13 +24,8 @@ References
 .. [2] K. R. Fyfe and E. D. S. Munck, "Analysis of computed order tracking",
    *Mechanical Systems and Signal Processing* 11(2), 1997 (resampling at constant
    shaft-angle increments; the order spectrum).
-.. [3] P. J. Huber, *Robust Statistics*, Wiley, 1981 (Huber weights, IRLS); H. Theil,
-   1950, and P. K. Sen, 1968 (median of pairwise slopes; ``scipy.stats.theilslopes``).
-.. [4] J. O. Smith, *Spectral Audio Signal Processing*, "Quadratic interpolation of
-   spectral peaks" (parabolic refinement on log magnitude).
 
-The steps live in :mod:`service.core.runup_map` (1), :mod:`service.core.runup_lines`
-(2 to 5) and :mod:`service.core.order_tracking` (the order view); this module runs them.
+This module runs steps 1 and 2 on a record with its speed.
 """
 
 from __future__ import annotations

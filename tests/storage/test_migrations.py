@@ -89,10 +89,7 @@ class TestMigrate:
 
     def test_upgrade_from_0001_keeps_rows(self, db_url: str) -> None:
         # A store saved under 0001 keeps its rows when 0002 swaps the kind constraint.
-        cfg = Config()
-        cfg.set_main_option("script_location", str(store_module._MIGRATIONS_DIR))
-        cfg.set_main_option("path_separator", "os")
-        cfg.set_main_option("sqlalchemy.url", db_url.replace("%", "%%"))
+        cfg = _alembic_config(db_url)
         store = Store.from_url(db_url)
         try:
             command.upgrade(cfg, "0001")
@@ -114,10 +111,7 @@ class TestMigrate:
     def test_downgrade_and_command_line_config(self, db_url: str) -> None:
         # The path an operator takes with the alembic command: a config naming only the
         # script location and the URL, no connection handed over.
-        cfg = Config()
-        cfg.set_main_option("script_location", str(store_module._MIGRATIONS_DIR))
-        cfg.set_main_option("path_separator", "os")
-        cfg.set_main_option("sqlalchemy.url", db_url.replace("%", "%%"))
+        cfg = _alembic_config(db_url)
         store = Store.from_url(db_url)  # creates the SQLite file's directory
         try:
             command.upgrade(cfg, "head")
@@ -130,3 +124,12 @@ class TestMigrate:
             assert store.schema_revision() == "0002"
         finally:
             store.close()
+
+
+def _alembic_config(db_url: str) -> Config:
+    """What an operator gives the alembic command: the script location and the URL."""
+    cfg = Config()
+    cfg.set_main_option("script_location", str(store_module._MIGRATIONS_DIR))
+    cfg.set_main_option("path_separator", "os")
+    cfg.set_main_option("sqlalchemy.url", db_url.replace("%", "%%"))
+    return cfg

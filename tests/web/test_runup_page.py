@@ -2,30 +2,17 @@
 
 from __future__ import annotations
 
-import io
-import wave
-
 import numpy as np
 from fastapi.testclient import TestClient
 
 from service.contract.caution import CAUTION
 from service.core.runup_sim import simulate_run_up
+from tests.api.test_runup import _wav
 
 from .conftest import assert_strict_page, controls_without_label, figures_of
 
 HTML = "text/html"
 FS = 12_800.0
-
-
-def _wav(channels: list[np.ndarray], fs: int) -> bytes:
-    buf = io.BytesIO()
-    with wave.open(buf, "wb") as w:
-        w.setnchannels(len(channels))
-        w.setsampwidth(2)
-        w.setframerate(fs)
-        frames = np.stack([np.clip(c, -1, 1) for c in channels], axis=1)
-        w.writeframes((frames * 32767).astype("<i2").tobytes())
-    return buf.getvalue()
 
 
 def _map_trace(fig: dict, label: str) -> dict:

@@ -6,8 +6,7 @@ from fastapi import APIRouter, Query, Request
 from starlette.concurrency import run_in_threadpool
 
 from ...contract.runup import RunUpIn, RunUpOut
-from ...http.bodies import body_openapi, is_multipart, parse_json_body, read_body, read_multipart
-from ...http.problems import Problem
+from ...http.bodies import body_openapi, read_request_with_file
 from ...http.responses import FastJSON
 from ...http.store_access import StoreAccess
 from ...usecases.runup import runup_payload
@@ -59,15 +58,7 @@ async def run_up(
     title: str | None = Query(None, max_length=200),
 ) -> FastJSON:
     settings = request.app.state.settings
-    upload = None
-    if is_multipart(request):
-        raw, files = await read_multipart(request, ("file",), settings.max_upload_bytes)
-        upload = files.get("file")
-        if upload is None:
-            raise Problem(422, "the multipart form needs a file field 'file'", field="file")
-    else:
-        raw = await read_body(request, settings.max_body_bytes)
-    req = parse_json_body(RunUpIn, raw)
+    req, upload = await read_request_with_file(request, RunUpIn, settings)
     payload = await run_in_threadpool(runup_payload, req, settings, upload)
     if save:
         access: StoreAccess = request.app.state.store_access
