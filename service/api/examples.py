@@ -10,7 +10,7 @@ from .. import COMPUTATION_VERSION, __version__
 from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..contract.fold import FoldIn
 from ..contract.plan import PlanIn
-from ..contract.runup import RunUpIn
+from ..contract.runup import RunUpRecordIn
 from ..core.runup_sim import simulate_run_up
 from ..demo import (
     DEMO_RPM,
@@ -26,7 +26,7 @@ from ..usecases.compare import compare_payload
 from ..usecases.diagnose import diagnose_payload
 from ..usecases.fold import fold_payload
 from ..usecases.plan import plan_payload
-from ..usecases.runup import demo_request
+from ..usecases.runup import demo_request, runup_payload
 
 
 def _runup_demo_body() -> dict[str, Any]:
@@ -137,6 +137,25 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     plan = plan_payload(PlanIn.model_validate(demo_plan_request()), settings)
     plan["rejected"] = plan["rejected"][-3:]
     plan.pop("runup", None)
+    runup = runup_payload(
+        RunUpRecordIn.model_validate(RUNUP_EXAMPLES["drive_unit_run_up"]["value"]), settings
+    )
+    runup["lines"] = runup["lines"][:3]
+    runup["predicted"] = runup["predicted"][:1]
+    # The display payload is for the page; a few cells show its shape.
+    disp = runup["display"]
+    disp["map"] = {
+        "rpm": disp["map"]["rpm"][:2],
+        "freq_hz": disp["map"]["freq_hz"][:3],
+        "level_db": [row[:3] for row in disp["map"]["level_db"][:2]],
+    }
+    disp["lines"] = [
+        {**ln, "rpm": ln["rpm"][:3], "freq_hz": ln["freq_hz"][:3]} for ln in disp["lines"][:1]
+    ]
+    disp["order_spectrum"] = {k: v[:3] for k, v in disp["order_spectrum"].items()}
+    for p in runup["predicted"]:
+        for key in ("rpm", "apparent_hz", "attenuation_db"):
+            p[key] = p[key][:3]
     # Ids and tokens below are shaped like real ones but were made up for the example.
     rid = "h2Vq8pX0cN4bT7kLw9sYd3Rf6Ue1Ga5J"
     saved = {
@@ -162,6 +181,7 @@ def response_examples(settings: Any) -> dict[tuple[str, str], Any]:
     }
     return {
         ("/api/v1/plan", "post"): plan,
+        ("/api/v1/run-up", "post"): runup,
         ("/api/v1/diagnoses", "post"): saved,
         ("/api/v1/diagnoses/{rid}", "get"): record,
         ("/healthz", "get"): {"status": "ok"},
@@ -182,7 +202,7 @@ SAVED_KINDS = {
     "diagnose": "DiagnoseIn",
     "compare": "CompareIn",
     "plan": "PlanIn",
-    "run-up": "RunUpIn",
+    "run-up": "RunUpRecordIn",
 }
 
 
@@ -208,7 +228,7 @@ def install_examples(app: Any, settings: Any) -> None:
             return app.openapi_schema  # type: ignore[no-any-return]
         schema = original()
 
-        register_models(schema, [FoldIn, DiagnoseIn, CompareIn, PlanIn, RunUpIn])
+        register_models(schema, [FoldIn, DiagnoseIn, CompareIn, PlanIn, RunUpRecordIn])
         _save_request_by_kind(schema)
         for (path, method), example in response_examples(settings).items():
             op = schema["paths"][path][method]

@@ -1,6 +1,6 @@
 """``foldwise run-up``: a run-up record's lines and their folding verdicts.
 
-The options map onto :class:`~service.contract.runup.RunUpIn` (and its ``upload``); the
+The options map onto :class:`~service.contract.runup.RunUpRecordIn` (and its ``upload``); the
 answer is the API's, from the same use-case. Heavy imports stay inside the command so
 ``foldwise --help`` stays fast.
 """
@@ -127,7 +127,7 @@ def _cmd_runup(ns: argparse.Namespace) -> int:
     from tqdm import tqdm
 
     from ..config import get_settings
-    from ..contract.runup import RunUpIn
+    from ..contract.runup import RunUpRecordIn
     from ..usecases.errors import InputError
     from ..usecases.measure import Upload
     from ..usecases.runup import demo_recording, demo_request, runup_payload
@@ -144,13 +144,13 @@ def _cmd_runup(ns: argparse.Namespace) -> int:
     try:
         if ns.demo:
             base = demo_request().model_dump(mode="json", exclude_none=True)
-            req = RunUpIn.model_validate({**base, **build_runup_request(ns)})
+            req = RunUpRecordIn.model_validate({**base, **build_runup_request(ns)})
             recording, upload = demo_recording(), None
         else:
             if not ns.file:
                 print("foldwise run-up: give a FILE, or --demo", file=sys.stderr)
                 return 2
-            req = RunUpIn.model_validate(build_runup_request(ns))
+            req = RunUpRecordIn.model_validate(build_runup_request(ns))
             recording = None
             upload = Upload(Path(ns.file).read_bytes(), Path(ns.file).name)
         long = upload is not None and len(upload.data) > PROGRESS_BYTES

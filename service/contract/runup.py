@@ -19,9 +19,9 @@ from .saved import SavedLinkOut
 from .sources import SourceIn
 
 __all__ = [
-    "RunUpIn",
-    "RunUpLineOut",
-    "RunUpOut",
+    "RunUpRecordIn",
+    "RunUpRecordLineOut",
+    "RunUpRecordOut",
     "RunUpUploadIn",
     "SpeedTraceIn",
 ]
@@ -76,7 +76,7 @@ _RUNUP_RULES = strict_with_rules(
 )
 
 
-class RunUpIn(_ChainOptional):
+class RunUpRecordIn(_ChainOptional):
     """A run-up record: which lines of the frequency × speed map are folded, and from where.
 
     A JSON body carries ``vibration`` and either ``tacho`` (with ``pulses_per_rev``) or
@@ -125,7 +125,7 @@ class RunUpIn(_ChainOptional):
     )
 
     @model_validator(mode="after")
-    def _check(self) -> RunUpIn:
+    def _check(self) -> RunUpRecordIn:
         if self.chain is not None and (self.sample_rate_hz is not None or self.anti_alias):
             raise ValueError("give either sample_rate_hz (with optional anti_alias) or chain")
         if self.tacho is not None and self.speed_trace is not None:
@@ -142,7 +142,7 @@ class ZoneSpanOut(BaseModel):
     rpm_to: float
 
 
-class RunUpLineOut(BaseModel):
+class RunUpRecordLineOut(BaseModel):
     kind: str = Field(
         description="order, folded_order, fixed, fixed_alias, sideband, resonance or unexplained"
     )
@@ -162,12 +162,12 @@ class RunUpLineOut(BaseModel):
     sentence: str
 
 
-class RunUpOut(BaseModel):
+class RunUpRecordOut(BaseModel):
     input: str = Field(description="What was read: the file, its format and channels")
     speed: dict[str, Any] = Field(description="Source, range, duration, pulses repaired")
     map: dict[str, Any] = Field(description="Sample rate, Nyquist, bin width, frames")
     counts: dict[str, int]
-    lines: list[RunUpLineOut]
+    lines: list[RunUpRecordLineOut]
     predicted: list[dict[str, Any]] = Field(
         description="The chain's folded lines for the known (or found) orders"
     )

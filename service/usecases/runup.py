@@ -20,7 +20,7 @@ import numpy as np
 from .. import COMPUTATION_VERSION
 from ..config import Settings
 from ..contract.caution import CAUTION
-from ..contract.runup import RunUpIn
+from ..contract.runup import RunUpRecordIn
 from ..core.chain import Chain
 from ..core.errors import InputError
 from ..core.folding import fold
@@ -133,7 +133,7 @@ def _channel(
     return rec
 
 
-def read_recording(req: RunUpIn, settings: Settings, upload: Upload | None) -> Recording:
+def read_recording(req: RunUpRecordIn, settings: Settings, upload: Upload | None) -> Recording:
     """The vibration and tacho channels, from JSON arrays or an uploaded file."""
     if upload is None:
         if req.vibration is None:
@@ -183,7 +183,7 @@ def read_recording(req: RunUpIn, settings: Settings, upload: Upload | None) -> R
     )
 
 
-def _chain(req: RunUpIn, rec: Recording) -> Chain:
+def _chain(req: RunUpRecordIn, rec: Recording) -> Chain:
     stated = chain_if_given(req, "")  # type: ignore[arg-type]
     chain = stated or capture_chain(req, rec.rate_hz, "")  # type: ignore[arg-type]
     fs = chain.final_rate_hz
@@ -200,7 +200,7 @@ def _chain(req: RunUpIn, rec: Recording) -> Chain:
     return chain
 
 
-def _nperseg(req: RunUpIn, fs: float) -> int:
+def _nperseg(req: RunUpRecordIn, fs: float) -> int:
     if req.bin_width_hz is None:
         return req.nperseg or 1024
     n = round(fs / req.bin_width_hz)
@@ -217,7 +217,7 @@ def _nperseg(req: RunUpIn, fs: float) -> int:
     return n
 
 
-def _known(req: RunUpIn, settings: Settings) -> tuple[KnownLine, ...] | None:
+def _known(req: RunUpRecordIn, settings: Settings) -> tuple[KnownLine, ...] | None:
     if not (req.sources or req.tones):
         return None
     if req.sources and req.nominal_rpm is None:
@@ -385,14 +385,14 @@ def _map_display(res: RunUpResult) -> dict[str, Any]:
 
 
 def runup_payload(
-    req: RunUpIn,
+    req: RunUpRecordIn,
     settings: Settings,
     upload: Upload | None = None,
     *,
     recording: Recording | None = None,
     progress: Callable[[float], None] | None = None,
 ) -> dict[str, Any]:
-    """Analyse one run-up record: the JSON answer (shaped like ``RunUpOut``)."""
+    """Analyse one run-up record: the JSON answer (shaped like ``RunUpRecordOut``)."""
     rec = recording or read_recording(req, settings, upload)
     chain = _chain(req, rec)
     fs = chain.final_rate_hz
@@ -491,10 +491,10 @@ def runup_payload(
 # ---------------------------------------------------------------------------- demo
 
 
-def demo_request() -> RunUpIn:
+def demo_request() -> RunUpRecordIn:
     """The invented e-drive bench's chain and known sources (DESIGN.md §6)."""
     rpm = DEMO_NOMINAL_RPM
-    return RunUpIn.model_validate(
+    return RunUpRecordIn.model_validate(
         {
             "sample_rate_hz": 12_800.0,
             "anti_alias": {"family": "butterworth", "order": 2, "cutoff_hz": 5000.0},

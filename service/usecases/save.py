@@ -19,7 +19,7 @@ from ..config import Settings
 from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..contract.fold import FoldIn
 from ..contract.plan import PlanIn
-from ..contract.runup import RunUpIn
+from ..contract.runup import RunUpRecordIn
 from .compare import compare_payload
 from .diagnose import diagnose_payload
 from .errors import RequestError
@@ -105,7 +105,7 @@ def _plan(req: BaseModel, settings: Settings) -> SaveParts:
 
 
 def _runup(req: BaseModel, settings: Settings) -> SaveParts:
-    assert isinstance(req, RunUpIn)
+    assert isinstance(req, RunUpRecordIn)
     return saved_parts("run-up", req, runup_payload(req, settings))
 
 
@@ -115,7 +115,7 @@ SAVEABLE: dict[str, tuple[type[BaseModel], Callable[[BaseModel, Settings], SaveP
     "diagnose": (DiagnoseIn, _diagnose),
     "compare": (CompareIn, _compare),
     "plan": (PlanIn, _plan),
-    "run-up": (RunUpIn, _runup),
+    "run-up": (RunUpRecordIn, _runup),
 }
 
 

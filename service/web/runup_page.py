@@ -1,6 +1,6 @@
 """The run-up page: upload a record (or run the invented demo) and read its map.
 
-The form's fields are the contract's (:class:`~service.contract.runup.RunUpIn` and its
+The form's fields are the contract's (:class:`~service.contract.runup.RunUpRecordIn` and its
 ``upload``), their hints the models' descriptions; the answer is the API's
 (:func:`~service.usecases.runup.runup_payload`) and the figures come from its display
 payload (:mod:`service.web.runup_figures`), so a saved result redraws unchanged.
@@ -17,7 +17,7 @@ from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import UploadFile
 
 from ..config import Settings
-from ..contract.runup import RunUpIn, RunUpUploadIn
+from ..contract.runup import RunUpRecordIn, RunUpUploadIn
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..usecases.measure import Upload
 from ..usecases.runup import demo_recording, demo_request, runup_payload
@@ -34,9 +34,9 @@ router = APIRouter(tags=["pages"], include_in_schema=False)
 _FIELDS = (
     ("vibration_channel", "Vibration channel", RunUpUploadIn, "vibration_channel"),
     ("tacho_channel", "Tacho channel", RunUpUploadIn, "tacho_channel"),
-    ("pulses_per_rev", "Pulses per revolution", RunUpIn, "pulses_per_rev"),
+    ("pulses_per_rev", "Pulses per revolution", RunUpRecordIn, "pulses_per_rev"),
     ("sample_rate_hz", "Sample rate, Hz", RunUpUploadIn, "sample_rate_hz"),
-    ("nperseg", "Frame length, samples", RunUpIn, "nperseg"),
+    ("nperseg", "Frame length, samples", RunUpRecordIn, "nperseg"),
 )
 FORM_FIELDS = [
     {"name": n, "label": label, "hint": model.model_fields[f].description or ""}
@@ -98,7 +98,7 @@ def _page(
     return render(request, "runup.html", ctx, status_code=status)
 
 
-def _demo(settings: Settings) -> tuple[RunUpIn, dict[str, Any]]:
+def _demo(settings: Settings) -> tuple[RunUpRecordIn, dict[str, Any]]:
     req = demo_request()
     return req, runup_payload(req, settings, recording=demo_recording())
 
@@ -138,7 +138,7 @@ async def runup_submit(request: Request) -> HTMLResponse:
             status=413,
         )
     try:
-        req = RunUpIn.model_validate(_request_from_form(values))
+        req = RunUpRecordIn.model_validate(_request_from_form(values))
     except ValidationError as exc:
         msgs = [f"{'.'.join(str(p) for p in e['loc'][-1:])}: {e['msg']}" for e in exc.errors()]
         return _page(request, values, errors=msgs, status=422)

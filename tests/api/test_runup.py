@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
-from service.contract.runup import RunUpOut
+from service.contract.runup import RunUpRecordOut
 from service.core.runup_sim import SimLine, simulate_run_up
 from tests.api.test_response_schemas import fits
 
@@ -100,7 +100,7 @@ class TestJson:
         assert out["speed"]["source"] == "tacho"
         assert out["speed"]["rpm_max"] == pytest.approx(12_000.0, rel=0.01)
         assert out["caution"].startswith("An alias verdict is a hypothesis")
-        assert fits(RunUpOut, r.text) == []  # the answer is what the schema publishes
+        assert fits(RunUpRecordOut, r.text) == []  # the answer is what the schema publishes
 
     def test_predicted_lines_and_order_spectrum(self, client: TestClient, demo: object) -> None:
         out = client.post("/api/v1/run-up", json=_body(demo, **DEMO_SOURCES)).json()

@@ -5,7 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter, Query, Request
 from starlette.concurrency import run_in_threadpool
 
-from ...contract.runup import RunUpIn, RunUpOut
+from ...contract.runup import RunUpRecordIn, RunUpRecordOut
 from ...http.bodies import body_openapi, read_request_with_file
 from ...http.responses import FastJSON
 from ...http.store_access import StoreAccess
@@ -15,7 +15,7 @@ from ..examples import RUNUP_EXAMPLES
 
 router = APIRouter(prefix="/api/v1", tags=["run-up"])
 
-_DOC = body_openapi(RunUpIn, RUNUP_EXAMPLES)
+_DOC = body_openapi(RunUpRecordIn, RUNUP_EXAMPLES)
 _DOC["requestBody"]["content"]["multipart/form-data"] = {
     "schema": {
         "type": "object",
@@ -39,7 +39,7 @@ _DOC["requestBody"]["content"]["multipart/form-data"] = {
 
 @router.post(
     "/run-up",
-    response_model=RunUpOut,
+    response_model=RunUpRecordOut,
     summary="A run-up record: which lines of the frequency × speed map are folded",
     description="Send the vibration samples with a tacho channel (and its pulses per "
     "revolution) or the controller's speed trace, and the acquisition chain, as JSON; or "
@@ -58,7 +58,7 @@ async def run_up(
     title: str | None = Query(None, max_length=200),
 ) -> FastJSON:
     settings = request.app.state.settings
-    req, upload = await read_request_with_file(request, RunUpIn, settings)
+    req, upload = await read_request_with_file(request, RunUpRecordIn, settings)
     payload = await run_in_threadpool(runup_payload, req, settings, upload)
     if save:
         access: StoreAccess = request.app.state.store_access
