@@ -26,7 +26,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import numpy as np
 import scipy.signal
 
-from service.core.runup_record import analyse_run_up, order_spectrum
+from service.core.order_tracking import order_spectrum
+from service.core.runup_record import analyse_run_up
 from service.core.runup_sim import simulate_run_up
 
 RATE = 51_200.0

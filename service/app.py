@@ -12,7 +12,7 @@ from starlette.concurrency import run_in_threadpool
 
 from . import COMPUTATION_VERSION, __version__
 from .api.examples import install_examples
-from .api.routes import audits, diagnose, diagnoses, fold, health, plan
+from .api.routes import audits, diagnose, diagnoses, fold, health, plan, runup
 from .config import Settings, get_settings
 from .http.audit_jobs import AuditRunner
 from .http.bodies import ResponseCache
@@ -88,6 +88,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(fold.router)
     app.include_router(diagnose.router)
     app.include_router(plan.router)
+    app.include_router(runup.router)
     app.include_router(diagnoses.router)
     app.include_router(audits.router)
     install_examples(app, settings)

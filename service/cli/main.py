@@ -491,6 +491,9 @@ def build_parser() -> argparse.ArgumentParser:
     from .plan import register as register_plan
 
     register_plan(sub)
+    from .runup import register as register_runup
+
+    register_runup(sub)
 
     from .audit import register as register_audit
 

@@ -12,7 +12,7 @@ __all__ = ["SaveIn", "SavedLinkOut", "SavedOut", "SavedRecordOut"]
 class SaveIn(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
-    kind: Literal["fold", "diagnose", "compare", "plan"] = Field(
+    kind: Literal["fold", "diagnose", "compare", "plan", "run-up"] = Field(
         description="Which computation: the request is what that endpoint takes"
     )
     request: dict[str, Any] = Field(description="The request body of that endpoint")

@@ -258,5 +258,21 @@ async def _read_file(
     return Upload(data=data, filename=item.filename or name)
 
 
+async def read_request_with_file(
+    request: Request, model: type[M], settings: Any
+) -> tuple[M, Upload | None]:
+    """A request of ``model`` as a JSON body, or as multipart (``file`` plus the JSON
+    ``request`` field); the upload, if any, with it."""
+    upload = None
+    if is_multipart(request):
+        raw, files = await read_multipart(request, ("file",), settings.max_upload_bytes)
+        upload = files.get("file")
+        if upload is None:
+            raise Problem(422, "the multipart form needs a file field 'file'", field="file")
+    else:
+        raw = await read_body(request, settings.max_body_bytes)
+    return parse_json_body(model, raw), upload
+
+
 def is_multipart(request: Request) -> bool:
     return request.headers.get("content-type", "").startswith("multipart/form-data")

@@ -22,7 +22,7 @@ from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
 __all__ = ["JOB_STATES", "KINDS", "AuditJobRow", "Base", "SavedDiagnosisRow"]
 
 # What a saved record holds: the output of one of the service's computations.
-KINDS: tuple[str, ...] = ("diagnose", "compare", "fold", "plan", "audit")
+KINDS: tuple[str, ...] = ("diagnose", "compare", "fold", "plan", "audit", "run-up")
 
 #: The states of an audit job, in the order a job goes through them.
 JOB_STATES: tuple[str, ...] = ("queued", "running", "done", "failed", "interrupted")
@@ -64,7 +64,9 @@ class SavedDiagnosisRow(Base):
     title: Mapped[str | None] = mapped_column(String(200))
 
     __table_args__ = (
-        CheckConstraint("kind IN ('diagnose', 'compare', 'fold', 'plan', 'audit')", name="kind"),
+        CheckConstraint(
+            "kind IN ('diagnose', 'compare', 'fold', 'plan', 'audit', 'run-up')", name="kind"
+        ),
         # For a retention job that removes old records; ids themselves are never listed.
         Index("ix_saved_diagnosis_created_at", "created_at"),
     )

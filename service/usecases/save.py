@@ -19,11 +19,13 @@ from ..config import Settings
 from ..contract.diagnose import CompareIn, DiagnoseIn
 from ..contract.fold import FoldIn
 from ..contract.plan import PlanIn
+from ..contract.runup import RunUpRecordIn
 from .compare import compare_payload
 from .diagnose import diagnose_payload
 from .errors import RequestError
 from .fold import fold_payload
 from .plan import plan_payload
+from .runup import runup_payload
 
 __all__ = [
     "SAVEABLE",
@@ -57,6 +59,8 @@ def stored_request(kind: str, req: BaseModel) -> dict[str, Any]:
         exclude = _SIDE
     elif kind == "compare":
         exclude = {"a": _SIDE, "b": _SIDE, "captures": {"__all__": _SIDE}}
+    elif kind == "run-up":
+        exclude = {"vibration", "tacho"}  # the record is not kept; its display payload is
     dumped: dict[str, Any] = req.model_dump(mode="json", exclude_none=True, exclude=exclude)
     return dumped
 
@@ -116,12 +120,18 @@ def _plan(req: BaseModel, settings: Settings) -> SaveParts:
     return saved_parts("plan", req, plan_payload(req, settings))
 
 
+def _runup(req: BaseModel, settings: Settings) -> SaveParts:
+    assert isinstance(req, RunUpRecordIn)
+    return saved_parts("run-up", req, runup_payload(req, settings))
+
+
 #: kind → (request model, compute-and-split function). Other kinds register here.
 SAVEABLE: dict[str, tuple[type[BaseModel], Callable[[BaseModel, Settings], SaveParts]]] = {
     "fold": (FoldIn, _fold),
     "diagnose": (DiagnoseIn, _diagnose),
     "compare": (CompareIn, _compare),
     "plan": (PlanIn, _plan),
+    "run-up": (RunUpRecordIn, _runup),
 }
 
 

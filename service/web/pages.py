@@ -46,6 +46,8 @@ from .forms import (
 from .plan_page import plan_result_context
 from .plan_page import router as plan_router
 from .rendering import WAYS_IN, render, templates
+from .runup_page import router as runup_router
+from .runup_page import runup_result_context
 
 __all__ = [
     "CAUTION",
@@ -201,6 +203,7 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         "diag": None,
         "cmp": None,
         "plan": None,
+        "runup": None,
         "saved_here": True,
         "same_computation": record.computation_version == COMPUTATION_VERSION,
     }
@@ -225,6 +228,8 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
         )
     elif record.kind == "plan":
         ctx["plan"] = await run_in_threadpool(plan_result_context, record.request, record.result)
+    elif record.kind == "run-up":
+        ctx["runup"] = await run_in_threadpool(runup_result_context, record.result)
     elif record.kind == "audit":
         ctx = {"active": "", "job": None, "record": record, **audit_context(record.result)}
         return render(request, "audit.html", ctx)
@@ -284,3 +289,4 @@ def install_pages(app: FastAPI) -> None:
     app.include_router(diagnose_router)
     app.include_router(plan_router)
     app.include_router(audit_router)
+    app.include_router(runup_router)

@@ -114,6 +114,13 @@ WAYS_IN = [
         "text": "Which sample rate, anti-alias filter and analysis lines keep the band of "
         "interest clean, and how long the record must be.",
     },
+    {
+        "key": "run-up",
+        "title": "Run-up",
+        "path": "/run-up",
+        "text": "A record taken while the speed sweeps, with its tacho: which lines of the "
+        "frequency × speed map are real orders and which are folded back.",
+    },
 ]
 
 

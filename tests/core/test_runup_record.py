@@ -11,15 +11,10 @@ import numpy as np
 import pytest
 
 from service.core.errors import InputError
-from service.core.runup_record import (
-    KnownLine,
-    analyse_run_up,
-    apparent_order,
-    display_map,
-    known_lines_from_tones,
-    order_spectrum,
-    runup_map,
-)
+from service.core.order_tracking import apparent_order, order_spectrum
+from service.core.runup_lines import KnownLine, known_lines_from_tones
+from service.core.runup_map import display_map, runup_map
+from service.core.runup_record import analyse_run_up
 from service.core.runup_sim import drive_lines, simulate_run_up
 from service.core.tacho import speed_from_tacho, speed_from_trace
 from service.core.tones import ToneSet, strings

@@ -34,7 +34,7 @@ class TestMigrate:
             with store.engine.connect() as conn:
                 assert not inspect(conn).has_table("saved_diagnosis")
             store.migrate()
-            assert store.schema_revision() == Store.head_revision() == "0002"
+            assert store.schema_revision() == Store.head_revision() == "0003"
             with store.engine.connect() as conn:
                 insp = inspect(conn)
                 assert {c["name"] for c in insp.get_columns("saved_diagnosis")} == COLUMNS
@@ -77,14 +77,41 @@ class TestMigrate:
                 raise AssertionError("insert with kind='other' was accepted")
             finally:
                 conn.rollback()
+            # Migration 0002 widened the constraint to the run-up kind.
+            conn.execute(
+                text(
+                    "INSERT INTO saved_diagnosis (id, delete_token_hash, kind, created_at, "
+                    "computation_version, app_version, request, result) VALUES "
+                    "('y', 'h', 'run-up', CURRENT_TIMESTAMP, 'c', 'a', '{}', '{}')"
+                )
+            )
+            conn.rollback()
+
+    def test_upgrade_from_0001_keeps_rows(self, db_url: str) -> None:
+        # A store saved under 0001 keeps its rows when 0002 swaps the kind constraint.
+        cfg = _alembic_config(db_url)
+        store = Store.from_url(db_url)
+        try:
+            command.upgrade(cfg, "0001")
+            with store.engine.begin() as conn:
+                conn.execute(
+                    text(
+                        "INSERT INTO saved_diagnosis (id, delete_token_hash, kind, created_at, "
+                        "computation_version, app_version, request, result) VALUES "
+                        "('old', 'h', 'plan', CURRENT_TIMESTAMP, 'c', 'a', '{}', '{}')"
+                    )
+                )
+            command.upgrade(cfg, "head")
+            with store.engine.connect() as conn:
+                kinds = conn.execute(text("SELECT kind FROM saved_diagnosis")).scalars().all()
+            assert kinds == ["plan"]
+        finally:
+            store.close()
 
     def test_downgrade_and_command_line_config(self, db_url: str) -> None:
         # The path an operator takes with the alembic command: a config naming only the
         # script location and the URL, no connection handed over.
-        cfg = Config()
-        cfg.set_main_option("script_location", str(store_module._MIGRATIONS_DIR))
-        cfg.set_main_option("path_separator", "os")
-        cfg.set_main_option("sqlalchemy.url", db_url.replace("%", "%%"))
+        cfg = _alembic_config(db_url)
         store = Store.from_url(db_url)  # creates the SQLite file's directory
         try:
             command.upgrade(cfg, "head")
@@ -97,3 +124,12 @@ class TestMigrate:
             assert store.schema_revision() == Store.head_revision()
         finally:
             store.close()
+
+
+def _alembic_config(db_url: str) -> Config:
+    """What an operator gives the alembic command: the script location and the URL."""
+    cfg = Config()
+    cfg.set_main_option("script_location", str(store_module._MIGRATIONS_DIR))
+    cfg.set_main_option("path_separator", "os")
+    cfg.set_main_option("sqlalchemy.url", db_url.replace("%", "%%"))
+    return cfg

@@ -10,8 +10,14 @@ from fastapi import APIRouter, Query, Request
 from starlette.concurrency import run_in_threadpool
 
 from ...contract.diagnose import CompareIn, CompareOut, DiagnoseIn, DiagnoseOut
-from ...http.bodies import body_openapi, is_multipart, parse_json_body, read_body, read_multipart
-from ...http.problems import Problem
+from ...http.bodies import (
+    body_openapi,
+    is_multipart,
+    parse_json_body,
+    read_body,
+    read_multipart,
+    read_request_with_file,
+)
 from ...http.responses import FastJSON
 from ...http.store_access import StoreAccess
 from ...usecases.compare import compare_payload
@@ -113,15 +119,7 @@ async def diagnose(
     title: str | None = Query(None, max_length=200),
 ) -> FastJSON:
     settings = request.app.state.settings
-    upload = None
-    if is_multipart(request):
-        raw, files = await read_multipart(request, ("file",), settings.max_upload_bytes)
-        upload = files.get("file")
-        if upload is None:
-            raise Problem(422, "the multipart form needs a file field 'file'", field="file")
-    else:
-        raw = await read_body(request, settings.max_body_bytes)
-    req = parse_json_body(DiagnoseIn, raw)
+    req, upload = await read_request_with_file(request, DiagnoseIn, settings)
     return await _answer(request, "diagnose", req, diagnose_payload, upload, save, title)
 
 
