@@ -205,10 +205,13 @@ def _diagnose_request(ns: argparse.Namespace) -> dict[str, Any]:
 
 def _print_diagnosis(out: dict[str, Any]) -> None:
     s = out["summary"]
+    print(s["headline"])
     print(f"{s['input']}")
     print(
-        f"bin {s['bin_width_hz']:.4g} Hz · Nyquist {out['nyquist_hz']:g} Hz · protected to "
-        f"{out['protected_edge_hz']:g} Hz · values read as {s['unit']} ({s['unit_reason']})"
+        f"bin {s['bin_width_hz']:.4g} Hz · Nyquist {out['nyquist_hz']:g} Hz · analysed span "
+        f"{out['span_hz']:g} Hz (chain rejects {out['rejection_at_span_edge_db']:.1f} dB at "
+        f"its edge, {out['rejection_at_fold_of_span_edge_db']:.1f} dB at fs − span) · values "
+        f"read as {s['unit']} ({s['unit_reason']})"
     )
     print("chain: " + " → ".join(out["stages"]))
     for note in out["notes"]:

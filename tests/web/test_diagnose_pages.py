@@ -142,9 +142,9 @@ class TestDiagnosePage:
         assert "real (direct)" in names
         alias = _trace(spec, "alias")
         assert any(abs(x - carrier) < 6.4 for x in alias["x"])
-        # The protected edge (filter cutoff) and fs/2 are drawn.
+        # The analysed span edge (fs/2.56) and fs/2 are drawn.
         shapes = {s["name"]: s for s in spec["layout"]["shapes"]}
-        assert shapes["Nyquist"]["x0"] == 6400.0 and shapes["protected band edge"]["x0"] == 5000
+        assert shapes["Nyquist"]["x0"] == 6400.0 and shapes["analysed span edge"]["x0"] == 5000
         # The folding diagram carries the carrier from 10 kHz to where it was measured.
         fold = figs["diag-fold-figure-data"]
         peaks = _trace(fold, "alias peaks")
