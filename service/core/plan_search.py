@@ -495,12 +495,13 @@ def _amplitude_basis(prob: SearchProblem, reports: list[ToneAlias]) -> dict[str,
         }
     if prob.reference_assumed:
         name = str(prob.tones.label[prob.reference_tone])
+        weakest = fmt_num(prob.weakest_known_db, 3)
         return {
             "amplitude_basis": "unknown_reference_as_weakest",
             "amplitude_basis_text": (
                 f"The allowed alias level is set by '{name}', whose amplitude is not given: "
-                f"it was taken as weak as the weakest tone with one ({fmt_num(prob.weakest_known_db, 3)} "
-                "dB), the cautious side; give its amplitude to plan for its real level."
+                f"it was taken as weak as the weakest tone with one ({weakest} dB), the "
+                "cautious side; give its amplitude to plan for its real level."
             ),
         }
     if worst is not None and worst.amplitude_assumed:

@@ -267,7 +267,7 @@ def _speed(req: DiagnoseIn, d: Diagnosis) -> dict[str, Any] | None:
         if rpm is not None:
             given.append({"source": src.label, "given_rpm": rpm, "used_rpm": round(rpm * ratio, 6)})
     return {
-        "estimated": bool(e.trustworthy and ratio != 1.0),
+        "estimated": bool(e.trustworthy),
         "ratio": ratio,
         "offset_pct": round(e.offset_pct, 4),
         "uncertainty_pct": _none(round(100.0 * e.ratio_uncertainty, 4)),

@@ -261,9 +261,12 @@ class TestPlan:
         assert weakest.amplitude_basis == "known"
         # The aliased role stays cautious too: an unknown carrier is as strong as the
         # strongest known tone, and its alias (12.8 - 11.5 = 1.3 kHz, in band) binds.
+        carrier_unknown = ToneSet.explicit(
+            [300.0, 11_500.0], ["1×", "carrier"], amplitude=[1.0, np.nan]
+        )
         alias_unknown = P.plan(
             P.PlanRequest(
-                tones=ToneSet.explicit([300.0, 11_500.0], ["1×", "carrier"], amplitude=[1.0, np.nan]),
+                tones=carrier_unknown,
                 band_hz=(0, 2000), rejection_db=60, rates_hz=(12_800.0,), filters=FILTERS,
             )
         )  # fmt: skip
