@@ -141,9 +141,9 @@ class DiagnoseIn(_ChainOptional):
         allow_inf_nan=False,
         description=(
             "Uncertainty of the machines' speed, percent. Leave it out for automatic: twice "
-            "the running-speed estimate's uncertainty when the speed was estimated (at "
-            "least 0.05 %), else 0.5 % (speed controllers and tachometers hold a speed to "
-            "within a fraction of a percent to about 1 %)"
+            "the running-speed estimate's uncertainty when the speed was estimated, at "
+            "least 0.05 %, and 0.05 % otherwise (an off-nameplate speed is the speed "
+            "search's job; a wide tolerance lets high orders swallow unrelated peaks)"
         ),
     )
     speed_search_pct: float = Field(

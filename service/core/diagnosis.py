@@ -14,9 +14,11 @@ Steps, in order:
    :data:`service.core.speed.DEFAULT_SEARCH_PCT`, 4 %) that makes the folded tones
    explain the most peaks; a trustworthy estimate scales every speed-proportional tone.
 2. **Speed tolerance**: given, or (default) twice the estimate's standard uncertainty
-   when the estimate is used (at least :data:`MIN_AUTO_TOLERANCE_PCT`), else
-   :data:`UNESTIMATED_TOLERANCE_PCT`. The old default, 0 %, treated the stated speed as
-   exact; a 0.7 % error moves the 30th order of a 25 Hz shaft by 5 Hz, many bins.
+   when the estimate is used (at least :data:`MIN_AUTO_TOLERANCE_PCT`, 0.05 %), else
+   :data:`UNESTIMATED_TOLERANCE_PCT` (the same 0.05 %). The old default, 0 %, treated the
+   stated speed as exact and nothing corrected it: a 0.7 % error moves the 30th order of a
+   25 Hz shaft by 5 Hz, many bins. The search corrects such an error; a wide tolerance
+   instead would let high orders swallow unrelated peaks.
 3. **Blind families** (:func:`service.core.harmonics.find_families`) when asked.
 4. **Attribution** (:func:`service.core.attribution.attribute`), with calibrated
    confidence.
@@ -52,10 +54,12 @@ __all__ = [
 #: Smallest automatic speed tolerance when the speed was estimated, percent: the
 #: estimate's own uncertainty can come out tiny on a clean record.
 MIN_AUTO_TOLERANCE_PCT = 0.05
-#: Automatic speed tolerance when the speed was not estimated (search off, no
-#: speed-proportional tones, or an estimate not trusted), percent: speed controllers and
-#: tachometers hold a set speed to within a fraction of a percent to about 1 %.
-UNESTIMATED_TOLERANCE_PCT = 0.5
+#: Automatic speed tolerance when the speed was not estimated (search off, or an estimate
+#: not trusted), percent. Kept as small as the estimated case's floor: a wide interval at
+#: a high order swallows unrelated peaks (0.5 % is ±14 Hz at 2.8 kHz, enough to call a
+#: folded inverter carrier a gear-mesh sideband), and an off-nameplate speed is the speed
+#: search's job, with a note when most peaks stay unexplained.
+UNESTIMATED_TOLERANCE_PCT = MIN_AUTO_TOLERANCE_PCT
 #: More than this fraction of the peaks unexplained (with sources given) earns a note.
 MOST_UNEXPLAINED = 0.5
 
@@ -178,9 +182,14 @@ def diagnose_peaks(
     )
     unexplained = int(np.sum(att.verdict == "unexplained"))
     if tones is not None and len(att) and unexplained > MOST_UNEXPLAINED * len(att):
-        notes.append(
-            f"{unexplained} of {len(att)} peaks are left unexplained with the sources given "
+        check = (
             f"at a speed tolerance of {speed_tol:.3g} %: check the stated speed (or widen "
             "speed_search_pct or speed_tolerance_pct), the sources' list and the chain"
+            if moving
+            else "(none of them moves with speed): check the tones' list and the chain"
+        )
+        notes.append(
+            f"{unexplained} of {len(att)} peaks are left unexplained with the sources given "
+            + check
         )
     return Diagnosis(att, families, estimate, speed_tol, used, tuple(notes))

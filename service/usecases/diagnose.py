@@ -208,6 +208,7 @@ def headline(peaks: list[dict[str, Any]], sources_given: bool) -> dict[str, Any]
         else "name the machine's sources (shaft speeds, gear teeth, bearings, inverter, "
         "supply) or capture again at a second sample rate"
     )
+    them = "it" if unexplained == 1 else "them"
     some = f"{unexplained} of {n} peak{'s' if n != 1 else ''} {_are(unexplained)} unexplained"
     if n == 0:
         status = "no_peaks"
@@ -221,10 +222,10 @@ def headline(peaks: list[dict[str, Any]], sources_given: bool) -> dict[str, Any]
         names = ", ".join(f"{k} ({v})" for k, v in sorted(by_source.items(), key=lambda kv: -kv[1]))
         a = len(aliased)
         text = f"{a} of {n} peak{'s' if n != 1 else ''} {_are(a)} probably aliased: {names}"
-        text += f"; {some} — to settle them, {settle}." if unexplained else "."
+        text += f"; {some} — to settle {them}, {settle}." if unexplained else "."
     elif unexplained:
         status = "unexplained_peaks"
-        text = f"No alias identified, but {some}: to settle them, {settle}."
+        text = f"No alias identified, but {some}: to settle {them}, {settle}."
     else:
         status = "no_aliases"
         text = f"No aliases: all {n} peak{'s are' if n != 1 else ' is'} explained as real lines."

@@ -8,9 +8,9 @@ from typing import Any
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
-from scipy import signal
 
 from service.demo import demo_diagnose_request, demo_sliced_chain, demo_sources, demo_spectrum
+from tests.api.test_diagnose import _capture
 
 FS = 2560.0
 NAMEPLATE_RPM = 1480.0
@@ -19,17 +19,10 @@ ORDERS = list(range(1, 16))
 TEETH = 23
 
 
-def _record(tones: list[tuple[float, float]], fs: float, seconds: float = 8.0) -> np.ndarray:
-    """Reference record from first principles: each tone through the analog 4th-order
-    Butterworth at 1 kHz (scipy.signal.butter + freqs), sampled at t = k/fs."""
-    b, a = signal.butter(4, 2 * np.pi * 1000.0, analog=True)
-    f = np.array([t for t, _ in tones])
-    _, h = signal.freqs(b, a, worN=2 * np.pi * f)
-    t = np.arange(int(seconds * fs)) / fs
-    x = np.zeros(t.size)
-    for (freq, amp), g in zip(tones, h, strict=True):
-        x += amp * abs(g) * np.cos(2 * np.pi * freq * t + np.angle(g))
-    return x + np.random.default_rng(3).normal(0, 1e-4, t.size)
+def _record(tones: list[tuple[float, float]], fs: float) -> np.ndarray:
+    """The reference record of tests/api/test_diagnose.py (scipy.signal.butter + freqs,
+    sampled at t = k/fs) behind a 4th-order Butterworth at 1 kHz, 8 s long."""
+    return _capture(tones, fs=fs, seconds=8.0, analog_order=4, cutoff=1000.0, seed=3)
 
 
 def _machine_body(stated_rpm: float, **extra: Any) -> dict[str, Any]:

@@ -165,7 +165,20 @@ class TestDiagnosePage:
         fig = figures_of(r.text)["measured-figure-data"]
         assert len(_trace(fig, "spectrum")["x"]) == 2049  # under 2 × buckets: kept whole
         assert "1 of 2 peaks is probably alias" in re.sub(r"<[^>]+>|\s+", " ", r.text)
+        assert 'data-status="aliases_found"' in r.text
         assert_strict_page(r.text)
+
+    def test_no_sources_is_not_an_all_clear(self, page_client: TestClient) -> None:
+        # Two in-band tones and no sources: nothing explains them, and the page says so
+        # with the answer's own headline instead of a calm "no alias".
+        text = _sampled_spectrum(10_000.0, [(1000.0, 1.0), (2000.0, 0.5)])
+        data = {"sample_rate_hz": "10000", "threshold_db": "20", "spectrum_text": text}
+        r = page_client.post("/diagnose", data=data)
+        assert r.status_code == 200, _summary(r.text)
+        flat = re.sub(r"<[^>]+>|\s+", " ", r.text)
+        assert 'data-status="unexplained_peaks"' in r.text
+        assert "2 of 2 peaks are unexplained" in flat and "second sample rate" in flat
+        assert "No aliases" not in flat
 
     def test_upload_file(self, page_client: TestClient) -> None:
         text = _sampled_spectrum(10_000.0, [(7300.0, 1.0)])
