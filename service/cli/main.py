@@ -197,7 +197,11 @@ def _diagnose_request(ns: argparse.Namespace) -> dict[str, Any]:
     if ns.window is not None and ns.window != "unknown":
         opts["window"] = ns.window
     req["spectrum_options"] = opts
-    for key, value in (("threshold_db", ns.threshold), ("speed_tolerance_pct", ns.speed_tolerance)):
+    for key, value in (
+        ("threshold_db", ns.threshold),
+        ("speed_tolerance_pct", ns.speed_tolerance),
+        ("speed_search_pct", ns.speed_search),
+    ):
         if value is not None:
             req[key] = value
     return req
@@ -372,6 +376,12 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--lines", type=int, help="analysis lines for a time record")
     d.add_argument("--threshold", type=float, metavar="DB", help="peak threshold over floor")
     d.add_argument("--speed-tolerance", type=float, metavar="PCT", help="speed uncertainty")
+    d.add_argument(
+        "--speed-search",
+        type=float,
+        metavar="PCT",
+        help="search the running speed within ± PCT of the speeds given (default 4; 0: off)",
+    )
     d.add_argument("--json", action="store_true", help="print the API's JSON")
     d.set_defaults(func=_cmd_diagnose)
 
