@@ -132,27 +132,3 @@ class TestSlicedRecordScenario:
             assert round(carrier_hz[winner.tone_index] / fc) == 1, winner.label
             demoted = [a for a, w in zip(alts, choice.weight, strict=True) if w < 1]
             assert demoted and all(round(carrier_hz[a.tone_index] / fc) == 3 for a in demoted)
-
-    def test_attribute_itself_prefers_the_1x_carrier(self) -> None:
-        """The same record through attribute() alone, amplitudes unknown: its verdicts
-        name the 1× group at 2.0 and 2.4 kHz, as the simulation's truth says (only the 1×
-        group was simulated; tests/core/simulate.py). Here the tie-break on the lower zone
-        already agrees; the demotion itself is checked above."""
-        fs, fc, f1 = 12_800.0, 10_000.0, 200.0
-        truth = [(fc, 0.05), (fc - 2 * f1, 0.02), (fc + 2 * f1, 0.02),
-                 (fc - 4 * f1, 0.008), (fc + 4 * f1, 0.008)]  # fmt: skip
-        sim = SimChain(fs, ("butter", 2, 4000.0), digital=(("decimate", 2, "none"),))
-        cap = simulate_capture(truth, sim, 3.0, 1e-4, 2, lines=1600)
-        chain = Chain((AnalogLowpass(family="butterworth", order=2, cutoff_hz=4000.0),
-                       Sample(fs), Decimate(2, filter="none")))  # fmt: skip
-        # No amplitudes given: the level check cannot tell the groups apart, only the
-        # chain's attenuation of each group's carrier can.
-        tones = PwmCarrier("inverter", fc, f1, carrier_multiples=3, sidebands=4).expand()
-        p = cap.peaks
-        at = attribute(p.freq_hz, p.amplitude, p.floor, chain, tones,
-                       cap.spectrum.bin_width_hz, max_alternatives=5)  # fmt: skip
-        for apparent in (2000.0, 2400.0):
-            i = nearest_peak(p, apparent)
-            assert at.verdict[i] == "alias" and at.aliased[i]
-            # Reference: the simulated tones are 10 kHz ± n·200 Hz only.
-            assert abs(at.true_hz[i] - fc) <= 4 * f1 + 1.0, (at.tone_label[i], at.true_hz[i])
