@@ -35,7 +35,7 @@ References
 .. [4] P. D. Welch, "The use of fast Fourier transform for the estimation of power
    spectra", *IEEE Trans. Audio Electroacoust.* 15(2), 1967, pp. 70-73 (averaging
    overlapped segments).
-.. [5] Common practice (no single source): the alias-protected span is fs/2.56, the
+.. [5] Common practice (no single source): the analysed span is fs/2.56, the
    record holds N = 2.56·lines samples, bin width = span / lines = fs / N.
 """
 
