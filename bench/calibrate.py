@@ -163,7 +163,7 @@ def main() -> int:
         "--held-out", type=_seeds, default=_seeds("100000:102000"), help="held-out seeds lo:hi"
     )
     ap.add_argument("--min-group", type=int, default=150, help="fewest verdicts for a table")
-    ap.add_argument("--min-block", type=float, default=40.0, help="fewest verdicts per knot")
+    ap.add_argument("--min-block", type=float, default=80.0, help="fewest verdicts per knot")
     ap.add_argument("--write", action="store_true", help="rewrite the tables module")
     args = ap.parse_args()
     if set(args.fit) & set(args.held_out):

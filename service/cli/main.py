@@ -256,7 +256,11 @@ def _diagnose_request(ns: argparse.Namespace) -> dict[str, Any]:
     if ns.window is not None and ns.window != "unknown":
         opts["window"] = ns.window
     req["spectrum_options"] = opts
-    for key, value in (("threshold_db", ns.threshold), ("speed_tolerance_pct", ns.speed_tolerance)):
+    for key, value in (
+        ("threshold_db", ns.threshold),
+        ("speed_tolerance_pct", ns.speed_tolerance),
+        ("speed_search_pct", ns.speed_search),
+    ):
         if value is not None:
             req[key] = value
     return req
@@ -274,10 +278,13 @@ _VERDICT_COUNT_WORDS = {
 
 def _print_diagnosis(out: dict[str, Any]) -> None:
     s = out["summary"]
+    print(s["headline"])
     print(f"{s['input']}")
     print(
-        f"bin {s['bin_width_hz']:.4g} Hz · Nyquist {out['nyquist_hz']:g} Hz · protected to "
-        f"{out['protected_edge_hz']:g} Hz · values read as {s['unit']} ({s['unit_reason']})"
+        f"bin {s['bin_width_hz']:.4g} Hz · Nyquist {out['nyquist_hz']:g} Hz · analysed span "
+        f"{out['span_hz']:g} Hz (chain rejects {out['rejection_at_span_edge_db']:.1f} dB at "
+        f"its edge, {out['rejection_at_fold_of_span_edge_db']:.1f} dB at fs − span) · values "
+        f"read as {s['unit']} ({s['unit_reason']})"
     )
     print("chain: " + " → ".join(out["stages"]))
     for note in s.get("input_notes", []):
@@ -549,6 +556,12 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--lines", type=int, help="analysis lines for a time record")
     d.add_argument("--threshold", type=float, metavar="DB", help="peak threshold over floor")
     d.add_argument("--speed-tolerance", type=float, metavar="PCT", help="speed uncertainty")
+    d.add_argument(
+        "--speed-search",
+        type=float,
+        metavar="PCT",
+        help="search the running speed within ± PCT of the speeds given (default 4; 0: off)",
+    )
     d.add_argument("--json", action="store_true", help="print the API's JSON")
     d.set_defaults(func=_cmd_diagnose)
 

@@ -289,6 +289,8 @@ def _print_plan(out: dict[str, Any]) -> None:
         print(f"\nCheaper options that fail ({len(out['rejected'])}):")
         for rej in out["rejected"]:
             print(f"  - {rej['reason']}")
+    if out.get("amplitude_basis_text"):
+        print(f"\nAmplitudes: {out['amplitude_basis_text']}")
     if out["residual_risk"]:
         print("\nResidual risk:")
         for note in out["residual_risk"]:

@@ -6,6 +6,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field, model_validator
 
+from ..core.speed import DEFAULT_SEARCH_PCT
 from .common import (
     Hz,
     HzOrZero,
@@ -168,7 +169,30 @@ class DiagnoseIn(_ChainOptional):
     upload: UploadIn | None = Field(None, description="Multipart only: how to read the file")
     tones: list[ToneIn] | None = Field(None, min_length=1)
     sources: list[SourceIn] | None = Field(None, min_length=1, max_length=500)
-    speed_tolerance_pct: float = Field(0.0, ge=0, le=50, allow_inf_nan=False)
+    speed_tolerance_pct: float | None = Field(
+        None,
+        ge=0,
+        le=50,
+        allow_inf_nan=False,
+        description=(
+            "Uncertainty of the machines' speed, percent. Leave it out for automatic: twice "
+            "the running-speed estimate's uncertainty when the speed was estimated, at "
+            "least 0.05 %, and 0.05 % otherwise (an off-nameplate speed is the speed "
+            "search's job; a wide tolerance lets high orders swallow unrelated peaks)"
+        ),
+    )
+    speed_search_pct: float = Field(
+        DEFAULT_SEARCH_PCT,
+        ge=0,
+        le=20,
+        allow_inf_nan=False,
+        description=(
+            "Search the actual running speed within ± this percent of the speeds given, "
+            "from the peaks themselves; 0 turns the search off. Default 4 %: an induction "
+            "motor slips s = (n_sync − n)/n_sync, a few percent below synchronous speed at "
+            "rated load (common practice), and controllers and tachometers drift"
+        ),
+    )
     band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
         None, description="Band of interest, Hz; default DC to final rate / 2.56"
     )
@@ -362,8 +386,22 @@ class PeakOut(BaseModel):
     true_hz: float | None = Field(description="Estimated true frequency, Hz, or null")
     zone: int | None = Field(description="Nyquist zone of the true frequency, or null")
     inverted: bool | None
+    aliased: bool = Field(
+        description=(
+            "The verdict's energy comes from above the Nyquist frequency of the final rate "
+            "(an alias, a mirror, or a harmonic-family member from a zone above the first). "
+            "False for real lines and unexplained peaks. A controller can rely on this "
+            "instead of the verdict: a 'family' verdict can be either"
+        ),
+        examples=[True],
+    )
     in_band: bool
-    unprotected: bool = Field(description="Between the protected band edge and fs/2")
+    beyond_span: bool = Field(
+        description=(
+            "Above the analysed span (fs/2.56), where the anti-alias filter's transition "
+            "band lets folded energy in"
+        )
+    )
     explanation: str = Field(description="One plain sentence")
     alternatives: list[AlternativeOut]
 
@@ -385,6 +423,25 @@ class ChannelOut(BaseModel):
     rms: float = Field(description="RMS about the mean, unit of the samples")
     analysed: bool = Field(description="The channel this answer analyses")
     reasons: list[str]
+
+
+class SourceSpeedOut(BaseModel):
+    source: str
+    given_rpm: float
+    used_rpm: float
+
+
+class SpeedOut(BaseModel):
+    estimated: bool = Field(description="The speed estimated from the peaks was used")
+    ratio: float = Field(description="Speed used / speed given")
+    offset_pct: float = Field(description="How far the speed used is from the one given, %")
+    uncertainty_pct: float | None = Field(description="1 σ of the estimate, %")
+    search_pct: float = Field(description="Searched ± this percent of the speed given")
+    tolerance_pct: float = Field(description="Speed tolerance used, %")
+    explained_at_given: int = Field(description="Peaks matched by some tone at the speed given")
+    explained_at_used: int = Field(description="... and at the speed used")
+    sources: list[SourceSpeedOut]
+    reason: str
 
 
 class SummaryOut(BaseModel):
@@ -418,6 +475,21 @@ class SummaryOut(BaseModel):
     floor_median: float = Field(description="Median noise floor (linear)")
     peaks_found: int
     peaks_shown: int
+    headline: str = Field(
+        description=(
+            "The answer in one sentence, as the pages and the command line show it: "
+            "'no aliases' only when every peak is explained as a real line"
+        ),
+        examples=["3 of 11 peaks are probably aliased: inverter (2), first mesh (1)."],
+    )
+    status: Literal["aliases_found", "unexplained_peaks", "no_aliases", "no_peaks"] = Field(
+        description="The headline as a code a controller can test"
+    )
+    aliased_count: int = Field(description="Peaks whose `aliased` is true")
+    unexplained_count: int
+    speed: SpeedOut | None = Field(
+        description="The running speed used against the speeds given (null: no search)"
+    )
 
 
 class DiagnoseOut(BaseModel):
@@ -425,7 +497,21 @@ class DiagnoseOut(BaseModel):
     nyquist_hz: float
     final_rate_hz: float
     band_hz: tuple[float, float]
-    protected_edge_hz: float
+    span_hz: float = Field(
+        description=(
+            "The analysed span, final rate / 2.56 (common practice). A convention, not a "
+            "guarantee: see the two rejections"
+        )
+    )
+    rejection_at_span_edge_db: float = Field(
+        description="The entered chain's attenuation at span_hz, dB"
+    )
+    rejection_at_fold_of_span_edge_db: float = Field(
+        description=(
+            "The entered chain's attenuation at fs − span_hz, the frequency that folds onto "
+            "the span edge, dB: how far below its true level an alias at the span edge is"
+        )
+    )
     tolerance_hz: float
     stages: list[str]
     notes: list[str]

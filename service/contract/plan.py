@@ -434,6 +434,17 @@ class PlanOut(BaseModel):
     tones: list[ToneAliasOut]
     rejected: list[RejectedOut] = Field(description="Every cheaper option, in cost order")
     residual_risk: list[str]
+    amplitude_basis: Literal[
+        "known", "unknown_alias_as_strongest", "unknown_reference_as_weakest", "all_unknown"
+    ] = Field(
+        description=(
+            "Which amplitude assumption set the answer. A tone without an amplitude is "
+            "taken on the cautious side of each role: as strong as the strongest given "
+            "amplitude where its alias counts, as weak as the weakest where it sets the "
+            "allowed alias level"
+        )
+    )
+    amplitude_basis_text: str = Field(description="The same as one sentence")
     runup: RunUpOut | None = None
     confirm_rate: ConfirmRateOut | None = Field(
         None,

@@ -1,12 +1,12 @@
 """Analysis lines, bin width and record length, and the resolution rule.
 
-An analyser shows DC to fs/2.56 as its alias-protected span; ``lines`` bins cover it,
+An analyser shows DC to fs/2.56 as its analysed span; ``lines`` bins cover it,
 so the bin width is ``span / lines`` and the record holds ``2.56·lines`` samples [1]_.
 Two tones are resolved when they are at least one main-lobe width apart [2]_.
 
 References
 ----------
-.. [1] Common practice (no single source): the alias-protected span is fs/2.56, the
+.. [1] Common practice (no single source): the analysed span is fs/2.56, the
    record holds N = 2.56·lines samples, bin width = span / lines = fs / N.
 .. [2] J. O. Smith III, *Spectral Audio Signal Processing*, W3K Publishing, 2011,
    "Resolving sinusoids" (an L-term cosine window's main lobe is 2L bins wide).
@@ -42,7 +42,7 @@ IntArray = NDArray[np.int64]
 BoolArray = NDArray[np.bool_]
 
 
-#: Common practice: an analyser shows DC to fs/2.56 as its alias-protected span [5]_.
+#: Common practice: an analyser shows DC to fs/2.56 as its analysed span [5]_.
 SPAN_DIVISOR = 2.56
 
 
@@ -111,7 +111,7 @@ class RecordLength:
     lines : int
         Analysis lines.
     span_hz : float
-        Alias-protected span fs/2.56, Hz.
+        Analysed span fs/2.56, Hz.
     bin_width_hz : float
         span / lines = fs / N, Hz.
     samples : int

@@ -8,9 +8,10 @@ the anti-alias filtering let through) or, when nothing fits, ``unexplained``. Th
 results and constants live in :mod:`service.core.attribution_model` and the sentences in
 :mod:`service.core.attribution_text` (both re-exported or used here).
 
-Confidence = frequency score × level score, capped at :data:`MAX_CONFIDENCE`: no
-explanation is ever certain. An alias verdict is a hypothesis about the measurement,
-not about the machine.
+Raw score = frequency score × level score, capped at :data:`MAX_CONFIDENCE`; the stated
+confidence is that score calibrated on simulated acquisitions with known truth
+(:mod:`service.core.calibration`), at most 0.97: no explanation is ever certain. An
+alias verdict is a hypothesis about the measurement, not about the machine.
 
 References
 ----------
@@ -18,7 +19,7 @@ References
    Fourier transform", *Proc. IEEE* 66(1), 1978 (main-lobe width of a window).
 .. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
    Pearson, 2010, sec. 4.2 (aliasing; the image of ``fs − f``).
-.. [3] Common practice (no single source): the alias-protected span is fs/2.56.
+.. [3] Common practice (no single source): the analysed span is fs/2.56.
 """
 
 from __future__ import annotations
@@ -31,6 +32,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from service.core.analysis_lines import SPAN_DIVISOR
+from service.core.calibration import calibrate
 from service.core.chain import Chain, ChainResponse
 from service.core.checks import check_band_hz, check_one_of, check_positive, check_range
 from service.core.errors import InputError
@@ -43,6 +45,7 @@ from service.core.harmonics import (
     format_db,
     format_hz,
 )
+from service.core.sidebands import carrier_levels_db, prefer_strongest_carrier, pwm_carriers
 from service.core.tones import ToneSet
 from service.core.windows import WINDOWS, window_figures
 
@@ -55,7 +58,9 @@ from .attribution_model import (
     KIND_DIRECT,
     KIND_FAMILY,
     KIND_MIRROR,
+    KINDS,
     MAX_CONFIDENCE,
+    MIN_CONFIDENCE,
     MIRROR_CONFIDENCE,
     REFINE_ERROR_BINS,
     REFINE_ERROR_UNKNOWN_BINS,
@@ -310,12 +315,17 @@ def attribute(
     how far the source would have to exceed the strongest peak by more than 40 dB
     (seen level + the chain's attenuation). Blind family members are scored
     against ``tol + 3·k·σ(f0)``, times a factor growing with the family's significance.
-    A peak above the protected band edge (final rate / 2.56 [3]_) may be the image of
+    A peak above the analysed span (final rate / 2.56 [3]_) may be the image of
     energy at ``fs − f`` just above the Nyquist frequency [2]_: a ``mirror`` whose
     confidence grows from 0.25 at the edge to 0.5 at fs/2, penalised like an unknown
     level when the chain's attenuation at ``fs − f`` would need an implausibly strong
-    source. Confidence = frequency score × level score (× family factor), at most
-    :data:`MAX_CONFIDENCE`. Everything is vectorised over peak × tone pairs found with
+    source. Raw score = frequency score × level score (× family factor), at most
+    :data:`MAX_CONFIDENCE`; PWM sideband candidates of a carrier multiple the chain
+    leaves more than 6 dB weaker than another consistent one are demoted
+    (:func:`service.core.sidebands.prefer_strongest_carrier`). Ranking, the
+    :data:`MIN_CONFIDENCE` gate and :data:`TIE_RATIO` use the raw score; the stated
+    confidence is calibrated (:func:`service.core.calibration.calibrate`, at most 0.97)
+    and sets the sentences' hedge. Everything is vectorised over peak × tone pairs found with
     sorted searches; only the kept explanations are turned into sentences.
     """
     rate = chain.final_rate_hz
@@ -346,18 +356,19 @@ def attribute(
         _add_known_tones(rows, peaks, tones, chain, speed_tol)
     for fi, fam in enumerate(fams):  # a few families, each vectorised over its members
         _add_family(rows, peaks, fi, fam, chain)
-    unprotected = freq > edge
-    _add_mirrors(rows, peaks, np.flatnonzero(unprotected), chain, edge)
+    beyond_span = freq > edge
+    _add_mirrors(rows, peaks, np.flatnonzero(beyond_span), chain, edge)
 
-    kept, r_peak, r_kind, r_zone, r_conf = _rank(rows, freq.size, n_alt)
+    kept, kept_rank, r_peak, r_kind, r_zone, r_conf = _rank(rows, freq.size, n_alt)
+    stated = _calibrated(rows, kept, kept_rank, r_peak, r_kind, r_conf, freq.size, tones is None)
     ctx = SentenceContext(
         freq={int(i): format_hz(freq[i]) for i in np.unique(r_peak[kept])},
         seen_db={int(i): format_db(peaks.seen_db[i]) for i in np.unique(r_peak[kept])},
         floor_db=peaks.floor_db.tolist(),
         tones=tones, families=fams, edge=edge, nyq=nyq, rate=rate,
     )  # fmt: skip
-    alternatives = _sentences(ctx, rows, kept, r_peak, r_kind, r_zone, r_conf, freq.size)
-    return assemble(freq, amp, alternatives, unprotected, band, peaks.tol, edge, notes, ctx)
+    alternatives = _sentences(ctx, rows, kept, r_peak, r_kind, r_zone, r_conf, stated, freq.size)
+    return assemble(freq, amp, alternatives, beyond_span, band, peaks.tol, edge, notes, ctx)
 
 
 def _check_max_alternatives(max_alternatives: int) -> int:
@@ -434,11 +445,32 @@ def _add_known_tones(
     conf = _freq_score(dist, peaks.tol) * _level_score(
         peaks.seen_db[pk], predicted, peaks.floor_db[pk], atten, peaks.top_db, peaks.lvl_tol
     )
+    _prefer_strongest_carrier(conf, pk, tn, dist, tones, chain, peaks.tol)
     rows.add(
         peak=pk, kind=kind, tone=tn, family=np.int64(-1), harmonic=harm,
         true_hz=resp.freq_hz[tn], zone=zone, atten=atten, predicted=predicted,
         error=dist, conf=conf,
     )  # fmt: skip
+
+
+def _prefer_strongest_carrier(
+    conf: FloatArray,
+    pk: IntArray,
+    tn: IntArray,
+    dist: FloatArray,
+    tones: ToneSet,
+    chain: Chain,
+    tol: float,
+) -> None:
+    """Demote, in place, PWM sideband candidates of a carrier multiple the chain leaves
+    far weaker than another multiple whose sidebands fold onto the same peak
+    (:func:`service.core.sidebands.prefer_strongest_carrier`)."""
+    c_hz, c_amp = pwm_carriers(tones)
+    sb = np.isfinite(c_hz[tn])
+    if not np.any(sb):
+        return
+    lvl = carrier_levels_db(chain.evaluate(c_hz[tn][sb]).attenuation_db, c_amp[tn][sb])
+    conf[sb] *= prefer_strongest_carrier(pk[sb], dist[sb], tol, lvl).weight
 
 
 def _add_family(rows: _Rows, peaks: _Peaks, fi: int, fam: Family, chain: Chain) -> None:
@@ -468,7 +500,7 @@ def _add_family(rows: _Rows, peaks: _Peaks, fi: int, fam: Family, chain: Chain) 
 
 
 def _add_mirrors(rows: _Rows, peaks: _Peaks, up: IntArray, chain: Chain, edge: float) -> None:
-    """Transition-band mirror candidates for the peaks above the protected edge."""
+    """Transition-band mirror candidates for the peaks above the analysed span."""
     if not up.size:
         return
     rate = chain.final_rate_hz
@@ -490,8 +522,9 @@ def _add_mirrors(rows: _Rows, peaks: _Peaks, up: IntArray, chain: Chain, edge: f
 
 def _rank(
     rows: _Rows, n_peaks: int, n_alt: int
-) -> tuple[IntArray, IntArray, IntArray, IntArray, FloatArray]:
-    """Rows kept (best ``n_alt`` per peak) and the peak, kind, zone, confidence columns.
+) -> tuple[IntArray, IntArray, IntArray, IntArray, IntArray, FloatArray]:
+    """Rows kept (best ``n_alt`` per peak), their rank within their peak (0 = best), and
+    the peak, kind, zone and raw confidence columns.
 
     Best first per peak; on equal confidence the simpler kind, then the lower zone.
     """
@@ -504,7 +537,40 @@ def _rank(
     starts = np.searchsorted(s_peak, np.arange(n_peaks), side="left")
     rank = np.arange(order.size) - starts[s_peak] if order.size else np.empty(0, np.int64)
     kept: IntArray = order[rank < n_alt].astype(np.int64)
-    return kept, r_peak, r_kind, r_zone, r_conf
+    kept_rank: IntArray = rank[rank < n_alt].astype(np.int64)
+    return kept, kept_rank, r_peak, r_kind, r_zone, r_conf
+
+
+def _calibrated(
+    rows: _Rows,
+    kept: IntArray,
+    kept_rank: IntArray,
+    r_peak: IntArray,
+    r_kind: IntArray,
+    r_conf: FloatArray,
+    n_peaks: int,
+    no_sources: bool,
+) -> FloatArray:
+    """Calibrated confidence of every row (NaN for rows not kept).
+
+    Ranking, the :data:`MIN_CONFIDENCE` gate and :data:`TIE_RATIO` stay on the raw
+    scores; only what is stated is calibrated (:func:`service.core.calibration.calibrate`):
+    a peak's best explanation through the verdicts' tables when it passes the gate, every
+    other kept explanation (ranked below, or of a peak left unexplained) through the
+    alternatives' tables. ``blind``: a member of a blind family, or a mirror found
+    without sources.
+    """
+    out: FloatArray = np.full(r_conf.size, np.nan)
+    if not kept.size:
+        return out
+    best = np.zeros(n_peaks)
+    top = kept[kept_rank == 0]
+    best[r_peak[top]] = r_conf[top]
+    chosen = (kept_rank == 0) & (best[r_peak[kept]] >= MIN_CONFIDENCE)
+    fam: IntArray = rows.cat("family", np.int64).astype(np.int64)[kept]
+    kinds = np.asarray(KINDS, dtype=object)[r_kind[kept]]
+    out[kept] = calibrate(kinds, r_conf[kept], no_sources | (fam >= 0), alternative=~chosen)
+    return out
 
 
 def _sentences(
@@ -515,6 +581,7 @@ def _sentences(
     r_kind: IntArray,
     r_zone: IntArray,
     r_conf: FloatArray,
+    stated: FloatArray,
     n_peaks: int,
 ) -> list[list[Explanation]]:
     """Only the kept rows become explanations with sentences, as Python scalars."""
@@ -528,7 +595,8 @@ def _sentences(
     }  # fmt: skip
     alternatives: list[list[Explanation]] = [[] for _ in range(n_peaks)]
     cols = [
-        r_peak[kept].tolist(), r_kind[kept].tolist(), r_conf[kept].tolist(),
+        r_peak[kept].tolist(), r_kind[kept].tolist(), stated[kept].tolist(),
+        r_conf[kept].tolist(),
         *(table[name][kept].tolist() for name in (
             "tone", "family", "harmonic", "true_hz")),
         r_zone[kept].tolist(),

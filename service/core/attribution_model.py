@@ -1,7 +1,8 @@
 """The attribution's answer: explanation kinds, confidence constants and the
 :class:`Explanation` and :class:`Attribution` results.
 
-Confidence = frequency score × level score, capped at :data:`MAX_CONFIDENCE`: no
+Raw score = frequency score × level score, capped at :data:`MAX_CONFIDENCE`; the stated
+confidence is calibrated (:mod:`service.core.calibration`), at most 0.97: no
 explanation is ever certain. An alias verdict is a hypothesis about the measurement,
 not about the machine.
 
@@ -55,7 +56,8 @@ KINDS: tuple[str, ...] = ("direct", "family", "alias", "mirror", "unexplained")
 MIN_CONFIDENCE = 0.3
 
 
-#: No explanation is ever certain.
+#: No raw score is ever certain (the stated, calibrated confidence is capped at
+#: :data:`service.core.calibration.MAX_CALIBRATED`, 0.97).
 MAX_CONFIDENCE = 0.95
 
 
@@ -89,7 +91,7 @@ REFINE_ERROR_UNKNOWN_BINS = 0.1
 SIGMA_FRACTION = 1.0 / 3.0
 
 
-#: Mirror confidence rises linearly from the protected band edge to fs/2.
+#: Mirror raw score rises linearly from the analysed span's edge (fs/2.56) to fs/2.
 MIRROR_CONFIDENCE = (0.25, 0.5)
 
 
@@ -118,7 +120,13 @@ class Explanation:
     kind : str
         ``"direct"``, ``"family"``, ``"alias"`` or ``"mirror"``.
     confidence : float
-        0 to :data:`MAX_CONFIDENCE`.
+        Calibrated confidence: how often explanations of this kind and raw score were
+        right on the project's simulated acquisitions
+        (:func:`service.core.calibration.calibrate`), 0.02 to 0.97; a ranked alternative
+        (or a candidate of an unexplained peak) uses the alternatives' tables.
+    raw_confidence : float
+        The raw score (frequency score × level score), 0 to :data:`MAX_CONFIDENCE`;
+        ranking, the :data:`MIN_CONFIDENCE` gate and :data:`TIE_RATIO` use it.
     tone_index : int
         Index of the tone in the ToneSet; -1 for a blind family member or a mirror.
     label : str or None
@@ -148,6 +156,7 @@ class Explanation:
 
     kind: str
     confidence: float
+    raw_confidence: float
     tone_index: int
     label: str | None
     source: str | None
@@ -171,11 +180,17 @@ class Attribution:
     freq_hz, amplitude : ndarray
         The peaks as given (Hz; linear amplitude).
     verdict : ndarray of str
-        Kind of the best explanation if its confidence >= :data:`MIN_CONFIDENCE`, else
+        Kind of the best explanation if its raw score >= :data:`MIN_CONFIDENCE`, else
         ``"unexplained"``.
     confidence : ndarray
-        Confidence of the best explanation (below :data:`MIN_CONFIDENCE` for an
-        ``"unexplained"`` peak; 0 if there is no candidate at all).
+        Calibrated confidence of the best explanation (for an ``"unexplained"`` peak:
+        of its closest candidate, as an alternative; 0 if there is no candidate at all).
+    raw_confidence : ndarray
+        Raw score of the best explanation (0 if there is no candidate).
+    aliased : ndarray of bool
+        The verdict's energy comes from above the Nyquist frequency of the final rate:
+        an ``alias``, a ``mirror``, or a ``family`` member from a zone above the first.
+        False for direct, in-band family members and unexplained peaks.
     source, tone_label : ndarray of str or None
         Of the verdict's explanation; None for ``"unexplained"`` and ``"mirror"``.
     true_hz : ndarray
@@ -185,16 +200,19 @@ class Attribution:
     inverted : ndarray of bool
     explanation : ndarray of str
         One sentence per peak (naming a second explanation when it is about as good).
-    unprotected : ndarray of bool
-        The peak lies above the alias-protected band edge (final rate / 2.56).
+    beyond_span : ndarray of bool
+        The peak lies above the analysed span (final rate / 2.56), where the anti-alias
+        filter's transition band lets folded energy in.
     in_band : ndarray of bool
         The peak lies inside the band of interest.
     alternatives : list of list of Explanation
         Per peak, up to ``max_alternatives`` explanations, best first.
     tolerance_hz : float
         Frequency tolerance used (window main-lobe half-width + refinement error), Hz.
-    protected_edge_hz : float
-        Upper edge of the alias-protected band, Hz.
+    span_hz : float
+        The analysed span, final rate / 2.56, Hz (common practice: lines = N/2.56). It
+        is a convention of analysers, not a guarantee: the chain's actual rejection at
+        the span edge and at the frequency folding onto it is what protects it.
     band_hz : (float, float)
         Band of interest, Hz.
     notes : tuple of str
@@ -205,17 +223,19 @@ class Attribution:
     amplitude: FloatArray
     verdict: ObjArray
     confidence: FloatArray
+    raw_confidence: FloatArray
+    aliased: BoolArray
     source: ObjArray
     tone_label: ObjArray
     true_hz: FloatArray
     zone: IntArray
     inverted: BoolArray
     explanation: ObjArray
-    unprotected: BoolArray
+    beyond_span: BoolArray
     in_band: BoolArray
     alternatives: list[list[Explanation]]
     tolerance_hz: float
-    protected_edge_hz: float
+    span_hz: float
     band_hz: tuple[float, float]
     notes: tuple[str, ...]
 

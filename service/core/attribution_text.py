@@ -73,6 +73,7 @@ def explanation_for(
     peak: int,
     kind: int,
     conf: float,
+    raw: float,
     tone: int,
     family: int,
     harmonic: float,
@@ -113,7 +114,7 @@ def explanation_for(
     kind_name = KINDS[kind]
     if kind == KIND_MIRROR:
         sentence = (
-            f"{p} lies in the unprotected band above {format_hz(ctx.edge)} and {hedge} the "
+            f"{p} lies above the analysed span ({format_hz(ctx.edge)}) and {hedge} the "
             f"image of energy at {format_hz(true_hz)}, just above the Nyquist frequency "
             f"{format_hz(ctx.nyq)}, that the filter's transition band let through; the "
             f"chain takes {format_db(atten)} off {format_hz(true_hz)}"
@@ -139,6 +140,7 @@ def explanation_for(
     return Explanation(
         kind=kind_name,
         confidence=conf,
+        raw_confidence=raw,
         tone_index=tone,
         label=label,
         source=source,
@@ -175,7 +177,7 @@ def assemble(
     freq: FloatArray,
     amp: FloatArray,
     alternatives: list[list[Explanation]],
-    unprotected: BoolArray,
+    beyond_span: BoolArray,
     band: tuple[float, float],
     tol: float,
     edge: float,
@@ -189,19 +191,21 @@ def assemble(
     label = np.empty(n, dtype=object)
     sentence = np.empty(n, dtype=object)
     conf = np.zeros(n)
+    raw = np.zeros(n)
     true = np.full(n, np.nan)
     zone = np.zeros(n, dtype=np.int64)
     inverted = np.zeros(n, dtype=bool)
     for i, alts in enumerate(alternatives):  # one sentence per peak
         best = alts[0] if alts else None
-        if best is None or best.confidence < MIN_CONFIDENCE:
+        if best is None or best.raw_confidence < MIN_CONFIDENCE:
             verdict[i] = "unexplained"
             conf[i] = best.confidence if best is not None else 0.0
+            raw[i] = best.raw_confidence if best is not None else 0.0
             text = f"no known tone, family or mirror convincingly explains {format_hz(freq[i])}"
             if best is not None:
                 text += f"; the closest is {_short(best)}, confidence {best.confidence:.2f}"
-            if unprotected[i]:
-                text += f"; it lies in the unprotected band above {format_hz(edge)}"
+            if beyond_span[i]:
+                text += f"; it lies above the analysed span ({format_hz(edge)})"
             # Say what would settle it: the engineer's next step, not only the verdict.
             text += (
                 "; to settle it, name the machine's sources or capture again at a second "
@@ -211,30 +215,34 @@ def assemble(
             continue
         verdict[i] = best.kind
         conf[i] = best.confidence
+        raw[i] = best.raw_confidence
         if best.kind != "mirror":
             source[i], label[i] = best.source, best.label
         true[i], zone[i], inverted[i] = best.true_hz, best.zone, best.inverted
         text = best.sentence
-        if len(alts) > 1 and alts[1].confidence >= TIE_RATIO * best.confidence:
+        if len(alts) > 1 and alts[1].raw_confidence >= TIE_RATIO * best.raw_confidence:
             text += f"; or, about as likely, {_short(alts[1])}"
         sentence[i] = text
     in_band = (freq >= band[0]) & (freq <= band[1])
+    aliased = (verdict == "alias") | (verdict == "mirror") | ((verdict == "family") & (zone > 1))
     return Attribution(
         freq_hz=freq,
         amplitude=amp,
         verdict=verdict,
         confidence=conf,
+        raw_confidence=raw,
+        aliased=aliased.astype(bool),
         source=source,
         tone_label=label,
         true_hz=true,
         zone=zone,
         inverted=inverted,
         explanation=sentence,
-        unprotected=unprotected,
+        beyond_span=beyond_span,
         in_band=in_band,
         alternatives=alternatives,
         tolerance_hz=tol,
-        protected_edge_hz=edge,
+        span_hz=edge,
         band_hz=band,
         notes=notes,
     )

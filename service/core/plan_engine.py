@@ -94,6 +94,9 @@ class SearchProblem:
     sensor_grid: FloatArray | None = None
     n_speeds: int = 0
     n_tones: int = 0
+    reference_tone: int = -1  # tone that set reference_db (-1: floor mode)
+    reference_assumed: bool = False  # its amplitude was unknown and assumed
+    weakest_known_db: float = 0.0  # what an unknown reference tone is taken as
 
 
 @dataclass
@@ -170,10 +173,19 @@ def prepare_problem(req: PlanRequest) -> tuple[SearchProblem, dict[str, object]]
                 code="no_reference",
             )
         reference_db = 0.0  # all amplitudes unknown: every tone at one common level
-    strongest_db = float(20.0 * np.log10(np.max(amp[known]))) if known.any() else 0.0
-    amp_db = np.where(known, 20.0 * np.log10(np.where(known, amp, 1.0)), strongest_db)
+    # An unknown amplitude plays two roles; each takes its cautious side. As a tone whose
+    # alias may reach the band it is as strong as the strongest known tone; as the in-band
+    # tone that sets the allowed alias level (rejection mode) it is as weak as the weakest
+    # known one, so an unknown in-band tone never loosens the limit.
+    known_db = 20.0 * np.log10(np.where(known, amp, 1.0))
+    strongest_db = float(np.max(known_db[known])) if known.any() else 0.0
+    weakest_db = float(np.min(known_db[known])) if known.any() else 0.0
+    amp_db = np.where(known, known_db, strongest_db)
+    ref_tone = -1
     if req.floor is None:
-        reference_db = float(np.max(amp_db[in_band]))
+        ref_levels = np.where(in_band, np.where(known, known_db, weakest_db), -np.inf)
+        ref_tone = int(np.argmax(ref_levels))
+        reference_db = float(ref_levels[ref_tone])
         limit_db = reference_db - rej
     prob = SearchProblem(
         tones=tones,
@@ -189,6 +201,9 @@ def prepare_problem(req: PlanRequest) -> tuple[SearchProblem, dict[str, object]]
         sensor=req.sensor,
         n_speeds=factors.size,
         n_tones=len(tones),
+        reference_tone=ref_tone,
+        reference_assumed=bool(ref_tone >= 0 and assumed[ref_tone] and known.any()),
+        weakest_known_db=weakest_db,
     )
     if req.sensor is not None:
         if not isinstance(req.sensor, SensorResonance):

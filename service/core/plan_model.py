@@ -273,6 +273,15 @@ class Plan:
         Every cheaper option, in cost order, with its reason.
     residual_risk : tuple of str
         What the plan does not cover.
+    amplitude_basis : str
+        Which amplitude assumption set the answer: ``"known"`` (the binding alias and
+        the reference have given amplitudes), ``"unknown_alias_as_strongest"`` (the
+        binding alias is of a tone without an amplitude, taken as strong as the strongest
+        tone with one), ``"unknown_reference_as_weakest"`` (the in-band reference tone has
+        no amplitude and was taken as weak as the weakest tone with one) or
+        ``"all_unknown"`` (no amplitudes: every tone at one common level).
+    amplitude_basis_text : str
+        The same as one sentence.
     """
 
     sample_rate_hz: float
@@ -292,3 +301,5 @@ class Plan:
     tones: tuple[ToneAlias, ...]
     rejected: tuple[RejectedOption, ...]
     residual_risk: tuple[str, ...]
+    amplitude_basis: str = "known"
+    amplitude_basis_text: str = ""

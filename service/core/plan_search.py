@@ -477,7 +477,48 @@ def _build_plan(
         tones=tuple(reports),
         rejected=rejected,
         residual_risk=tuple(_residual_risk(ctx, chain)),
+        **_amplitude_basis(prob, reports),
     )
+
+
+def _amplitude_basis(prob: SearchProblem, reports: list[ToneAlias]) -> dict[str, str]:
+    """Which amplitude assumption set the plan (see :class:`Plan`), code and sentence."""
+    binding = [t for t in reports if t.aliases_into_band]
+    worst = min(binding, key=lambda t: t.margin_db) if binding else None
+    if prob.n_tones and bool(prob.assumed.all()):
+        return {
+            "amplitude_basis": "all_unknown",
+            "amplitude_basis_text": (
+                "No tone has an amplitude, so every tone was taken at one common level: the "
+                "rejection is each alias's attenuation relative to the in-band tones."
+            ),
+        }
+    if prob.reference_assumed:
+        name = str(prob.tones.label[prob.reference_tone])
+        weakest = fmt_num(prob.weakest_known_db, 3)
+        return {
+            "amplitude_basis": "unknown_reference_as_weakest",
+            "amplitude_basis_text": (
+                f"The allowed alias level is set by '{name}', whose amplitude is not given: "
+                f"it was taken as weak as the weakest tone with one ({weakest} dB), the "
+                "cautious side; give its amplitude to plan for its real level."
+            ),
+        }
+    if worst is not None and worst.amplitude_assumed:
+        return {
+            "amplitude_basis": "unknown_alias_as_strongest",
+            "amplitude_basis_text": (
+                f"The binding alias is of '{worst.label}', whose amplitude is not given: it "
+                "was taken as strong as the strongest tone with one, the cautious side; give "
+                "its amplitude to plan for its real level."
+            ),
+        }
+    return {
+        "amplitude_basis": "known",
+        "amplitude_basis_text": (
+            "The binding alias and the allowed alias level come from tones with given amplitudes."
+        ),
+    }
 
 
 def _residual_risk(ctx: _Context, chain: Chain) -> list[str]:
@@ -492,7 +533,9 @@ def _residual_risk(ctx: _Context, chain: Chain) -> list[str]:
     elif n_assumed:
         notes.append(
             f"{n_assumed} tone(s) without an amplitude were assumed as strong as the "
-            "strongest tone with one; a stronger unknown tone would need more rejection"
+            "strongest tone with one where their aliases count, and as weak as the weakest "
+            "one where they set the allowed alias level; a stronger unknown tone would need "
+            "more rejection"
         )
     notes.append(
         "only the listed tones were checked: broadband content and unlisted tones above "

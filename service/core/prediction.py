@@ -2,7 +2,7 @@
 
 References
 ----------
-.. [1] Common practice (no single source): the alias-protected span is fs/2.56 and the
+.. [1] Common practice (no single source): the analysed span is fs/2.56 and the
    bin width is span / lines.
 """
 
@@ -30,7 +30,7 @@ __all__ = [
 FloatArray = NDArray[np.float64]
 IntArray = NDArray[np.int64]
 
-#: Common practice: an analyser shows DC to fs/2.56 as its alias-protected span.
+#: Common practice: an analyser shows DC to fs/2.56 as its analysed span.
 #: Analysis lines assumed for bin numbers and collision tolerance when none are given.
 DEFAULT_LINES = 3200
 #: How close (in bins) a predicted alias may come to another line before it can mask it.

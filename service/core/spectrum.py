@@ -11,7 +11,7 @@ Conventions
 * Amplitude spectra are one-sided and read the **peak** amplitude of a sine: a sine of
   amplitude ``A`` centred on a bin reads ``A`` there (coherent-gain correction). DC and
   the Nyquist bin read the value of a constant / alternating component.
-* Analysis lines follow the common practice ``lines = nfft / 2.56``: the alias-protected
+* Analysis lines follow the common practice ``lines = nfft / 2.56``: the analysed
   span is ``sample_rate_hz / 2.56`` and ``bin width = span / lines = sample_rate_hz / nfft``.
 
 References
@@ -109,7 +109,7 @@ class Spectrum:
         Analysis lines: floor(nfft / 2.56); equals the requested value for the usual
         values (25·2**k, e.g. 400, 800, 1600, 3200, 6400).
     span_hz : float
-        Alias-protected span sample_rate_hz / 2.56, Hz; bins above it are returned too.
+        Analysed span sample_rate_hz / 2.56, Hz; bins above it are returned too.
     window : str
         Window name.
     averages : int

@@ -312,6 +312,8 @@ def plan_to_dict(p: plan_model.Plan, tones: ToneSet, nominal_rpm: float | None) 
         "tones": tone_rows,
         "rejected": rejected,
         "residual_risk": list(p.residual_risk),
+        "amplitude_basis": p.amplitude_basis,
+        "amplitude_basis_text": p.amplitude_basis_text,
     }
 
 

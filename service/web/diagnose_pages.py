@@ -30,7 +30,7 @@ from ..http.keys import require_api_key
 from ..http.problems import ANSWERABLE, Problem, as_problem
 from ..http.store_access import StoreAccess
 from ..usecases.compare import compare_payload
-from ..usecases.diagnose import diagnose_payload
+from ..usecases.diagnose import diagnose_payload, headline, is_aliased
 from ..usecases.fold import fold_payload
 from ..usecases.measure import Measured, Upload
 from ..usecases.save import SaveParts, measured_spectra, saved_parts, stored_request
@@ -162,21 +162,26 @@ def _gain_curve(request_dict: Mapping[str, Any], out: Mapping[str, Any]) -> Any:
         return None
 
 
-def _headline(out: Mapping[str, Any]) -> dict[str, Any]:
+def _headline(out: Mapping[str, Any], sources_given: bool) -> dict[str, Any]:
+    """The counts beside the headline; the sentence is the answer's own
+    (``summary.headline``), or for a result saved before it existed the same use-case
+    wording computed from its peaks."""
     peaks = out["peaks"]
     keys = [figures.display_verdict(p) for p in peaks]
-    aliases = [p for p, k in zip(peaks, keys, strict=True) if k in ALIAS_KEYS]
-    by_source: dict[str, int] = {}
-    for p in aliases:
-        name = p.get("source") or "an unnamed harmonic family"
-        by_source[name] = by_source.get(name, 0) + 1
+    aliases = [p for p in peaks if is_aliased(p)]
+    summary = out.get("summary", {})
+    said = (
+        {"headline": summary["headline"], "status": summary["status"]}
+        if "headline" in summary
+        else headline(peaks, sources_given)
+    )
     return {
+        "text": said["headline"],
+        "status": said["status"],
         "peaks": len(peaks),
         "aliases": len(aliases),
-        "aliases_in_band": sum(1 for p in aliases if p.get("in_band")),
         "real": sum(1 for k in keys if k in ("direct", "family")),
         "unexplained": sum(1 for k in keys if k == "unexplained"),
-        "by_source": sorted(by_source.items(), key=lambda kv: (-kv[1], kv[0])),
     }
 
 
@@ -224,7 +229,8 @@ def diagnose_result_context(
     ]
     marks = {
         "nyquist_hz": out["nyquist_hz"],
-        "protected_edge_hz": out.get("protected_edge_hz"),
+        # Results saved before the span was named so carry it as "protected_edge_hz".
+        "span_hz": out.get("span_hz", out.get("protected_edge_hz")),
         "band_hz": out.get("band_hz"),
     }
     if spectrum is not None:
@@ -252,7 +258,7 @@ def diagnose_result_context(
         "csv_href": csv_path,
         "inputs": request_rows(request_dict),
         "out": out,
-        "headline": _headline(out),
+        "headline": _headline(out, bool(request_dict.get("sources") or request_dict.get("tones"))),
         "rows": rows[:MAX_TABLE_PEAKS],
         "rows_total": len(rows),
         "spectrum_fig": spectrum_fig,

@@ -554,7 +554,7 @@ def measured_spectrum(
     peaks: Sequence[dict[str, Any]] | None = None,
     buckets: int = DEFAULT_BUCKETS,
     nyquist_hz: float | None = None,
-    protected_edge_hz: float | None = None,
+    span_hz: float | None = None,
     band_hz: Sequence[float] | None = None,
     title: str = "Measured spectrum",
 ) -> dict[str, Any]:
@@ -572,9 +572,9 @@ def measured_spectrum(
         ``unexplained``) and ``explanation`` (hover text, plain).
     buckets : int
         Display buckets for :func:`minmax_decimate`.
-    nyquist_hz, protected_edge_hz : float, optional
-        Drawn as vertical lines: fs/2, and the edge above which the anti-alias filter no
-        longer protects the band (between the two, aliases of the transition band land).
+    nyquist_hz, span_hz : float, optional
+        Drawn as vertical lines: fs/2, and the edge of the analysed span fs/2.56 (between
+        the two, the filter's transition band lets folded energy in).
     band_hz : (float, float), optional
         Band of interest, Hz, shaded.
     title : str
@@ -658,10 +658,8 @@ def measured_spectrum(
                 "layer": "below",
             }
         )
-    if protected_edge_hz is not None and (nyquist_hz is None or protected_edge_hz < nyquist_hz):
-        sh, an = _vline(
-            float(protected_edge_hz), "protected band edge", COLOURS["band_edge"], "protected edge"
-        )
+    if span_hz is not None and (nyquist_hz is None or span_hz < nyquist_hz):
+        sh, an = _vline(float(span_hz), "analysed span edge", COLOURS["band_edge"], "span edge")
         shapes.append(sh)
         annotations.append(an)
     if nyquist_hz is not None:

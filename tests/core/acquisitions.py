@@ -16,8 +16,9 @@ instants, converter noise, real digital filters, slicing). The analog filter is 
 here, before calling it, with scipy.signal's own designs (``butter``, ``cheby1``,
 ``bessel(norm="mag")``) and ``freqs``, because ``simulate_capture`` takes an
 ``iirfilter`` type that cannot carry a ripple or the magnitude-normalised Bessel. The
-diagnosis then runs the same core calls, with the same defaults, as
-``service.api.diagnosis.diagnose_payload``.
+diagnosis then runs the same shared step, with a default request's options, as
+``service.usecases.diagnose.diagnose_payload``: :func:`service.core.diagnosis.diagnose_peaks`
+(running-speed estimate, blind families, attribution).
 
 What "right" means
 ------------------
@@ -51,11 +52,10 @@ from typing import Any
 import numpy as np
 import scipy.signal
 
-from service.core.attribution import attribute
 from service.core.attribution_model import Attribution
-from service.core.calibration import calibrate
 from service.core.chain import Chain
-from service.core.harmonics import Family, find_families
+from service.core.diagnosis import diagnose_peaks
+from service.core.harmonics import Family
 from service.core.sources import expand_sources, source_from_dict
 from service.core.spectrum import find_peaks, noise_floor
 from service.core.stages import AnalogLowpass, Decimate, Sample
@@ -66,7 +66,6 @@ from .simulate import SimChain, decimate_taps, simulate_capture
 __all__ = [
     "Acquisition",
     "Scored",
-    "calibrated_confidences",
     "contributors",
     "diagnose",
     "draw",
@@ -79,8 +78,6 @@ RATES_HZ = (2560.0, 5120.0, 6400.0, 10240.0, 12800.0, 25600.0, 51200.0)
 FAMILIES = ("butterworth", "bessel", "chebyshev1")
 #: Speed the engineer states is off the true speed by up to this fraction ...
 SPEED_OFFSET = 0.008
-#: ... and the diagnosis is told this tolerance, percent.
-SPEED_TOLERANCE_PCT = 1.0
 #: A contributor is within this many dB of the strongest tone at the peak.
 CONTRIBUTOR_SPREAD_DB = 20.0
 #: An alias's stated true frequency matches within tolerance_hz plus this fraction.
@@ -270,18 +267,13 @@ def diagnose(acq: Acquisition) -> tuple[Attribution, list[Family], Any]:
     floor = noise_floor(spec.amplitude)
     peaks = find_peaks(spec.freq_hz, spec.amplitude, floor, threshold_db=10.0,
                        window=spec.window, max_peaks=1000)  # fmt: skip
-    families: list[Family] = []
-    chain = acq.chain
-    if acq.blind and len(peaks) >= 3:
-        families = find_families(
-            peaks.freq_hz, peaks.amplitude, peaks.floor, chain.final_rate_hz,
-            spec.bin_width_hz, attenuation=lambda f: chain.evaluate(f).attenuation_db,
-        )  # fmt: skip
-    att = attribute(
-        peaks.freq_hz, peaks.amplitude, peaks.floor, chain, acq.given, spec.bin_width_hz,
-        window=spec.window, speed_tolerance_pct=SPEED_TOLERANCE_PCT, band_hz=None,
-        level_tolerance_db=10.0, families=families,
+    # The one shared step (running speed, families, attribution), as the use-case calls
+    # it with a default request.
+    d = diagnose_peaks(
+        peaks, acq.chain, acq.given, spec.bin_width_hz, window=spec.window,
+        blind=acq.blind,
     )  # fmt: skip
+    att, families = d.attribution, d.families
     return att, families, peaks
 
 
@@ -348,33 +340,11 @@ def score(
     out: list[list[tuple[str, float, bool, bool]]] = []
     for i, contrib in enumerate(contributors(acq, att, floor)):
         out.append([
-            (e.kind, float(e.confidence), acq.blind or e.family_index >= 0,
+            (e.kind, float(e.raw_confidence), acq.blind or e.family_index >= 0,
              _right(e.kind, e.true_hz, contrib, nyq, att.tolerance_hz))
             for e in att.alternatives[i]
         ])  # fmt: skip
     return out
-
-
-def calibrated_confidences(att: Attribution, blind: bool) -> tuple[np.ndarray, list[np.ndarray]]:
-    """The calibrated confidence of each verdict (NaN if unexplained) and of each
-    peak's ranked explanations, as the integrated service would report them: the
-    verdict through the verdicts' tables, every explanation not chosen (alternatives,
-    and all candidates of an unexplained peak) through the alternatives' tables."""
-    alts = [
-        calibrate(
-            [e.kind for e in a],
-            [e.confidence for e in a],
-            [blind or e.family_index >= 0 for e in a],
-            alternative=(np.arange(len(a)) > 0) | (v == "unexplained"),
-        )
-        if a
-        else np.empty(0)
-        for a, v in zip(att.alternatives, att.verdict, strict=True)
-    ]
-    verdict = np.array([
-        c[0] if v != "unexplained" else np.nan for c, v in zip(alts, att.verdict, strict=True)
-    ])  # fmt: skip
-    return verdict, alts
 
 
 def run_corpus(seeds: range | list[int]) -> Scored:

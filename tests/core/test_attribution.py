@@ -87,7 +87,8 @@ class TestAttribute:
         assert list(at.inverted) == [False, True, False]
         np.testing.assert_allclose(at.true_hz, [1000.0, 7300.0, 13200.0])
         assert list(at.tone_label) == ["c", "a", "b"]
-        assert all(0 < c <= 0.95 for c in at.confidence)  # never certain
+        assert all(0 < c <= 0.97 for c in at.confidence)  # never certain (calibrated cap)
+        assert all(0 < c <= 0.95 for c in at.raw_confidence)  # nor the raw score
         assert "zone 2 (inverted)" in at.explanation[1]
 
     def test_alias_far_below_floor_not_chosen(self) -> None:
@@ -97,7 +98,7 @@ class TestAttribute:
         carrier = ToneSet.explicit([10_000.0], ["carrier"], [1e-6], source="inverter")
         at = attribute([2800.0], [1e-3], 1e-4, chain, carrier, BW)  # floor −80 dB
         assert at.verdict[0] == "unexplained"
-        assert at.confidence[0] < MIN_CONFIDENCE
+        assert at.raw_confidence[0] < MIN_CONFIDENCE
         assert "far below the floor" in at.alternatives[0][0].sentence
         # With an in-band candidate of unknown level at the same frequency, that wins.
         both = ToneSet.concat([carrier, ToneSet.explicit([2800.0], ["2.8k line"])])
@@ -119,16 +120,16 @@ class TestAttribute:
     def test_level_mismatch_lowers_confidence(self) -> None:
         chain = _plain_chain()
         tone = ToneSet.explicit([1000.0], ["line"], [0.1])
-        right = _one(1000.0, 0.1, tone, chain).confidence[0]
-        off = _one(1000.0, 0.01, tone, chain).confidence[0]  # 20 dB below prediction
+        right = _one(1000.0, 0.1, tone, chain).raw_confidence[0]
+        off = _one(1000.0, 0.01, tone, chain).raw_confidence[0]  # 20 dB below prediction
         assert right >= 0.9
         assert off < right - 0.3
 
     def test_frequency_error_lowers_confidence(self) -> None:
         chain = _plain_chain()
         tone = ToneSet.explicit([1000.0], ["line"])
-        near = _one(1000.0 + 0.1 * BW, 0.1, tone, chain).confidence[0]
-        mid = _one(1000.0 + 1.0 * BW, 0.1, tone, chain).confidence[0]
+        near = _one(1000.0 + 0.1 * BW, 0.1, tone, chain).raw_confidence[0]
+        mid = _one(1000.0 + 1.0 * BW, 0.1, tone, chain).raw_confidence[0]
         far = _one(1000.0 + 3.0 * BW, 0.1, tone, chain)  # beyond Hann's 2-bin half lobe
         assert near > mid > 0
         assert far.verdict[0] == "unexplained" and not far.alternatives[0]
@@ -147,13 +148,13 @@ class TestAttribute:
         assert "or, about as likely" in at.explanation[0]
         assert {e.source for e in at.alternatives[0]} == {"supply", "motor shaft"}
 
-    def test_mirror_in_unprotected_band(self) -> None:
+    def test_mirror_above_the_span(self) -> None:
         # No tones given: a peak between fs/2.56 and fs/2 may be the image of energy at
         # fs − f just above Nyquist.
         chain = _demo_chain()
         at = attribute([6100.0, 1000.0], [0.01, 0.5], 1e-5, chain, None, BW)
         assert at.verdict[0] == "mirror"
-        assert at.unprotected[0] and not at.unprotected[1]
+        assert at.beyond_span[0] and not at.beyond_span[1]
         assert at.verdict[1] == "unexplained"
         mirror = at.alternatives[0][0]
         assert mirror.true_hz == pytest.approx(FS - 6100.0)
@@ -340,7 +341,7 @@ class TestAttributeSimulated:
                               amplitudes=(0.5, 0.5)).expand()  # fmt: skip
         at = attribute(p.freq_hz, p.amplitude, p.floor, chain, known, bw)
         assert at.verdict[i] == "alias" and at.tone_label[i] == "transition tone"
-        assert at.unprotected[i] and at.zone[i] == 2
+        assert at.beyond_span[i] and at.zone[i] == 2
         assert at.alternatives[i][0].attenuation_db == pytest.approx(ref, abs=0.1)
         assert at.confidence[i] > 0.8  # level agrees too
         # Without the tone in the list the peak is a transition-band mirror of 6.8 kHz.

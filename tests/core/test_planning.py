@@ -249,6 +249,44 @@ class TestPlan:
         assert p.tones[1].amplitude_assumed
         assert any("assumed" in note for note in p.residual_risk)
 
+    def test_unknown_amplitude_cautious_for_each_role(self) -> None:
+        # The in-band mesh (the only tone in 0-2 kHz; the 0.01 order at 3 kHz is out of
+        # the band, unaliased) sets the allowed alias level. Without an amplitude, taken as strong
+        # as the strongest known tone (the 1.0 carrier), the limit was 0 - 60 = -60 dB; the
+        # mesh may be as weak as the weakest known tone (0.01, -40 dB), which needs
+        # -40 - 60 = -100 dB. Unknown must never plan more leniently than that.
+        # Reference: 20·log10(0.01) = -40 dB by hand.
+        def tones(mesh: float) -> ToneSet:
+            return ToneSet.explicit(
+                [3000.0, 1700.0, 10_000.0], ["3×", "mesh", "carrier"], amplitude=[0.01, mesh, 1.0]
+            )
+
+        def make(mesh: float) -> plan_model.Plan:
+            return plan_search.plan(
+                plan_model.PlanRequest(tones=tones(mesh), band_hz=(0, 2000), rejection_db=60,
+                              rates_hz=(12_800.0,), filters=FILTERS)
+            )  # fmt: skip
+
+        unknown, weakest = make(np.nan), make(0.01)
+        assert weakest.limit_db == pytest.approx(-100.0)
+        assert unknown.limit_db <= weakest.limit_db + 1e-9
+        assert FILTERS.index(unknown.filter) >= FILTERS.index(weakest.filter)
+        assert unknown.amplitude_basis == "unknown_reference_as_weakest"
+        assert "mesh" in unknown.amplitude_basis_text
+        assert weakest.amplitude_basis == "known"
+        # The aliased role stays cautious too: an unknown carrier is as strong as the
+        # strongest known tone, and its alias (12.8 - 11.5 = 1.3 kHz, in band) binds.
+        carrier_unknown = ToneSet.explicit(
+            [300.0, 11_500.0], ["1×", "carrier"], amplitude=[1.0, np.nan]
+        )
+        alias_unknown = plan_search.plan(
+            plan_model.PlanRequest(
+                tones=carrier_unknown,
+                band_hz=(0, 2000), rejection_db=60, rates_hz=(12_800.0,), filters=FILTERS,
+            )
+        )  # fmt: skip
+        assert alias_unknown.amplitude_basis == "unknown_alias_as_strongest"
+
     def test_impossible_suggestions(self) -> None:
         with pytest.raises(plan_common.PlanImpossible) as err:
             plan_search.plan(

@@ -139,9 +139,9 @@ class TestDiagnosePage:
         assert "real (direct)" in names
         alias = _trace(spec, "alias")
         assert any(abs(x - carrier) < 6.4 for x in alias["x"])
-        # The protected edge (filter cutoff) and fs/2 are drawn.
+        # The analysed span edge (fs/2.56) and fs/2 are drawn.
         shapes = {s["name"]: s for s in spec["layout"]["shapes"]}
-        assert shapes["Nyquist"]["x0"] == 6400.0 and shapes["protected band edge"]["x0"] == 5000
+        assert shapes["Nyquist"]["x0"] == 6400.0 and shapes["analysed span edge"]["x0"] == 5000
         # The folding diagram carries the carrier from 10 kHz to where it was measured.
         fold = figs["diag-fold-figure-data"]
         peaks = _trace(fold, "alias peaks")
@@ -162,6 +162,7 @@ class TestDiagnosePage:
         fig = figures_of(r.text)["measured-figure-data"]
         assert len(_trace(fig, "spectrum")["x"]) == 2049  # under 2 × buckets: kept whole
         assert "1 of 2 peaks is probably alias" in re.sub(r"<[^>]+>|\s+", " ", r.text)
+        assert 'data-status="aliases_found"' in r.text
         assert_strict_page(r.text)
 
     def test_how_the_input_was_read_is_shown(self, page_client: TestClient) -> None:
@@ -178,6 +179,18 @@ class TestDiagnosePage:
         assert "amplitude in g" in flat
         assert "2 negative amplitudes in a linear column left out as bad data" in flat
         assert "1 of 2 peaks is probably alias" in flat  # the same answer as the clean text
+
+    def test_no_sources_is_not_an_all_clear(self, page_client: TestClient) -> None:
+        # Two in-band tones and no sources: nothing explains them, and the page says so
+        # with the answer's own headline instead of a calm "no alias".
+        text = _sampled_spectrum(10_000.0, [(1000.0, 1.0), (2000.0, 0.5)])
+        data = {"sample_rate_hz": "10000", "threshold_db": "20", "spectrum_text": text}
+        r = page_client.post("/diagnose", data=data)
+        assert r.status_code == 200, _summary(r.text)
+        flat = re.sub(r"<[^>]+>|\s+", " ", r.text)
+        assert 'data-status="unexplained_peaks"' in r.text
+        assert "2 of 2 peaks are unexplained" in flat and "second sample rate" in flat
+        assert "No aliases" not in flat
 
     def test_upload_file(self, page_client: TestClient) -> None:
         text = _sampled_spectrum(10_000.0, [(7300.0, 1.0)])
