@@ -16,7 +16,10 @@ from fastapi.testclient import TestClient
 from service.app import create_app
 from service.audit.demo import make_demo_archive
 from service.config import Settings
+from service.contract.audit import AuditJobOut, AuditRecordingsOut
 from service.storage import Store
+
+from .test_response_schemas import fits
 
 PROBLEM = "application/problem+json"
 
@@ -83,7 +86,11 @@ class TestSubmitPollResults:
         assert (job["done"], job["total"], job["errors"]) == (8, 8, 3)
         assert "machine protection" in job["caution"]
 
-        page = c.get(job["recordings_url"], params={"limit": 100}).json()
+        # The real answers are what the schema publishes (as for every endpoint).
+        assert fits(AuditJobOut, c.get(f"/api/v1/audits/{job['id']}").text) == []
+        listing = c.get(job["recordings_url"], params={"limit": 100})
+        assert fits(AuditRecordingsOut, listing.text) == []
+        page = listing.json()
         items = page["items"]
         assert page["total"] == 8 and len(items) == 8
         levels = [r["strongest_alias_db"] for r in items if r["strongest_alias_db"] is not None]
