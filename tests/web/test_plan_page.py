@@ -132,6 +132,10 @@ class TestPlanForm:
         # The demo's sources fill the predict-style rows.
         assert 'value="first mesh 17/53"' in r.text and 'value="inverter"' in r.text
         assert "runup-figure-data" in figures_of(r.text)
+        # The second rate that would confirm the plan's aliases, as the API offers it.
+        assert api["confirm_rate"] is not None
+        assert "data-confirm-rate" in r.text
+        assert html_lib.escape(api["confirm_rate"]["sentence"]) in r.text
 
 
 class TestPlanSubmit:
