@@ -64,6 +64,13 @@ class SpectrumIn(StrictModel):
         "...), carried to the answer's summary.amplitude_unit",
         examples=["g"],
     )
+    amplitude_kind: Literal["peak", "rms", "peak_to_peak"] | None = Field(
+        None,
+        description="What the amplitudes state: the peak of each sine, its RMS, or "
+        "peak-to-peak; carried to the answer's summary.amplitude_kind (a time record's "
+        "spectrum is always peak)",
+        examples=["rms"],
+    )
     window: Window | Literal["unknown"] = Field(
         "hann", description="Window the analyser used; sets peak refinement and scalloping"
     )
@@ -122,6 +129,20 @@ class UploadIn(StrictModel):
         "auto",
         description="Scale of a spectrum file's amplitude: 'auto' decides from the column "
         "header (dB, dBV, dB re ...), else from the values as for a JSON spectrum",
+    )
+    amplitude_unit: str | None = Field(
+        None,
+        max_length=40,
+        description="Unit of the file's amplitude (g, m/s², mm/s, V, Pa ...), when the file "
+        "does not say or says otherwise; carried to summary.amplitude_unit",
+        examples=["g"],
+    )
+    amplitude_kind: Literal["peak", "rms", "peak_to_peak"] | None = Field(
+        None,
+        description="What the amplitudes state: the peak of each sine, its RMS, or "
+        "peak-to-peak; carried to the answer's summary.amplitude_kind (a time record's "
+        "spectrum is always peak)",
+        examples=["rms"],
     )
     amplitude_column: (
         Annotated[str, Field(min_length=1, max_length=200)]
@@ -457,6 +478,10 @@ class SummaryOut(BaseModel):
     frequency_unit: str = Field(description="Unit of the file's frequency column (Hz, kHz, cpm)")
     amplitude_unit: str | None = Field(
         description="Amplitude unit from the header or the request, null when unknown"
+    )
+    amplitude_kind: Literal["peak", "rms", "peak_to_peak"] | None = Field(
+        description="What the amplitudes state (peak, rms, peak_to_peak), as the request "
+        "says; 'peak' for a time record's computed spectrum; null when not stated"
     )
     dropped_rows: dict[str, int] = Field(
         description="Lines left out, by reason: non_finite (NaN, inf, -1.#INF, 1.#QNAN, "

@@ -88,6 +88,8 @@ class Measured:
     metadata: dict[str, str] = dc_field(default_factory=dict)
     frequency_unit: str = "Hz"
     amplitude_unit: str | None = None
+    # What the amplitudes state: peak, rms or peak_to_peak (None: not stated).
+    amplitude_kind: str | None = None
     dropped: dict[str, int] = dc_field(default_factory=dict)
     clipping: ClippingReport | None = None
     channels: tuple[ChannelActivity, ...] = ()
@@ -204,6 +206,8 @@ def _from_samples(
         f"{description}; {s.window} window, {s.lines} lines, {s.averages} "
         f"averages, {s.overlap_pct:g} % overlap",
         scale_source="time_record",
+        # The computed spectrum gives each sine's peak amplitude (core.spectrum).
+        amplitude_kind="peak",
         clipping=clipping,
     )
 
@@ -430,9 +434,7 @@ def measure(
             f"spectrum of {len(spectrum.freq_hz)} lines",
             f"{pre}spectrum",
         )
-        if spectrum.amplitude_unit is None:
-            return m
-        return Measured(**{**m.__dict__, "amplitude_unit": spectrum.amplitude_unit})
+        return _stated(m, spectrum.amplitude_unit, spectrum.amplitude_kind)
     if time_record is not None:
         rate = time_record.sample_rate_hz or chain_rate_hz
         if rate is None:
@@ -449,8 +451,24 @@ def measure(
             f"{pre}time_record",
         )
     assert upload is not None
-    return _from_upload(
-        upload, upload_opts or UploadIn(), opts, chain_rate_hz, rate_field, settings, pre
+    u = upload_opts or UploadIn()
+    m = _from_upload(upload, u, opts, chain_rate_hz, rate_field, settings, pre)
+    return _stated(m, u.amplitude_unit, u.amplitude_kind)
+
+
+def _stated(m: Measured, unit: str | None, kind: str | None) -> Measured:
+    """The amplitude unit and kind the request states, over what the file says; a time
+    record's computed spectrum states the peak of each sine whatever was asked."""
+    if m.scale_source == "time_record":
+        kind = "peak"
+    if unit is None and kind is None:
+        return m
+    return Measured(
+        **{
+            **m.__dict__,
+            "amplitude_unit": unit if unit is not None else m.amplitude_unit,
+            "amplitude_kind": kind if kind is not None else m.amplitude_kind,
+        }
     )
 
 
@@ -464,6 +482,7 @@ def input_summary(m: Measured) -> dict[str, Any]:
         "scale_reason": m.unit_reason,
         "frequency_unit": m.frequency_unit,
         "amplitude_unit": m.amplitude_unit,
+        "amplitude_kind": m.amplitude_kind,
         "dropped_rows": dict(m.dropped),
         "input_notes": list(dict.fromkeys(m.notes)),
         "metadata": dict(m.metadata),

@@ -86,6 +86,9 @@ DIAGNOSE_LABELS = {
 }
 _UPLOAD_FIELDS = ("channel", "sample_rate_hz", "unit", "amplitude_column", "window", "kind")
 
+#: The form's choice of what the spectrum's values are -> the request's amplitude_kind.
+FORM_KINDS = {"peak": "peak", "rms": "rms", "pp": "peak_to_peak"}
+
 
 @dataclass
 class DiagnoseForm:
@@ -151,6 +154,13 @@ def parse_diagnose_form(form: Mapping[str, str], upload: Upload | None) -> Diagn
             read[key] = raw
     if pasted:
         read["kind"] = "spectrum"
+    # The unit and kind chosen on the form travel in the request, so a saved result
+    # (and its CSV) keeps them.
+    if form.get("amplitude_unit", "").strip():
+        read["amplitude_unit"] = form["amplitude_unit"].strip()
+    kind = FORM_KINDS.get(form.get("amplitude_kind", "").strip())
+    if kind is not None:
+        read["amplitude_kind"] = kind
     read.setdefault("channel", "0")
     req_dict["upload"] = read
     lines = req_dict.pop("lines", None)

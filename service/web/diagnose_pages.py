@@ -208,7 +208,7 @@ def diagnose_result_context(
     spectrum: tuple[np.ndarray, np.ndarray] | None,
     request_dict: Mapping[str, Any],
     unit: str = "",
-    kind: str = "peak",
+    kind: str = "",
     csv_path: str | None = None,
 ) -> dict[str, Any]:
     """Everything the result part of the diagnose page shows, from the API payload and

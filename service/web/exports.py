@@ -48,7 +48,7 @@ def _is_time_record(out: Mapping[str, Any]) -> bool:
     return bool(summary.get("averages")) or "time record" in str(summary.get("input", ""))
 
 
-def level_words(out: Mapping[str, Any], unit: str = "", kind: str = "peak") -> dict[str, str]:
+def level_words(out: Mapping[str, Any], unit: str = "", kind: str = "") -> dict[str, str]:
     """How the result's amplitudes and levels are labelled.
 
     ``unit`` is the form's choice ("" takes the unit read from the file, when the answer
@@ -59,6 +59,9 @@ def level_words(out: Mapping[str, Any], unit: str = "", kind: str = "peak") -> d
     """
     summary = out.get("summary") or {}
     unit = unit or str(summary.get("amplitude_unit") or "")
+    # "" takes what the answer states (the request's amplitude_kind, kept when saved).
+    stated = str(summary.get("amplitude_kind") or "")
+    kind = kind or {"peak_to_peak": "pp"}.get(stated, stated)
     computed = _is_time_record(out)
     kind = "peak" if computed else (kind if kind in _KIND_WORDS else "peak")
     unit_word = unit or "input unit"

@@ -218,7 +218,7 @@ async def saved_result(request: Request, record_id: str) -> HTMLResponse:
             record.spectrum,
             record.request,
             "",
-            "peak",
+            "",  # the unit and kind the saved answer states
             f"/d/{record.id}/peaks.csv",
         )
     elif record.kind == "compare" and "captures" in record.result:

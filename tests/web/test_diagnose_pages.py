@@ -422,6 +422,18 @@ class TestShare:
         with TestClient(create_app(settings)) as again:
             assert again.get(path).text == page_client.get(path).text
 
+    def test_saved_keeps_the_chosen_unit(self, page_client: TestClient) -> None:
+        # The unit and kind chosen on the form travel in the request: the saved page and
+        # its CSV label the levels the same way as the live result did.
+        r = _basic_post(page_client, share="1", amplitude_unit="mm/s", amplitude_kind="rms")
+        assert r.status_code == 200
+        path = _saved_path(r.text)
+        saved = page_client.get(path).text
+        for html in (r.text, saved):
+            assert "dB re 1 mm/s" in html and "RMS values in mm/s" in html
+        csv = page_client.get(path + "/peaks.csv").text
+        assert "amplitude (mm/s, RMS)" in csv.splitlines()[0]
+
     def test_demo_and_compare(self, page_client: TestClient) -> None:
         r = page_client.post("/share", data={"kind": "diagnose_demo"})
         assert r.status_code == 200
