@@ -235,13 +235,14 @@ class TestKilledWorker:
         assert len(peaks) == rec["n_peaks"].sum()
 
 
-class TestModuleEntry:
+class TestCommand:
     def test_basic(self, archive, dask_cluster, tmp_path: Path, capsys) -> None:
-        from service.audit.__main__ import main
+        from service.cli.main import main
 
         _, manifest, library = archive
         code = main(
             [
+                "audit",
                 str(manifest),
                 "--library",
                 str(library),
@@ -257,9 +258,9 @@ class TestModuleEntry:
         assert len(pd.read_parquet(tmp_path / "o" / "recordings.parquet")) == 18
 
     def test_errors(self, tmp_path: Path, capsys) -> None:
-        from service.audit.__main__ import main
+        from service.cli.main import main
 
-        assert main([str(tmp_path / "none.csv"), "--no-progress"]) == 2
+        assert main(["audit", str(tmp_path / "none.csv"), "--no-progress"]) == 2
         assert "none.csv" in capsys.readouterr().err
 
 
