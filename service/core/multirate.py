@@ -66,6 +66,30 @@ How it works
    for a peak seen in one capture only, or whose partners admit no common true
    frequency.
 
+7. Could the pairing be chance? A group that would be a unique ``"alias"`` is tested
+   against the null hypothesis that one of its peaks is unrelated to the others (noise
+   or another tone), with the pairing's own cost ``z`` (step 3) as the statistic. For
+   each member peak ``q`` of capture ``k``, the other members allow candidates ``c``
+   (the unfoldings of one of them up to ``max_true_hz`` that fold onto the rest, minus
+   those the plausibility term rules out), and ``q`` fits them with cost ``z_obs``. An
+   unrelated peak ``i`` of capture ``k`` with level term ``ℓ_i(c)`` fits candidate
+   ``c`` at least as well when its frequency error is within
+   ``±(gate_c/2)·sqrt(z_obs − ℓ_i(c))``, ``gate_c = δ + δ_k + drift·c``; with peaks
+   spread evenly over the Nyquist band that happens with probability
+   ``width / (fs_k/2)``. Summed over the candidates and over the other still-unpaired
+   peaks of capture ``k`` (their levels stand for the levels an unrelated peak has,
+   leave-one-out) this is the expected number of chance fits ``λ_k``; the chance
+   probability is ``1 − exp(−Σ_k λ_k)`` (Poisson; the sum over members is the union
+   bound over which member is the odd one). It is a significance test of the observed
+   fit [4]_: chance pairs of noise peaks fit loosely, at levels shared by many other
+   noise peaks, so they score high; a tone whose level and frequency fit tightly,
+   with no other peak of its level about, scores low. At or above
+   :data:`MAX_CHANCE_PROBABILITY` (1 %), or with a peak less than
+   :data:`MIN_ALIAS_SNR_DB` above its floor, the verdict is ``"ambiguous"`` with
+   ``could_be_chance``, and the settle rate separates the top candidate from the other
+   true frequencies of the first peak: a further capture confirms the pairing only if
+   its peak lands where the top candidate says.
+
 An alias verdict is a hypothesis about the measurement, not about the machine.
 
 References
@@ -77,6 +101,8 @@ References
    Signal Processing*, 57(11), 4314-4322, 2009.
 .. [3] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
    2010, sec. 4.2 (``fold(f, fs)``).
+.. [4] S. M. Kay, *Fundamentals of Statistical Signal Processing, Vol. II: Detection
+   Theory*, 1998, ch. 3 (Neyman-Pearson tests at a stated false-alarm probability).
 """
 
 from __future__ import annotations
@@ -99,6 +125,8 @@ __all__ = [
     "CLUSTER_LEAD_LOG10",
     "DEFAULT_SETTLE_RATES_HZ",
     "MATCH_REJECT",
+    "MAX_CHANCE_PROBABILITY",
+    "MIN_ALIAS_SNR_DB",
     "TIE_LOG10",
     "Attenuation",
     "Candidate",
@@ -129,6 +157,19 @@ CLUSTER_LEAD_LOG10 = 0.1
 #: standard units): a pair is matched when its cost is below ``2·MATCH_REJECT``, e.g. a
 #: frequency error at the tolerance (4) and a level error of 3.5 σ (12).
 MATCH_REJECT = 8.0
+#: A unique "alias" verdict needs the pairing's chance probability below this: the
+#: probability that a peak unrelated to the others (noise or another tone) of the same
+#: capture, at a comparable level, lands inside the tolerance window of one of the
+#: candidates the other peaks allow (module notes, step 7). At 1 % about one
+#: pairing in a hundred made only of unrelated peaks could still pass, and it must also
+#: clear :data:`MIN_ALIAS_SNR_DB`.
+MAX_CHANCE_PROBABILITY = 0.01
+#: ... and every peak of the group at least this far above its noise floor, dB (when the
+#: captures carry ``snr_db``). Noise amplitude in a bin is Rayleigh distributed, so it
+#: exceeds k times its median with probability ``2**(-k²)``: 1e-3 per bin at 10 dB
+#: (k = 3.16, a few noise peaks per 4,096 lines at the default threshold) but 3e-10 at
+#: 15 dB (k = 5.62), so a 15 dB peak is a tone, not a noise bin.
+MIN_ALIAS_SNR_DB = 15.0
 #: Converter rates offered when the caller gives none, S/s (binary DAQ series and the
 #: audio rates).
 DEFAULT_SETTLE_RATES_HZ: tuple[float, ...] = (
@@ -170,6 +211,9 @@ class Capture:
         This capture's chain attenuation, dB, at any true frequency.
     label : str
         A name for messages.
+    snr_db : float or array_like, optional
+        Each peak's height above its noise floor, dB (None: unknown). A group with a
+        peak below :data:`MIN_ALIAS_SNR_DB` is never a unique alias.
     """
 
     rate_hz: float
@@ -178,6 +222,7 @@ class Capture:
     uncertainty_hz: float | ArrayLike
     attenuation: Attenuation = None
     label: str = ""
+    snr_db: float | ArrayLike | None = None
 
 
 @dataclass(frozen=True)
@@ -278,6 +323,14 @@ class PeakGroup:
     settle_separation_bins : float
         Smallest distance between those candidates' apparent frequencies at that rate,
         in its bins; NaN otherwise.
+    chance_probability : float
+        For a group that moves: the probability that its pairing is chance (module
+        notes, step 7); NaN when not weighed.
+    could_be_chance : bool
+        The evidence pointed to one true frequency, but the pairing could be chance
+        (``chance_probability`` >= :data:`MAX_CHANCE_PROBABILITY`) or a peak is within
+        :data:`MIN_ALIAS_SNR_DB` of its floor: the verdict is ``"ambiguous"``, and
+        ``settle_rate_hz`` proposes the capture that would confirm or refute the pairing.
     """
 
     peak: tuple[int, ...]
@@ -294,6 +347,8 @@ class PeakGroup:
     in_band: bool
     settle_rate_hz: float
     settle_separation_bins: float
+    chance_probability: float = math.nan
+    could_be_chance: bool = False
 
 
 @dataclass(frozen=True)
@@ -407,6 +462,7 @@ class _Cap:
     level: FloatArray
     unc: FloatArray
     att: Callable[[FloatArray], FloatArray]
+    snr: FloatArray  # NaN where unknown
 
 
 def _check_captures(captures: Sequence[Capture]) -> list[_Cap]:
@@ -452,9 +508,19 @@ def _check_captures(captures: Sequence[Capture]) -> list[_Cap]:
                     code="not_positive",
                 )  # fmt: skip
             att = _attenuation_fn(cap.attenuation, "attenuation")
+            snr = np.full(f.shape, np.nan)
+            if cap.snr_db is not None:
+                try:
+                    snr_in = np.broadcast_to(np.asarray(cap.snr_db, dtype=float), f.shape)
+                except ValueError:
+                    raise InputError(
+                        f"snr_db must be one number or one per peak ({f.size})",
+                        field="snr_db", code="length_mismatch",
+                    ) from None  # fmt: skip
+                snr = _check_array(snr_in, "snr_db")
         except InputError as exc:
             raise exc.under(f"captures[{k}]") from None
-        out.append(_Cap(rate, f, lev, unc, att))
+        out.append(_Cap(rate, f, lev, unc, att, snr))
     rates = [c.rate for c in out]
     for i, j in itertools.combinations(range(len(rates)), 2):
         if math.isclose(rates[i], rates[j], rel_tol=1e-9):
@@ -855,7 +921,7 @@ def _dedupe(c: FloatArray, score: FloatArray, width: FloatArray) -> NDArray[np.i
 def _finish(
     caps: list[_Cap], members: dict[int, int], verdict: str, cands: list[Candidate],
     top: Candidate | None, tied: int, by_prior: bool, res: Resolution | None, unamb: float,
-    opts: _Opts,
+    opts: _Opts, chance: float = math.nan, settle_pool: list[float] | None = None,
 ) -> PeakGroup:  # fmt: skip
     n = len(caps)
     peak = tuple(members.get(k, -1) for k in range(n))
@@ -867,7 +933,7 @@ def _finish(
         in_band = any(lo <= f <= hi for f in fr if not math.isnan(f))
     s_rate, s_sep = math.nan, math.nan
     if verdict == "ambiguous":
-        pool = [x.true_hz for x in cands[: max(tied, 2)]]
+        pool = settle_pool or [x.true_hz for x in cands[: max(tied, 2)]]
         s_rate, s_sep = settle_rate(
             pool, opts.settle_rates, [c.rate for c in caps], lines=opts.lines
         )
@@ -877,6 +943,7 @@ def _finish(
         period_hz=res.lcm_hz if res is not None else math.nan,
         error_bound_hz=res.error_bound_hz if res is not None else math.nan,
         in_band=in_band, settle_rate_hz=s_rate, settle_separation_bins=s_sep,
+        chance_probability=chance, could_be_chance=settle_pool is not None,
     )  # fmt: skip
 
 
@@ -900,7 +967,51 @@ def _to_candidates(
     ]
 
 
-def _judge(caps: list[_Cap], g: _Group, opts: _Opts) -> PeakGroup:
+def _chance_probability(
+    caps: list[_Cap], members: dict[int, int], pool: list[NDArray[np.bool_]], opts: _Opts
+) -> float:
+    """Probability that the group's pairing is chance (module notes, step 7)."""
+    lam = 0.0
+    for k, q in members.items():
+        ck = caps[k]
+        others = pool[k].copy()
+        others[q] = False
+        idx = np.flatnonzero(others)
+        if idx.size == 0:
+            continue
+        # Candidates allowed by the other members alone.
+        rest = [(j, p) for j, p in members.items() if j != k]
+        j0, p0 = rest[0]
+        c = _unfoldings(float(caps[j0].freq[p0]), caps[j0].rate, opts.max_true)
+        for j, p in rest[1:]:
+            gate = caps[j0].unc[p0] + caps[j].unc[p] + opts.drift * c
+            c = c[np.abs(fold(c, caps[j].rate) - caps[j].freq[p]) <= gate]
+        if c.size == 0:
+            continue
+        gate = caps[j0].unc[p0] + ck.unc[q] + opts.drift * c
+        src = np.mean([caps[j].level[p] + caps[j].att(c) for j, p in rest], axis=0)
+        if opts.full_scale is not None:  # implausible candidates invite no chance fit
+            keep = src <= opts.full_scale + opts.headroom
+            c, gate, src = c[keep], gate[keep], src[keep]
+        # The observed fit (the pairing's cost, as in the matching) ...
+        e = fold(c, ck.rate) - ck.freq[q]
+        d = ck.level[q] + ck.att(c) - src
+        z = (2 * e / gate) ** 2 + (d / (opts.lvl * math.sqrt(2))) ** 2
+        z_obs = float(np.min(np.where(np.abs(e) <= gate, z, np.inf)))
+        if not math.isfinite(z_obs):
+            continue
+        # ... and how much of the band an unrelated peak of each other level may fall
+        # in to fit at least as well: |2e/gate|² <= z_obs − (its level term), |e| <= gate.
+        d_i = ck.level[idx][None, :] + ck.att(c)[:, None] - src[:, None]
+        room = z_obs - (d_i / (opts.lvl * math.sqrt(2))) ** 2
+        half = gate[:, None] / 2 * np.sqrt(np.clip(room, 0.0, 4.0))
+        lam += float(np.sum(np.minimum(2 * half / (ck.rate / 2.0), 1.0)))
+    return -math.expm1(-lam)
+
+
+def _judge(
+    caps: list[_Cap], g: _Group, opts: _Opts, pool: list[NDArray[np.bool_]] | None = None
+) -> PeakGroup:
     if len(g.members) < 2:
         return _finish(caps, g.members, "unmatched", [], None, 0, False, None, math.nan, opts)
     res, unamb = _group_range(caps, g.members, opts.drift)
@@ -957,6 +1068,24 @@ def _judge(caps: list[_Cap], g: _Group, opts: _Opts) -> PeakGroup:
         by_prior = opts.prior > 0 and bool(np.any(tied_ev & (np.abs(c - top.true_hz) > 2 * t_top)))
         zone1 = all(top.zone[k] == 1 for k in g.members)
         verdict = "real" if zone1 else "alias"
+        if verdict == "alias" and pool is not None:
+            p_chance = _chance_probability(caps, g.members, pool, opts)
+            snr = np.array([caps[k].snr[p] for k, p in g.members.items()])
+            weak = bool(np.any(snr < MIN_ALIAS_SNR_DB))  # NaN (unknown) is not weak
+            if p_chance >= MAX_CHANCE_PROBABILITY or weak:
+                # The pairing itself may be chance: the top candidate and the other true
+                # frequencies of its first peak are what a further capture must separate.
+                k0, p0 = min(g.members.items())
+                alt = _unfoldings(float(caps[k0].freq[p0]), caps[k0].rate, opts.max_true)
+                alt = alt[np.argsort(np.abs(alt - top.true_hz), kind="stable")][:6]
+                return _finish(
+                    caps, g.members, "ambiguous", cands, None, tied, False, res, unamb, opts,
+                    chance=p_chance, settle_pool=[top.true_hz, *alt[1:].tolist()],
+                )  # fmt: skip
+            return _finish(
+                caps, g.members, verdict, cands, top, tied, by_prior, res, unamb, opts,
+                chance=p_chance,
+            )  # fmt: skip
         return _finish(caps, g.members, verdict, cands, top, tied, by_prior, res, unamb, opts)
     return _finish(caps, g.members, "ambiguous", cands, None, tied, False, res, unamb, opts)
 
@@ -1079,7 +1208,7 @@ def compare_captures(
     aliases = _alias_groups(caps, free, opts.lvl, drift_, max_true)
     out = [_judge_real(caps, m, opts) for m in real]
     out.sort(key=lambda g: np.nanmin(g.freq_hz))
-    rest = [_judge(caps, g, opts) for g in aliases]
+    rest = [_judge(caps, g, opts, free) for g in aliases]
     rest.sort(key=lambda g: float(np.nanmin(g.freq_hz)))
     all_res = common_resolution(rates)
     worst = max(float(c.unc.max()) if c.unc.size else 0.0 for c in caps)
