@@ -23,15 +23,9 @@ from ..contract.diagnose import CompareIn
 from ..core.chain import Chain
 from ..core.errors import plain
 from ..core.folding import fold
-from ..core.multirate import (
-    MAX_CHANCE_PROBABILITY,
-    MIN_ALIAS_SNR_DB,
-    Candidate,
-    Capture,
-    MultiRateResult,
-    PeakGroup,
-    compare_captures,
-)
+from ..core.multirate import compare_captures
+from ..core.multirate_evidence import MAX_CHANCE_PROBABILITY, MIN_ALIAS_SNR_DB
+from ..core.multirate_model import Candidate, Capture, MultiRateResult, PeakGroup
 from ..core.spectrum import Peaks, find_peaks, noise_floor
 from .errors import RequestError, input_errors
 from .measure import Measured, Upload, capture_chain, chain_if_given, check_extent, measure

@@ -17,13 +17,10 @@ import pytest
 import scipy.signal
 
 from service.core.errors import InputError
-from service.core.multirate import (
-    Capture,
-    common_resolution,
-    compare_captures,
-    robust_crt,
-    settle_rate,
-)
+from service.core.multirate import compare_captures
+from service.core.multirate_crt import common_resolution, robust_crt
+from service.core.multirate_model import Capture
+from service.core.multirate_settle import settle_rate
 
 N_SAMPLES = 16384
 FLOOR_DB = -90.0
