@@ -1,26 +1,12 @@
-"""Clipping in a time record (which peaks it explains: :mod:`.clipping_products`).
+"""Clipping in a time record.
 
 A converter or an amplifier driven past its range holds the output at its limit for as
 long as the input stays beyond it: the record shows runs of consecutive samples at one
-value at the top and/or bottom of its range. That flattening is a memoryless odd (or,
-when only one side clips, non-odd) nonlinearity, so it adds harmonics of every strong
-tone and intermodulation products between strong tones. After sampling these products
-fold like any other tone; diagnosis must not report them as independent aliases or
-mirrors.
+value at the top and/or bottom of its range. :func:`detect_clipping` finds those runs
+and says whether the record is clipped; which spectrum peaks the clipping then explains
+(harmonics and intermodulation products, folded) is :mod:`.clipping_products`.
 
-Everything is vectorised over samples, peaks and candidate products.
-
-References
-----------
-.. [1] A. V. Oppenheim and A. S. Willsky, *Signals and Systems*, 2nd ed., Prentice
-   Hall, 1997, ch. 3 (Fourier series; a waveform with half-wave symmetry
-   ``x(t + T/2) = −x(t)`` has odd harmonics only).
-.. [2] A. V. Oppenheim and R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
-   Pearson, 2010, sec. 4.2 (aliasing of a sinusoid; the fold formula used here is
-   :func:`service.core.folding.fold`).
-.. [3] Common practice (no single source): a memoryless nonlinearity driven by two
-   tones ``f1``, ``f2`` produces intermodulation products ``m·f1 ± n·f2`` of order
-   ``m + n``; an odd-symmetric one (symmetric clipping) produces only odd orders.
+Everything is vectorised over samples.
 """
 
 from __future__ import annotations
@@ -45,9 +31,7 @@ __all__ = [
 ]
 
 FloatArray = NDArray[np.float64]
-IntArray = NDArray[np.int64]
 BoolArray = NDArray[np.bool_]
-ObjArray = NDArray[np.object_]
 
 #: A clip is a run of at least this many consecutive samples at a clip level: a single
 #: sample at the extreme is what every unclipped record has.

@@ -3,13 +3,10 @@
 
 References
 ----------
-.. [1] W. Wang and X.-G. Xia, "A closed-form robust Chinese remainder theorem and its
-   performance analysis", *IEEE Trans. Signal Processing*, 58(11), 5655-5666, 2010.
-.. [2] X. Li, H. Liang and X.-G. Xia, "A robust Chinese remainder theorem with its
-   applications in frequency estimation from undersampled waveforms", *IEEE Trans.
-   Signal Processing*, 57(11), 4314-4322, 2009.
-.. [4] S. M. Kay, *Fundamentals of Statistical Signal Processing, Vol. II: Detection
-   Theory*, 1998, ch. 3 (Neyman-Pearson tests at a stated false-alarm probability).
+.. [1] Wang and Xia, IEEE Trans. Signal Processing 58(11), 2010 (full entry in
+   :mod:`.multirate`).
+.. [2] Li, Liang and Xia, IEEE Trans. Signal Processing 57(11), 2009.
+.. [4] S. M. Kay, *Fundamentals of Statistical Signal Processing, Vol. II*, 1998, ch. 3.
 """
 
 from __future__ import annotations

@@ -245,6 +245,18 @@ class CheckedCapture:
     snr: FloatArray  # NaN where unknown
 
 
+def _per_peak(value: float | ArrayLike, n: int, name: str) -> FloatArray:
+    """One number for every peak, or one per peak."""
+    try:
+        v = np.broadcast_to(np.asarray(value, dtype=float), (n,))
+    except ValueError:
+        raise InputError(
+            f"{name} must be one number or one per peak ({n})", field=name,
+            code="length_mismatch",
+        ) from None  # fmt: skip
+    return check_array(v, name)
+
+
 def check_captures(captures: Sequence[Capture]) -> list[CheckedCapture]:
     if not isinstance(captures, Sequence) or not (MIN_CAPTURES <= len(captures) <= MAX_CAPTURES):
         n = len(captures) if isinstance(captures, Sequence) else captures
@@ -272,14 +284,7 @@ def check_captures(captures: Sequence[Capture]) -> list[CheckedCapture]:
                     code="above_limit",
                 )  # fmt: skip
             lev = check_array(cap.level_db, "level_db", f.size)
-            try:
-                unc_in = np.broadcast_to(np.asarray(cap.uncertainty_hz, dtype=float), f.shape)
-            except ValueError:
-                raise InputError(
-                    f"uncertainty_hz must be one number or one per peak ({f.size})",
-                    field="uncertainty_hz", code="length_mismatch",
-                ) from None  # fmt: skip
-            unc = check_array(unc_in, "uncertainty_hz")
+            unc = _per_peak(cap.uncertainty_hz, f.size, "uncertainty_hz")
             if np.any(unc <= 0):
                 i = int(np.flatnonzero(unc <= 0)[0])
                 raise InputError(
@@ -288,16 +293,11 @@ def check_captures(captures: Sequence[Capture]) -> list[CheckedCapture]:
                     code="not_positive",
                 )  # fmt: skip
             att = _attenuation_fn(cap.attenuation, "attenuation")
-            snr = np.full(f.shape, np.nan)
-            if cap.snr_db is not None:
-                try:
-                    snr_in = np.broadcast_to(np.asarray(cap.snr_db, dtype=float), f.shape)
-                except ValueError:
-                    raise InputError(
-                        f"snr_db must be one number or one per peak ({f.size})",
-                        field="snr_db", code="length_mismatch",
-                    ) from None  # fmt: skip
-                snr = check_array(snr_in, "snr_db")
+            snr = (
+                np.full(f.shape, np.nan)
+                if cap.snr_db is None
+                else _per_peak(cap.snr_db, f.size, "snr_db")
+            )
         except InputError as exc:
             raise exc.under(f"captures[{k}]") from None
         out.append(CheckedCapture(rate, f, lev, unc, att, snr))
