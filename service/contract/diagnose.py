@@ -606,6 +606,16 @@ class CompareGroupOut(BaseModel):
         description="How far apart those candidates land at that rate, in its bins (3200 lines)"
     )
     in_band: bool
+    chance_probability: float | None = Field(
+        description="For a group that moves and pointed to one true frequency: the "
+        "probability that an unrelated peak of comparable level would fit some candidate "
+        "as well (a unique alias needs it below 1 %); null when not weighed"
+    )
+    could_be_chance: bool = Field(
+        description="The best fit was one true frequency, but the match could be chance "
+        "(chance_probability at least 1 %, or a peak less than 15 dB above its floor): "
+        "ambiguous until a capture at settle_rate_hz confirms it"
+    )
     sentence: str = Field(description="One plain sentence")
 
 

@@ -22,7 +22,10 @@ from ..contract.caution import CAUTION
 from ..contract.diagnose import CompareIn
 from ..core.chain import Chain
 from ..core.errors import plain
-from ..core.multirate import Candidate, Capture, MultiRateResult, PeakGroup, compare_captures
+from ..core.folding import fold
+from ..core.multirate import compare_captures
+from ..core.multirate_evidence import MAX_CHANCE_PROBABILITY, MIN_ALIAS_SNR_DB
+from ..core.multirate_model import Candidate, Capture, MultiRateResult, PeakGroup
 from ..core.spectrum import Peaks, find_peaks, noise_floor
 from .errors import RequestError, input_errors
 from .measure import Measured, Upload, capture_chain, chain_if_given, check_extent, measure
@@ -82,6 +85,25 @@ def _sentence(g: PeakGroup, labels: list[str]) -> str:
             + (", chosen by the lower-frequency prior" if g.decided_by_prior else "")
             + "."
         )
+    if g.verdict == "ambiguous" and g.could_be_chance:
+        assert g.candidates
+        text = (
+            f"{where}: the best fit is {_hz(g.candidates[0].true_hz)}, but the match could "
+            "be chance: "
+        )
+        if g.chance_probability >= MAX_CHANCE_PROBABILITY:
+            text += (
+                f"an unrelated peak of comparable level would fit some candidate with "
+                f"probability {g.chance_probability:.0%}"
+            )
+        else:
+            text += f"a peak stands less than {MIN_ALIAS_SNR_DB:g} dB above its noise floor"
+        if g.settle_rate_hz == g.settle_rate_hz:
+            text += (
+                f". A capture at {plain(g.settle_rate_hz)} S/s would confirm it (the peak "
+                f"must appear at {_hz(float(fold(g.candidates[0].true_hz, g.settle_rate_hz)))})"
+            )
+        return text + "."
     if g.verdict == "ambiguous":
         tied = [c.true_hz for c in g.candidates[: g.tied]]
         if g.candidates and all(z == 1 for z in g.candidates[0].zone):
@@ -133,6 +155,10 @@ def _group_out(gid: int, g: PeakGroup, labels: list[str]) -> dict[str, Any]:
         if g.settle_separation_bins == g.settle_separation_bins
         else None,
         "in_band": g.in_band,
+        "chance_probability": None
+        if g.chance_probability != g.chance_probability
+        else round(g.chance_probability, 4),
+        "could_be_chance": g.could_be_chance,
         "sentence": _sentence(g, labels),
     }
 
@@ -256,6 +282,7 @@ def compare_payload(
             uncertainty_hz=m.bin_width_hz,
             attenuation=_attenuation(chain),
             label=label,
+            snr_db=p.snr_db,
         )
         for p, m, chain, label in zip(peaks, measured, chains, labels, strict=True)
     ]

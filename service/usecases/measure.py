@@ -26,7 +26,8 @@ from ..contract.diagnose import (
 from ..contract.fold import ChainIn, chain_from_request
 from ..core.chain import Chain
 from ..core.channels import ChannelActivity, channels_sentence, classify_channels
-from ..core.clipping import ClippingReport, clipping_products, detect_clipping, strongest_tones
+from ..core.clipping import ClippingReport, detect_clipping
+from ..core.clipping_products import clipping_products, strongest_tones
 from ..core.errors import InputError, plain
 from ..core.spectrum import amplitude_spectrum, bad_negative_cells, detect_unit, to_linear
 from ..inputs import (

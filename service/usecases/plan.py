@@ -19,7 +19,7 @@ from ..contract.caution import CAUTION
 from ..contract.fold import chain_to_request
 from ..contract.plan import FilterIn, PlanIn
 from ..core import filter_catalogue, plan_common, plan_model, plan_search, runup
-from ..core.multirate import settle_rate
+from ..core.multirate_settle import settle_rate
 from ..core.stages import SensorResonance
 from ..core.tones import ToneSet
 from .errors import InputError, PlanImpossibleError, RequestError
@@ -465,7 +465,7 @@ CONFIRM_MAX_TONES = 50
 def confirm_rate(req: PlanIn, out: dict[str, Any]) -> dict[str, Any] | None:
     """A second rate to confirm aliases: of the rates the plan considered, the one at
     which the planned aliased tones land farthest from real lines at their apparent
-    frequencies (:func:`service.core.multirate.settle_rate`); None when none alias."""
+    frequencies (:func:`service.core.multirate_settle.settle_rate`); None when none alias."""
     rows = [t for t in out["tones"] if t["aliases_into_band"] and t["true_hz"] is not None]
     if not rows:
         return None

@@ -217,3 +217,56 @@ def test_saved_comparison_keeps_every_spectrum(client: TestClient, bench: list[A
         # float32 storage: within its rounding of the sent amplitudes.
         assert np.allclose(kept["amplitude"], sent["spectrum"]["amplitude"], rtol=1e-6)
     assert "spectrum" not in got["request"]["captures"][0]
+
+
+def _noise_spectrum(rate: float, tones: list[tuple[float, float]], seed: int) -> dict[str, Any]:
+    """White noise plus cosines sampled at k/fs, Hann window, numpy rFFT (independent of
+    the project's simulator and spectrum code)."""
+    rng = np.random.default_rng(seed)
+    n = 8192
+    t = np.arange(n) / rate
+    x = rng.normal(0.0, 1e-3, n)
+    for f, a in tones:
+        x += a * np.cos(2 * np.pi * f * t + rng.uniform(0, 2 * np.pi))
+    w = np.hanning(n)
+    amp = np.abs(np.fft.rfft(x * w)) * 2.0 / w.sum()
+    freq = np.fft.rfftfreq(n, 1.0 / rate)
+    return {
+        "sample_rate_hz": rate,
+        "spectrum": {"freq_hz": freq.tolist(), "amplitude": amp.tolist(), "unit": "linear"},
+    }
+
+
+class TestChancePairings:
+    """10 and 12 kS/s at the default threshold: noise peaks pair by chance (near 27 kHz
+    the tolerance is about ±140 Hz against a 2 kHz common divisor); none of those
+    pairings may come back as a unique alias (before the chance test, 2 to 4 did in
+    each of these seeds)."""
+
+    # Real lines below both Nyquist frequencies, and 7.3 kHz, which folds to 2.7 kHz at
+    # 10 kS/s and 4.7 kHz at 12 kS/s (DESIGN.md sec. 2).
+    TONES = ((1_000.0, 0.1), (2_400.0, 0.03), (7_300.0, 0.05))
+
+    @pytest.mark.parametrize("seed", [0, 1, 2, 3])
+    def test_no_alias_from_noise(self, client: TestClient, seed: int) -> None:
+        body = {
+            "captures": [
+                _noise_spectrum(10_000.0, list(self.TONES), 10 * seed),
+                _noise_spectrum(12_000.0, list(self.TONES), 10 * seed + 1),
+            ],
+            "max_true_hz": 30_000.0,
+        }
+        r = client.post(URL, json=body)
+        assert r.status_code == 200, r.text
+        out = r.json()
+        aliases = [g for g in out["groups"] if g["verdict"] == "alias"]
+        assert len(aliases) == 1, [(g["freq_hz"], g["true_hz"]) for g in aliases]
+        g = aliases[0]
+        assert abs(g["freq_hz"][0] - _fold(7_300.0, 10_000.0)) < 3.0
+        assert abs(g["true_hz"] - 7_300.0) < 5.0 and g["could_be_chance"] is False
+        # Noise pairings that fit a candidate say so, and what would settle them.
+        assert any(g["could_be_chance"] for g in out["groups"])
+        for g in out["groups"]:
+            if g["could_be_chance"]:
+                assert g["verdict"] == "ambiguous" and g["true_hz"] is None
+                assert "could be chance" in g["sentence"]

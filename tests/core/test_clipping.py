@@ -6,11 +6,11 @@ import numpy as np
 import pytest
 
 from service.core.attribution import frequency_tolerance_hz
-from service.core.clipping import (
+from service.core.clipping import detect_clipping
+from service.core.clipping_products import (
     ClippingProducts,
     clipped_sine_harmonics,
     clipping_products,
-    detect_clipping,
     strongest_tones,
 )
 from service.core.errors import InputError

@@ -17,13 +17,10 @@ import pytest
 import scipy.signal
 
 from service.core.errors import InputError
-from service.core.multirate import (
-    Capture,
-    common_resolution,
-    compare_captures,
-    robust_crt,
-    settle_rate,
-)
+from service.core.multirate import compare_captures
+from service.core.multirate_crt import common_resolution, robust_crt
+from service.core.multirate_model import Capture
+from service.core.multirate_settle import settle_rate
 
 N_SAMPLES = 16384
 FLOOR_DB = -90.0
@@ -545,3 +542,84 @@ class TestFromTheTwoRateTest:
         g = compare_captures(caps, max_true_hz=20_000).groups[0]
         assert g.verdict == "alias" and g.top.true_hz == pytest.approx(5500.0, abs=1)
         assert g.top.zone == (2, 1)
+
+
+def _noisy_capture(rate, tones, seed, *, with_snr, n=8192, threshold_db=10.0):
+    """Peaks of white noise plus tones: Hann window, numpy rFFT, median floor,
+    ``scipy.signal.find_peaks`` above floor + threshold (the use-case's defaults)."""
+    rng = np.random.default_rng(seed)
+    t = np.arange(n) / rate
+    x = rng.normal(0.0, 1e-3, n)
+    for f, level_db in tones:
+        x += 10 ** (level_db / 20) * np.cos(2 * np.pi * f * t + rng.uniform(0, 2 * np.pi))
+    w = scipy.signal.windows.hann(n, sym=False)
+    db = 20 * np.log10(np.maximum(2 * np.abs(np.fft.rfft(x * w)) / w.sum(), 1e-30))
+    floor = float(np.median(db))
+    k, _ = scipy.signal.find_peaks(db, height=floor + threshold_db, prominence=6.0)
+    snr = db[k] - floor if with_snr else None
+    return Capture(rate, k * rate / n, db[k], rate / n, snr_db=snr)
+
+
+class TestChancePairings:
+    """Unrelated noise peaks, one per capture, must not be called a unique alias.
+
+    10 and 12 kS/s with 0.5 % drift and max_true 30 kHz: near 27 kHz the tolerance is
+    about ±140 Hz against a common divisor of 2 kHz, so before the chance test about
+    two trials in three had such a "unique alias" (299 in 300 seeded trials' groups).
+    """
+
+    TONES = ((1000.0, -20.0), (2400.0, -30.0), (3700.0, -25.0))  # all real: no alias
+
+    def _false_aliases(self, trials, *, with_snr):
+        bad = 0
+        for seed in range(trials):
+            caps = [_noisy_capture(r, self.TONES, 10 * seed + i, with_snr=with_snr)
+                    for i, r in enumerate((10_000.0, 12_000.0))]  # fmt: skip
+            res = compare_captures(caps, max_true_hz=30_000.0)
+            # Reference: every tone is below both Nyquist frequencies, so any "alias"
+            # is a pairing of noise peaks.
+            bad += sum(g.verdict == "alias" for g in res.groups)
+        return bad
+
+    def test_basic(self):
+        # With the peaks' SNR (as the use-case passes it): none in 60 trials.
+        assert self._false_aliases(60, with_snr=True) == 0
+
+    def test_chance_alone(self):
+        # Without SNR, the chance test alone (1 % per pairing; the loosest fits pass
+        # now and then): at most 3 chance aliases in 60 trials (measured 8 in 300).
+        assert self._false_aliases(60, with_snr=False) <= 3
+
+    def test_edges(self):
+        # A real alias among the noise is still found: 7.3 kHz folds to 2.7 kHz at
+        # 10 kS/s and 4.7 kHz at 12 kS/s (Oppenheim & Schafer sec. 4.2), 60 dB above
+        # the floor, its level shared by no other unpaired peak.
+        tones = [*self.TONES, (7300.0, -20.0)]
+        caps = [_noisy_capture(r, tones, 7 + i, with_snr=True)
+                for i, r in enumerate((10_000.0, 12_000.0))]  # fmt: skip
+        res = compare_captures(caps, max_true_hz=30_000.0)
+        g = group_near(res, 0, 2700.0, 3.0)
+        assert g.verdict == "alias" and abs(g.top.true_hz - 7300.0) < 5.0
+        assert g.chance_probability < 0.01 and not g.could_be_chance
+
+    def test_settle(self):
+        # A weak pair (SNR under 15 dB) that would otherwise be an alias: ambiguous,
+        # flagged as possible chance, with a third rate proposed.
+        a = Capture(10_000.0, [2700.0], [-60.0], 1.0, snr_db=[12.0])
+        b = Capture(12_000.0, [4700.0], [-60.0], 1.0, snr_db=[12.0])
+        res = compare_captures([a, b], max_true_hz=30_000.0)
+        (g,) = res.groups
+        assert g.verdict == "ambiguous" and g.could_be_chance and g.top is None
+        assert math.isfinite(g.settle_rate_hz)
+        # The same peaks with a clear SNR: the 7.3 kHz alias (fold reference above).
+        a2 = Capture(10_000.0, [2700.0], [-60.0], 1.0, snr_db=[40.0])
+        b2 = Capture(12_000.0, [4700.0], [-60.0], 1.0, snr_db=[40.0])
+        (g2,) = compare_captures([a2, b2], max_true_hz=30_000.0).groups
+        assert g2.verdict == "alias" and abs(g2.top.true_hz - 7300.0) < 5.0
+
+    def test_errors(self):
+        with pytest.raises(InputError, match="snr_db"):
+            compare_captures(
+                [Capture(10_000.0, [2700.0, 100.0], [-6.0, -6.0], 1.0, snr_db=[1.0, 2.0, 3.0]),
+                 Capture(12_000.0, [4700.0], [-6.0], 1.0)]
+            )  # fmt: skip

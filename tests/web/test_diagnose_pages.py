@@ -292,8 +292,8 @@ def _compare_texts() -> dict[str, str]:
         # The sensor's bandwidth, inside the unambiguous range of 10 and 12 kS/s
         # (lcm 60 kHz / 2 = 30 kHz): the answers can be unique.
         "max_true_hz": "30000",
-        # Noise peaks stay out: with 0.5 % drift two unrelated noise peaks can pair.
-        "threshold_db": "25",
+        # The default threshold: noise peaks pair by chance with 0.5 % drift, and
+        # the chance test keeps such pairings from being called an alias.
     }
 
 
@@ -496,7 +496,10 @@ class TestShare:
         original = _compare_verdicts(r.text)
         # Reference: 7.3 kHz moves (2.7 kHz at 10 kS/s, 4.7 kHz at 12 kS/s); 1 kHz stays.
         assert [v for v, _ in original].count("alias") == 1
-        assert [v for v, _ in original].count("ambiguous") == 1
+        # At the default threshold noise peaks may pair by chance: such a pairing is
+        # ambiguous too (never an alias), beside the 1 kHz line.
+        amb = [h for v, h in original if v == "ambiguous"]
+        assert any("1,000" in h for h in amb), amb
         assert "true 7,300" in dict(original)["alias"] or "true 7.3" in dict(original)["alias"]
         assert _compare_verdicts(saved.text) == original
         fig = figures_of(saved.text)["compare-figure-data"]
