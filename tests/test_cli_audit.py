@@ -13,8 +13,10 @@ from service.cli import main
 
 def test_demo_then_audit_then_resume(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     folder, out = tmp_path / "arch", tmp_path / "out"
-    assert main(["audit-demo", str(folder), "--count", "5"]) == 0
+    assert main(["audit-demo", str(folder), "--count", "5", "--json"]) == 0
+    paths = json.loads(capsys.readouterr().out)
     manifest = folder / "manifest.csv"
+    assert paths == {"manifest": str(manifest), "library": str(folder / "library.json")}
     # 5 recordings plus the demo's three wrong rows, counted independently from the file.
     assert len(manifest.read_text().splitlines()) == 1 + 5 + 3
     capsys.readouterr()

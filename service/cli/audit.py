@@ -33,6 +33,7 @@ def add_demo_arguments(p: argparse.ArgumentParser) -> argparse.ArgumentParser:
     """The demo archive's options, on ``p``."""
     p.add_argument("folder", type=Path, help="folder to write the archive into")
     p.add_argument("--count", type=int, default=300, help="recordings (default 300)")
+    p.add_argument("--json", action="store_true", help="print the two paths as JSON")
     return p
 
 
@@ -76,6 +77,9 @@ def run_demo(ns: argparse.Namespace) -> int:
     from ..audit.demo import make_demo_archive
 
     manifest, library = make_demo_archive(ns.folder, count=ns.count)
+    if ns.json:
+        print(json.dumps({"manifest": str(manifest), "library": str(library)}, indent=2))
+        return 0
     print(f"{manifest}\n{library}")
     return 0
 
