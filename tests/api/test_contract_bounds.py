@@ -196,3 +196,21 @@ class TestFuzzFinds:
         r = client.post("/api/v1/fold", json={"sample_rate_hz": 1e9, "sources": [src]})
         assert r.status_code == 422
         assert r.json()["errors"][0]["field"] == "sources[0].bearing.speed_cpm"
+
+
+class TestTinyResolution:
+    """A required bin width at the bottom of the float range is refused, not a 500."""
+
+    def test_basic(self, client: TestClient) -> None:
+        # Found by schema fuzzing: bin_width_hz=5e-324 overflowed log2(fs / bin) to inf.
+        body = {
+            "band_hz": [0.0, 100.0],
+            "tones": [{"label": "a", "freq_hz": 50.0, "amplitude": 1.0}],
+            "rejection_db": 60.0,
+            "bin_width_hz": 5e-324,
+        }
+        r = client.post("/api/v1/plan", json=body)
+        assert r.status_code == 422, r.text
+        # Common practice: a bin of fs/(2.56 N) Hz; no N up to 2^20 reaches 5e-324 Hz.
+        assert "relax the resolution" in r.text
+        assert "offer more analysis lines" not in r.text
