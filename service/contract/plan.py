@@ -22,14 +22,12 @@ from pydantic import (
 
 from ..core.filters import MAX_Q, MIN_CUTOFF_HZ, MIN_Q
 from .common import (
-    MAX_HZ,
+    BandHz,
     Hz,
-    HzOrZero,
     Label,
     Rate,
     StrictModel,
     at_least_one,
-    band_order,
     by_json_type,
     exactly_one,
     not_together,
@@ -96,11 +94,21 @@ class RunUpIn(StrictModel):
     )
 
 
-#: The plan's band: its high edge is where filter cutoffs go, so it starts at the
-#: core's lowest cutoff (MIN_CUTOFF_HZ).
+def _high_edge_reaches_cutoffs(v: tuple[float, float]) -> tuple[float, float]:
+    if v[1] < MIN_CUTOFF_HZ:
+        raise ValueError(
+            f"band_hz={list(v)} ends below {MIN_CUTOFF_HZ:g} Hz, the lowest filter cutoff; "
+            f"raise its high edge to at least {MIN_CUTOFF_HZ:g} Hz"
+        )
+    return v
+
+
+#: The plan's band: its high edge is where filter cutoffs go, so it reaches the core's
+#: lowest cutoff (MIN_CUTOFF_HZ); the schema says so with ``contains``.
 PlanBandHz = Annotated[
-    tuple[HzOrZero, Annotated[float, Field(ge=MIN_CUTOFF_HZ, le=MAX_HZ, allow_inf_nan=False)]],
-    AfterValidator(band_order),
+    BandHz,
+    AfterValidator(_high_edge_reaches_cutoffs),
+    Field(json_schema_extra={"uniqueItems": True, "contains": {"minimum": MIN_CUTOFF_HZ}}),
 ]
 
 
@@ -146,7 +154,9 @@ class PlanIn(StrictModel):
         {"speed_range_rpm": ["nominal_rpm"]},
     )
 
-    band_hz: PlanBandHz = Field(description="Band of interest [low, high], Hz")
+    band_hz: PlanBandHz = Field(
+        description="Band of interest [low, high], Hz (high first is read as the same band)"
+    )
     tones: list[ToneIn] | None = Field(
         None, min_length=1, max_length=MAX_TONES_IN, description="Explicit tones"
     )

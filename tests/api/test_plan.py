@@ -363,12 +363,32 @@ class TestPlanImpossible:
         assert _post(plan_client, {**body, "rejection_db": db + 1}).status_code == 422
 
 
+class TestBandOrder:
+    def test_basic(self, plan_client: TestClient) -> None:
+        # A band given high edge first is the same band: the same answer, band echoed low first.
+        body = demo_plan_request()
+        low, high = body["band_hz"]
+        straight = _post(plan_client, body)
+        reversed_ = _post(plan_client, {**body, "band_hz": [high, low]})
+        assert straight.status_code == reversed_.status_code == 200, reversed_.text
+        assert reversed_.json()["band_hz"] == [low, high]
+        assert reversed_.json()["recommendation"] == straight.json()["recommendation"]
+
+    def test_edges(self, plan_client: TestClient) -> None:
+        # The published schema states what the server holds to: two different edges, one
+        # of them at least the lowest filter cutoff.
+        band = plan_client.get("/openapi.json").json()["components"]["schemas"]["PlanIn"]
+        prop = band["properties"]["band_hz"]
+        assert prop["uniqueItems"] is True
+        assert prop["contains"] == {"minimum": 0.001}
+
+
 class TestPlanErrors:
     @pytest.mark.parametrize(
         ("change", "field"),
         [
-            ({"band_hz": [5000, 0]}, "band_hz[1]"),  # a band ending at 0 Hz is empty
-            ({"band_hz": [5000, 1000]}, "band_hz"),
+            ({"band_hz": [5000, 5000]}, "band_hz"),  # one edge twice is no band
+            ({"band_hz": [0, 0.0005]}, "band_hz"),  # ends below the lowest filter cutoff
             ({"band_hz": [-1, 5000]}, "band_hz[0]"),
             ({"band_hz": [0]}, "band_hz[1]"),
             ({"floor": 0.01}, "floor"),
