@@ -13,6 +13,7 @@ from .common import (
     HzOrZero,
     Rate,
     StrictModel,
+    at_least_one,
     exactly_one,
     not_together,
     strict_with_rules,
@@ -144,13 +145,25 @@ class _ChainOptional(StrictModel):
     chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
 
 
+_RATE_GIVEN = at_least_one("sample_rate_hz", "chain")
+
 #: A measured input: one spectrum or one time record (in JSON), and one way to give the
-#: chain.
+#: chain. A spectrum carries no rate of its own, so the request states it (sample_rate_hz
+#: or a chain); a time record states it itself or the request does (the use-case's rule
+#: in measure.py, written as JSON Schema; whether two given rates agree stays in code).
 _MEASURED_INPUT = strict_with_rules(
     [
         exactly_one("spectrum", "time_record"),
         not_together("chain", "sample_rate_hz"),
         not_together("chain", "anti_alias"),
+        {"if": {"required": ["spectrum"]}, "then": _RATE_GIVEN},
+        {
+            "if": {
+                "required": ["time_record"],
+                "properties": {"time_record": {"not": {"required": ["sample_rate_hz"]}}},
+            },
+            "then": _RATE_GIVEN,
+        },
     ]
 )
 

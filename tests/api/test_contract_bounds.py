@@ -100,6 +100,27 @@ class TestSchemaRules:
                 {"sample_rate_hz": 100.0},
             ),
             (
+                "DiagnoseIn",
+                {
+                    "if": {
+                        "required": ["time_record"],
+                        "properties": {"time_record": {"not": {"required": ["sample_rate_hz"]}}},
+                    },
+                    "then": {"anyOf": [{"required": ["sample_rate_hz"]}, {"required": ["chain"]}]},
+                },
+                "/api/v1/diagnose",
+                {"time_record": {"samples": [float(i % 7) for i in range(256)]}},
+            ),
+            (
+                "DiagnoseIn",
+                {
+                    "if": {"required": ["spectrum"]},
+                    "then": {"anyOf": [{"required": ["sample_rate_hz"]}, {"required": ["chain"]}]},
+                },
+                "/api/v1/diagnose",
+                {"spectrum": {"freq_hz": list(range(16)), "amplitude": [1.0] * 15 + [2.0]}},
+            ),
+            (
                 "PlanIn",
                 {"oneOf": [{"required": ["rejection_db"]}, {"required": ["floor"]}]},
                 "/api/v1/plan",
