@@ -161,6 +161,9 @@ class FilterIn(FilterFields):
             _needs_when(DESIGN_FAMILIES, "order"),
             _needs_when(("table",), "table_hz"),
             _forbids_when(("none", "table"), "order"),
+            # No filter has no cutoff, and a measured table's response is fixed.
+            _forbids_when(("none", "table"), "cutoff_hz"),
+            _forbids_when(("none", "table"), "cutoff_fraction"),
             _forbids_when((*DESIGN_FAMILIES, "none"), "table_hz"),
             *_RIPPLE_AND_STOP,
         ],
