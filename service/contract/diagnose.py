@@ -19,7 +19,7 @@ from .common import (
     strict_with_rules,
 )
 from .filters import AnalogFilterIn
-from .fold import StageIn, ToneIn
+from .fold import ONE_SAMPLE_STAGE, StageIn, ToneIn
 from .saved import SavedLinkOut
 from .sources import SourceIn
 
@@ -142,7 +142,9 @@ class UploadIn(StrictModel):
 class _ChainOptional(StrictModel):
     sample_rate_hz: Rate | None = Field(None, description="Shorthand: the sample rate, Hz")
     anti_alias: AnalogFilterIn | None = None
-    chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
+    chain: list[StageIn] | None = Field(
+        None, min_length=1, max_length=64, json_schema_extra=ONE_SAMPLE_STAGE
+    )
 
 
 _RATE_GIVEN = at_least_one("sample_rate_hz", "chain")

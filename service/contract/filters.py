@@ -159,6 +159,13 @@ class FilterIn(FilterFields):
         [
             not_together("cutoff_hz", "cutoff_fraction"),
             _needs_when(DESIGN_FAMILIES, "order"),
+            {  # a designed filter has an order of at least 1 (0 is "no filter")
+                "if": {
+                    "properties": {"family": {"enum": list(DESIGN_FAMILIES)}},
+                    "required": ["family"],
+                },
+                "then": {"properties": {"order": {"minimum": 1}}},
+            },
             _needs_when(("table",), "table_hz"),
             _forbids_when(("none", "table"), "order"),
             # No filter has no cutoff, and a measured table's response is fixed.
