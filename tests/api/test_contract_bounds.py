@@ -235,3 +235,21 @@ class TestTinyResolution:
         # Common practice: a bin of fs/(2.56 N) Hz; no N up to 2^20 reaches 5e-324 Hz.
         assert "relax the resolution" in r.text
         assert "offer more analysis lines" not in r.text
+
+
+class TestExtremeCoefficients:
+    """Digital coefficients 1e308 apart are refused as unstable, not a 500."""
+
+    def test_basic(self, client: TestClient) -> None:
+        # Found by schema fuzzing: np.roots overflowed on a = [0.94, ..., -1.8e308, ...].
+        # Reference: numpy.roots builds the companion matrix from -a[1:] / a[0]; a
+        # division that overflows gives no finite pole radius.
+        chain = [
+            {"stage": "sample", "rate_hz": 1000.0},
+            {"stage": "digital_lowpass", "b": [1.0], "a": [0.9435, -1.7976931348623155e308, 1.0]},
+        ]
+        r = client.post(
+            "/api/v1/fold", json={"chain": chain, "tones": [{"label": "a", "freq_hz": 1.0}]}
+        )
+        assert r.status_code == 422, r.text
+        assert "stable" in r.text
