@@ -137,7 +137,7 @@ class TestPlanCommandErrors:
         ("args", "field"),
         [
             (["--rejection", "500"], "rejection_db"),
-            (["--band", "5000:100"], "band_hz"),
+            (["--band", "5000:5000"], "band_hz"),
             (["--speed-tolerance", "150"], "speed_tolerance_pct"),
             (["--resolve", "nothing,GMF 1×"], "resolve[0]"),
             (["--rates", "0"], "rates_hz.0"),

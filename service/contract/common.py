@@ -40,14 +40,27 @@ Rate = Annotated[
 
 
 def band_order(v: tuple[float, float]) -> tuple[float, float]:
-    if v[1] <= v[0]:
-        raise ValueError(f"band_hz={list(v)} must be [low, high] with low < high")
-    return v
+    """A band's two edges, low first. Given high first they name the same band, so they
+    are put in order (the answer echoes the band it used); the same edge twice is no band."""
+    low, high = sorted(v)
+    if low == high:
+        raise ValueError(
+            f"band_hz={list(v)} gives the same edge twice; a band needs two different edges"
+        )
+    return (low, high)
 
 
-#: A band of interest ``[low, high]``, Hz. The schema says what it can: low >= 0,
-#: high > 0 (a band ending at 0 Hz is empty); low < high stays a validator.
-BandHz = Annotated[tuple[HzOrZero, Hz], AfterValidator(band_order)]
+#: A band of interest: its two edges, Hz, each >= 0, low first (high first is read as the
+#: same band). The schema says all of it: two different numbers (``uniqueItems``), so the
+#: higher one is > 0.
+BandHz = Annotated[
+    tuple[HzOrZero, HzOrZero],
+    AfterValidator(band_order),
+    Field(
+        description="Band of interest [low, high], Hz (given high first, read as the same band)",
+        json_schema_extra={"uniqueItems": True},
+    ),
+]
 
 #: Union members are tagged ``as-…`` so a value is checked against the member its JSON
 #: type picks, and the error names that member's rule (an error path skips the tag).

@@ -8,16 +8,18 @@ from pydantic import BaseModel, Field, model_validator
 
 from ..core.speed import DEFAULT_SEARCH_PCT
 from .common import (
+    BandHz,
     Hz,
     HzOrZero,
     Rate,
     StrictModel,
+    at_least_one,
     exactly_one,
     not_together,
     strict_with_rules,
 )
 from .filters import AnalogFilterIn
-from .fold import StageIn, ToneIn
+from .fold import ONE_SAMPLE_STAGE, StageIn, ToneIn
 from .saved import SavedLinkOut
 from .sources import SourceIn
 
@@ -161,16 +163,30 @@ class UploadIn(StrictModel):
 class _ChainOptional(StrictModel):
     sample_rate_hz: Rate | None = Field(None, description="Shorthand: the sample rate, Hz")
     anti_alias: AnalogFilterIn | None = None
-    chain: list[StageIn] | None = Field(None, min_length=1, max_length=64)
+    chain: list[StageIn] | None = Field(
+        None, min_length=1, max_length=64, json_schema_extra=ONE_SAMPLE_STAGE
+    )
 
+
+_RATE_GIVEN = at_least_one("sample_rate_hz", "chain")
 
 #: A measured input: one spectrum or one time record (in JSON), and one way to give the
-#: chain.
+#: chain. A spectrum carries no rate of its own, so the request states it (sample_rate_hz
+#: or a chain); a time record states it itself or the request does (the use-case's rule
+#: in measure.py, written as JSON Schema; whether two given rates agree stays in code).
 _MEASURED_INPUT = strict_with_rules(
     [
         exactly_one("spectrum", "time_record"),
         not_together("chain", "sample_rate_hz"),
         not_together("chain", "anti_alias"),
+        {"if": {"required": ["spectrum"]}, "then": _RATE_GIVEN},
+        {
+            "if": {
+                "required": ["time_record"],
+                "properties": {"time_record": {"not": {"required": ["sample_rate_hz"]}}},
+            },
+            "then": _RATE_GIVEN,
+        },
     ]
 )
 
@@ -214,8 +230,8 @@ class DiagnoseIn(_ChainOptional):
             "rated load (common practice), and controllers and tachometers drift"
         ),
     )
-    band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
-        None, description="Band of interest, Hz; default DC to final rate / 2.56"
+    band_hz: BandHz | None = Field(
+        None, description="Band of interest [low, high], Hz; default DC to final rate / 2.56"
     )
     threshold_db: float = Field(
         10.0,
@@ -236,8 +252,6 @@ class DiagnoseIn(_ChainOptional):
             raise ValueError("give either spectrum or time_record, not both")
         if self.chain is not None and (self.sample_rate_hz is not None or self.anti_alias):
             raise ValueError("give either sample_rate_hz (with optional anti_alias) or chain")
-        if self.band_hz is not None and self.band_hz[1] <= self.band_hz[0]:
-            raise ValueError(f"band_hz={list(self.band_hz)} must be [low, high] with low < high")
         return self
 
 
@@ -343,8 +357,9 @@ class CompareIn(StrictModel):
         description="The converter's available sample rates, S/s, from which to propose "
         "the rate that would settle an ambiguous answer; default a common series",
     )
-    band_hz: tuple[HzOrZero, HzOrZero] | None = Field(
-        None, description="Band of interest in the captured spectra, Hz (flags groups in it)"
+    band_hz: BandHz | None = Field(
+        None,
+        description="Band of interest in the captured spectra [low, high], Hz (flags groups in it)",
     )
     max_peaks: int = Field(200, ge=1, le=500, description="Peaks per capture, strongest first")
 
@@ -357,8 +372,6 @@ class CompareIn(StrictModel):
             raise ValueError(
                 "give captures (2 to 6), or both a and b: the test needs at least two captures"
             )
-        if self.band_hz is not None and self.band_hz[1] <= self.band_hz[0]:
-            raise ValueError(f"band_hz={list(self.band_hz)} must be [low, high] with low < high")
         return self
 
     @property

@@ -159,8 +159,18 @@ class FilterIn(FilterFields):
         [
             not_together("cutoff_hz", "cutoff_fraction"),
             _needs_when(DESIGN_FAMILIES, "order"),
+            {  # a designed filter has an order of at least 1 (0 is "no filter")
+                "if": {
+                    "properties": {"family": {"enum": list(DESIGN_FAMILIES)}},
+                    "required": ["family"],
+                },
+                "then": {"properties": {"order": {"minimum": 1}}},
+            },
             _needs_when(("table",), "table_hz"),
             _forbids_when(("none", "table"), "order"),
+            # No filter has no cutoff, and a measured table's response is fixed.
+            _forbids_when(("none", "table"), "cutoff_hz"),
+            _forbids_when(("none", "table"), "cutoff_fraction"),
             _forbids_when((*DESIGN_FAMILIES, "none"), "table_hz"),
             *_RIPPLE_AND_STOP,
         ],

@@ -124,6 +124,15 @@ StageIn = Annotated[
 ]
 
 
+#: A chain samples exactly once: the schema says so (the order of stages, sample before
+#: decimate or digital stages, stays a validator).
+ONE_SAMPLE_STAGE: dict[str, Any] = {
+    "contains": {"properties": {"stage": {"const": "sample"}}, "required": ["stage"]},
+    "minContains": 1,
+    "maxContains": 1,
+}
+
+
 class ChainIn(StrictModel):
     """The acquisition chain: a shorthand (sample rate and optional anti-alias filter) or
     a full ordered list of stages."""
@@ -136,9 +145,7 @@ class ChainIn(StrictModel):
         None,
         min_length=1,
         max_length=64,
-        # A chain samples somewhere: the schema says so (the order of stages, sample
-        # before decimate or digital stages, stays a validator).
-        json_schema_extra={"contains": {"properties": {"stage": {"const": "sample"}}}},
+        json_schema_extra=ONE_SAMPLE_STAGE,
     )
 
     @model_validator(mode="after")

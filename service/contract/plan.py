@@ -20,16 +20,16 @@ from pydantic import (
     field_validator,
 )
 
+from ..core.analysis_lines import SPAN_DIVISOR
 from ..core.filters import MAX_Q, MIN_CUTOFF_HZ, MIN_Q
+from ..core.plan_common import RATE_SERIES
 from .common import (
-    MAX_HZ,
+    BandHz,
     Hz,
-    HzOrZero,
     Label,
     Rate,
     StrictModel,
     at_least_one,
-    band_order,
     by_json_type,
     exactly_one,
     not_together,
@@ -96,11 +96,21 @@ class RunUpIn(StrictModel):
     )
 
 
-#: The plan's band: its high edge is where filter cutoffs go, so it starts at the
-#: core's lowest cutoff (MIN_CUTOFF_HZ).
+def _high_edge_reaches_cutoffs(v: tuple[float, float]) -> tuple[float, float]:
+    if v[1] < MIN_CUTOFF_HZ:
+        raise ValueError(
+            f"band_hz={list(v)} ends below {MIN_CUTOFF_HZ:g} Hz, the lowest filter cutoff; "
+            f"raise its high edge to at least {MIN_CUTOFF_HZ:g} Hz"
+        )
+    return v
+
+
+#: The plan's band: its high edge is where filter cutoffs go, so it reaches the core's
+#: lowest cutoff (MIN_CUTOFF_HZ); the schema says so with ``contains``.
 PlanBandHz = Annotated[
-    tuple[HzOrZero, Annotated[float, Field(ge=MIN_CUTOFF_HZ, le=MAX_HZ, allow_inf_nan=False)]],
-    AfterValidator(band_order),
+    BandHz,
+    AfterValidator(_high_edge_reaches_cutoffs),
+    Field(json_schema_extra={"uniqueItems": True, "contains": {"minimum": MIN_CUTOFF_HZ}}),
 ]
 
 
@@ -132,6 +142,22 @@ _FLOOR_NEEDS_AN_AMPLITUDE: dict[str, Any] = {
 }
 
 
+def _band_within_series(series: str, when: dict[str, Any]) -> dict[str, Any]:
+    """JSON Schema: without rates_hz, the band ends within the span fs/2.56 of the
+    highest rate of the common series the request uses (the core's span rule)."""
+    top = max(RATE_SERIES[series]) / SPAN_DIVISOR
+    edge = {"maximum": top}
+    return {"if": when, "then": {"properties": {"band_hz": {"prefixItems": [edge, edge]}}}}
+
+
+_NO_RATES = {"not": {"required": ["rates_hz"]}}
+_ANALYSER = {"required": ["rate_series"], "properties": {"rate_series": {"const": "analyser"}}}
+_SPAN_OF_THE_SERIES = [
+    _band_within_series("analyser", {"allOf": [_NO_RATES, _ANALYSER]}),
+    _band_within_series("converter", {"allOf": [_NO_RATES, {"not": _ANALYSER}]}),
+]
+
+
 class PlanIn(StrictModel):
     """Choose the cheapest sample rate and anti-alias filter for the given sources."""
 
@@ -142,11 +168,14 @@ class PlanIn(StrictModel):
             not_together("speed_range_rpm", "speed_tolerance_pct"),
             not_together("rates_hz", "rate_series"),
             _FLOOR_NEEDS_AN_AMPLITUDE,
+            *_SPAN_OF_THE_SERIES,
         ],
         {"speed_range_rpm": ["nominal_rpm"]},
     )
 
-    band_hz: PlanBandHz = Field(description="Band of interest [low, high], Hz")
+    band_hz: PlanBandHz = Field(
+        description="Band of interest [low, high], Hz (high first is read as the same band)"
+    )
     tones: list[ToneIn] | None = Field(
         None, min_length=1, max_length=MAX_TONES_IN, description="Explicit tones"
     )
@@ -166,7 +195,9 @@ class PlanIn(StrictModel):
         "speed_range_rpm and numeric orders of interest",
     )
     speed_range_rpm: tuple[Rpm, Rpm] | None = Field(
-        None, description="Speeds to plan for [min, max], rpm (needs nominal_rpm)"
+        None,
+        description="Speeds to plan for [min, max], rpm (needs nominal_rpm; given max "
+        "first, read as the same range)",
     )
     speed_tolerance_pct: float | None = Field(
         None,
@@ -249,8 +280,8 @@ class PlanIn(StrictModel):
     ) -> tuple[float, float] | None:
         if v is None:
             return v
-        if v[1] < v[0]:
-            raise ValueError(f"speed_range_rpm={list(v)} must be [min, max] with min <= max")
+        # Given fastest first, it is the same range of speeds: put it in order.
+        v = (min(v), max(v))
         if "nominal_rpm" not in info.data:
             return v  # nominal_rpm itself failed; that error is reported
         nominal = info.data["nominal_rpm"]

@@ -77,7 +77,8 @@ class ShaftIn(_Speed, _WithHarmonicAmplitudes):
         default_factory=lambda: [1.0, 2.0, 3.0],
         min_length=1,
         max_length=200,
-        description="Orders (multiples of shaft speed); fractional orders allowed",
+        description="Orders (multiples of shaft speed); fractional orders allowed; each once",
+        json_schema_extra={"uniqueItems": True},
     )
 
 
@@ -110,7 +111,11 @@ class BearingIn(_Speed, _WithHarmonicAmplitudes):
     contact_angle_deg: float = Field(0.0, ge=0, lt=90, allow_inf_nan=False)
     harmonics: Harmonics = 3
     defects: list[Literal["FTF", "BPFO", "BPFI", "BSF"]] | None = Field(
-        None, min_length=1, max_length=4, description="Which defect frequencies; default all"
+        None,
+        min_length=1,
+        max_length=4,
+        description="Which defect frequencies, each once; default all",
+        json_schema_extra={"uniqueItems": True},
     )
 
 

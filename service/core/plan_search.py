@@ -80,6 +80,8 @@ _MAX_RATES = 1000
 
 
 _MAX_FILTERS = 100
+#: The most analysis lines any setup offers (the same limit as lines_options).
+MAX_LINES = 1_048_576
 
 
 def _check_rates(rates_hz: object, series: object) -> FloatArray:
@@ -171,7 +173,7 @@ def _check_lines_options(options: object) -> tuple[int, ...]:
     return tuple(
         sorted(
             {
-                check_int(v, f"lines_options[{i}]", 1, 1_048_576, word="a whole number")
+                check_int(v, f"lines_options[{i}]", 1, MAX_LINES, word="a whole number")
                 for i, v in enumerate(vals)
             }
         )
@@ -580,14 +582,22 @@ def _impossible(ctx: _Context, out: SearchOutcome) -> PlanImpossible:
         n = max(ctx.lines_options)
         bin_hz = fs / (SPAN_DIVISOR * n)
         need = ctx.required_bin or bin_hz
-        lines_needed = 100 * 2 ** max(0, math.ceil(math.log2(fs / (SPAN_DIVISOR * need * 100))))
+        # log2 of each factor, so a tiny required bin (down to 5e-324 Hz) stays finite.
+        doublings = math.log2(fs) - math.log2(SPAN_DIVISOR * 100) - math.log2(need)
+        lines_needed = 100 * 2 ** max(0, math.ceil(doublings))
+        more_lines = (
+            f"offer more analysis lines ({lines_needed:,} at {fmt_rate(fs)})"
+            if lines_needed <= MAX_LINES
+            else f"no number of analysis lines up to {MAX_LINES:,} gives {fmt_hz(need)} bins at "
+            f"{fmt_rate(fs)}: relax the resolution"
+        )
         lowest = SPAN_DIVISOR * hi
         return PlanImpossible(
             f"no listed setup meets the resolution: the lowest usable rate, {fmt_rate(fs)}, "
             f"with {n:,} lines gives {fmt_hz(bin_hz)} bins; {fmt_hz(need)} are needed for "
             f"{ctx.bin_why}",
             [
-                f"offer more analysis lines ({lines_needed:,} at {fmt_rate(fs)})",
+                more_lines,
                 f"or relax the resolution to {fmt_hz(bin_hz)}",
                 f"or offer a rate nearer {fmt_rate(lowest)}, the lowest whose span covers the band",
                 "or narrow the band so that a lower rate covers it",

@@ -344,8 +344,14 @@ class DigitalLowpass:
                     f"a[0]={a[0]!r} must be non-zero", field="a[0]", code="invalid", value=a[0]
                 )
             if len(a) > 1:
-                radius = float(np.max(np.abs(np.roots(a))))
-                if radius >= 1.0:
+                # Coefficients up to 1e308 apart overflow the companion matrix: a radius
+                # that is not finite is no usable (stable) filter either.
+                with np.errstate(all="ignore"):
+                    try:
+                        radius = float(np.max(np.abs(np.roots(a))))
+                    except (ValueError, np.linalg.LinAlgError):  # inf in the matrix
+                        radius = float("inf")
+                if not radius < 1.0:
                     raise InputError(
                         f"a={a!r} has a pole at radius {radius:.6g}; an IIR filter must be "
                         "stable (all poles inside the unit circle, radius < 1)",

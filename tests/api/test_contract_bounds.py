@@ -100,6 +100,27 @@ class TestSchemaRules:
                 {"sample_rate_hz": 100.0},
             ),
             (
+                "DiagnoseIn",
+                {
+                    "if": {
+                        "required": ["time_record"],
+                        "properties": {"time_record": {"not": {"required": ["sample_rate_hz"]}}},
+                    },
+                    "then": {"anyOf": [{"required": ["sample_rate_hz"]}, {"required": ["chain"]}]},
+                },
+                "/api/v1/diagnose",
+                {"time_record": {"samples": [float(i % 7) for i in range(256)]}},
+            ),
+            (
+                "DiagnoseIn",
+                {
+                    "if": {"required": ["spectrum"]},
+                    "then": {"anyOf": [{"required": ["sample_rate_hz"]}, {"required": ["chain"]}]},
+                },
+                "/api/v1/diagnose",
+                {"spectrum": {"freq_hz": list(range(16)), "amplitude": [1.0] * 15 + [2.0]}},
+            ),
+            (
                 "PlanIn",
                 {"oneOf": [{"required": ["rejection_db"]}, {"required": ["floor"]}]},
                 "/api/v1/plan",
@@ -196,3 +217,39 @@ class TestFuzzFinds:
         r = client.post("/api/v1/fold", json={"sample_rate_hz": 1e9, "sources": [src]})
         assert r.status_code == 422
         assert r.json()["errors"][0]["field"] == "sources[0].bearing.speed_cpm"
+
+
+class TestTinyResolution:
+    """A required bin width at the bottom of the float range is refused, not a 500."""
+
+    def test_basic(self, client: TestClient) -> None:
+        # Found by schema fuzzing: bin_width_hz=5e-324 overflowed log2(fs / bin) to inf.
+        body = {
+            "band_hz": [0.0, 100.0],
+            "tones": [{"label": "a", "freq_hz": 50.0, "amplitude": 1.0}],
+            "rejection_db": 60.0,
+            "bin_width_hz": 5e-324,
+        }
+        r = client.post("/api/v1/plan", json=body)
+        assert r.status_code == 422, r.text
+        # Common practice: a bin of fs/(2.56 N) Hz; no N up to 2^20 reaches 5e-324 Hz.
+        assert "relax the resolution" in r.text
+        assert "offer more analysis lines" not in r.text
+
+
+class TestExtremeCoefficients:
+    """Digital coefficients 1e308 apart are refused as unstable, not a 500."""
+
+    def test_basic(self, client: TestClient) -> None:
+        # Found by schema fuzzing: np.roots overflowed on a = [0.94, ..., -1.8e308, ...].
+        # Reference: numpy.roots builds the companion matrix from -a[1:] / a[0]; a
+        # division that overflows gives no finite pole radius.
+        chain = [
+            {"stage": "sample", "rate_hz": 1000.0},
+            {"stage": "digital_lowpass", "b": [1.0], "a": [0.9435, -1.7976931348623155e308, 1.0]},
+        ]
+        r = client.post(
+            "/api/v1/fold", json={"chain": chain, "tones": [{"label": "a", "freq_hz": 1.0}]}
+        )
+        assert r.status_code == 422, r.text
+        assert "stable" in r.text

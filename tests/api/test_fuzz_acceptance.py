@@ -2,7 +2,7 @@
 
 A schema-driven client builds its requests from the published schema alone. The share
 of those requests that the service then answers with 2xx measures how much of the real
-contract the schema states; the rest are rules kept in code (band low < high, equal
+contract the schema states; the rest are rules kept in code (equal
 array lengths, stage order). Bodies are generated in positive mode (valid for the
 schema), seeded and bounded in number; the ratio is printed per route.
 

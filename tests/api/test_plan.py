@@ -363,12 +363,61 @@ class TestPlanImpossible:
         assert _post(plan_client, {**body, "rejection_db": db + 1}).status_code == 422
 
 
+class TestBandOrder:
+    def test_basic(self, plan_client: TestClient) -> None:
+        # A band given high edge first is the same band: the same answer, band echoed low first.
+        body = demo_plan_request()
+        low, high = body["band_hz"]
+        straight = _post(plan_client, body)
+        reversed_ = _post(plan_client, {**body, "band_hz": [high, low]})
+        assert straight.status_code == reversed_.status_code == 200, reversed_.text
+        assert reversed_.json()["band_hz"] == [low, high]
+        assert reversed_.json()["recommendation"] == straight.json()["recommendation"]
+
+    def test_speed_range_order(self, plan_client: TestClient) -> None:
+        # A speed range given fastest first is the same range of speeds.
+        body = demo_plan_request()
+        lo, hi = body["speed_range_rpm"]
+        straight = _post(plan_client, body)
+        reversed_ = _post(plan_client, {**body, "speed_range_rpm": [hi, lo]})
+        assert straight.status_code == reversed_.status_code == 200, reversed_.text
+        assert reversed_.json() == straight.json()
+
+    def test_series_span(self, plan_client: TestClient) -> None:
+        # Common practice: span = fs/2.56; the converter series tops out at 262,144 S/s,
+        # so 102.4 kHz is the highest band edge it covers (the schema's maximum), and the
+        # server plans that band rather than refusing it.
+        schema = plan_client.get("/openapi.json").json()["components"]["schemas"]["PlanIn"]
+        edges = [
+            r["then"]["properties"]["band_hz"]["prefixItems"][1]["maximum"]
+            for r in schema["allOf"]
+            if "band_hz" in str(r.get("then", ""))
+        ]
+        assert sorted(edges) == [102_400.0, 200_000.0]
+        body = {
+            "band_hz": [0.0, 102_400.0],
+            "rejection_db": 20.0,
+            "tones": [{"label": "a", "freq_hz": 1000.0, "amplitude": 1.0}],
+        }
+        r = _post(plan_client, body)
+        assert r.status_code == 200, r.text
+        assert r.json()["recommendation"]["sample_rate_hz"] == 262_144.0
+
+    def test_edges(self, plan_client: TestClient) -> None:
+        # The published schema states what the server holds to: two different edges, one
+        # of them at least the lowest filter cutoff.
+        band = plan_client.get("/openapi.json").json()["components"]["schemas"]["PlanIn"]
+        prop = band["properties"]["band_hz"]
+        assert prop["uniqueItems"] is True
+        assert prop["contains"] == {"minimum": 0.001}
+
+
 class TestPlanErrors:
     @pytest.mark.parametrize(
         ("change", "field"),
         [
-            ({"band_hz": [5000, 0]}, "band_hz[1]"),  # a band ending at 0 Hz is empty
-            ({"band_hz": [5000, 1000]}, "band_hz"),
+            ({"band_hz": [5000, 5000]}, "band_hz"),  # one edge twice is no band
+            ({"band_hz": [0, 0.0005]}, "band_hz"),  # ends below the lowest filter cutoff
             ({"band_hz": [-1, 5000]}, "band_hz[0]"),
             ({"band_hz": [0]}, "band_hz[1]"),
             ({"floor": 0.01}, "floor"),
@@ -400,7 +449,7 @@ class TestPlanErrors:
                 "filters[0].cutoff_fraction",
             ),
             ({"nominal_rpm": None}, "speed_range_rpm"),
-            ({"speed_range_rpm": [12_000, 1000]}, "speed_range_rpm"),
+            ({"speed_range_rpm": [1000, 5_000_000]}, "speed_range_rpm"),  # > 100 × nominal
             ({"speed_tolerance_pct": 5}, "speed_tolerance_pct"),
             ({"window": "triangle"}, "window"),
             ({"averages": 0}, "averages"),

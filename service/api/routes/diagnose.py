@@ -41,11 +41,14 @@ _MULTIPART_DOC = {
                 },
                 "request": {
                     "type": "string",
+                    "contentMediaType": "application/json",
                     "description": "The JSON request without spectrum/time_record; "
                     "`upload` says how to read the file",
                 },
             },
             "required": ["file"],
+            # The reader refuses any other form field.
+            "additionalProperties": False,
         },
         "examples": {
             "spectrum_export": {
@@ -147,8 +150,17 @@ async def diagnose(
                             f"file_{k}": {"type": "string", "format": "binary"}
                             for k in (*"ab", *"012345")
                         },
-                        "request": {"type": "string"},
+                        "request": {
+                            "type": "string",
+                            "contentMediaType": "application/json",
+                            "description": "The JSON request: `captures` (or `a` and "
+                            "`b`) without spectrum/time_record, one per file",
+                        },
                     },
+                    # The captures are listed in the request; the reader refuses any
+                    # other form field.
+                    "required": ["request"],
+                    "additionalProperties": False,
                 }
             }
         },

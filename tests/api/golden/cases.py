@@ -375,7 +375,7 @@ def run_cases(client: TestClient) -> dict[str, dict[str, Any]]:
         "plan_422_band",
         "POST",
         "/api/v1/plan",
-        json={"band_hz": [5000.0, 1000.0], "tones": [{"label": "a", "freq_hz": 100.0}]},
+        json={"band_hz": [5000.0, 5000.0], "tones": [{"label": "a", "freq_hz": 100.0}]},
     )
 
     # saved results
