@@ -837,9 +837,14 @@ def compare_spectra(
             **({} if row == 0 else {"matches": "x"}),
         )
         layout[f"yaxis{axis}"] = _axis(
-            f"{_esc(label)} ({rate:g} S/s), dB", domain=[max(low, 0.0), low + height]
+            # Short enough not to run into the next plot's title (the legend names each).
+            f"{rate / 1000:g} kS/s, dB",
+            domain=[max(low, 0.0), low + height],
         )
-    layout["margin"]["t"] = 110  # room for the title above a two-row legend
-    layout["legend"]["y"] = 1.03
+    # The legend sits below the last plot, under its axis title (as on every figure),
+    # a fixed distance in pixels whatever the number of captures; never over a plot.
     layout["height"] = 220 + 190 * n
+    layout["margin"]["b"] = 170
+    plot_px = layout["height"] - layout["margin"]["t"] - layout["margin"]["b"]
+    layout["legend"]["y"] = -70.0 / plot_px
     return {"data": data, "layout": layout}

@@ -102,7 +102,7 @@ WAYS_IN = [
     },
     {
         "key": "compare",
-        "title": "Compare two rates",
+        "title": "Compare rates",
         "path": "/compare",
         "text": "The same signal captured at two sample rates: peaks that stay put are real, "
         "peaks that move are aliases.",
