@@ -29,11 +29,9 @@ from .source_base import (
     Expandable,
     as_float,
     as_sequence,
-    check_amplitude,
-    check_amplitudes,
     check_label,
-    check_one_amplitude_form,
     family_amplitudes,
+    settle_amplitudes,
     short_repr,
 )
 
@@ -229,13 +227,7 @@ class Bearing(Expandable):
                 value=seq,
             )
         set_(self, "defects", tuple(x for x in BEARING_DEFECTS if x in wanted))
-        set_(self, "amplitude", check_amplitude(self.amplitude))
-        check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
-        set_(
-            self,
-            "harmonic_amplitudes",
-            check_amplitudes(self.harmonic_amplitudes, "harmonic_amplitudes", self.harmonics),
-        )
+        settle_amplitudes(self, self.harmonics)
 
     def multiples(self) -> dict[str, float]:
         """FTF, BPFO, BPFI, BSF as multiples of the shaft speed (see bearing_multiples)."""

@@ -32,10 +32,9 @@ from .source_base import (
     Expandable,
     as_sequence,
     check_amplitude,
-    check_amplitudes,
     check_label,
-    check_one_amplitude_form,
     family_amplitudes,
+    settle_amplitudes,
     short_repr,
 )
 
@@ -148,13 +147,7 @@ class LineHarmonics(Expandable):
                     f"harmonics lists {dup} more than once", field="harmonics", code="duplicate"
                 )
         set_(self, "harmonics", harm)
-        set_(self, "amplitude", check_amplitude(self.amplitude))
-        check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
-        set_(
-            self,
-            "harmonic_amplitudes",
-            check_amplitudes(self.harmonic_amplitudes, "harmonic_amplitudes", len(harm)),
-        )
+        settle_amplitudes(self, len(harm))
 
     def expand(self) -> ToneSet:
         """Line harmonics as tones (fixed frequencies)."""

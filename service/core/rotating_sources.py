@@ -26,12 +26,10 @@ from .source_base import (
     MINUS,
     Expandable,
     as_sequence,
-    check_amplitude,
-    check_amplitudes,
     check_label,
-    check_one_amplitude_form,
     family_amplitudes,
     fmt_number,
+    settle_amplitudes,
 )
 
 __all__ = [
@@ -97,13 +95,7 @@ class Shaft(Expandable):
                 f"orders lists {fmt_number(dup)} more than once", field="orders", code="duplicate"
             )
         set_(self, "orders", orders)
-        set_(self, "amplitude", check_amplitude(self.amplitude))
-        check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
-        set_(
-            self,
-            "harmonic_amplitudes",
-            check_amplitudes(self.harmonic_amplitudes, "harmonic_amplitudes", len(orders)),
-        )
+        settle_amplitudes(self, len(orders))
 
     def expand(self) -> ToneSet:
         """The shaft's orders as tones (all speed-proportional)."""
@@ -213,13 +205,7 @@ class GearMesh(Expandable):
                 "mating_speed_hz",
                 check_positive(self.mating_speed_hz, "mating_speed_hz", cut=80),
             )
-        set_(self, "amplitude", check_amplitude(self.amplitude))
-        check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
-        set_(
-            self,
-            "harmonic_amplitudes",
-            check_amplitudes(self.harmonic_amplitudes, "harmonic_amplitudes", self.harmonics),
-        )
+        settle_amplitudes(self, self.harmonics)
 
     @property
     def mesh_hz(self) -> float:
@@ -326,13 +312,7 @@ class BladePass(Expandable):
                 cut=80,
             ),
         )
-        set_(self, "amplitude", check_amplitude(self.amplitude))
-        check_one_amplitude_form(self.amplitude, self.harmonic_amplitudes)
-        set_(
-            self,
-            "harmonic_amplitudes",
-            check_amplitudes(self.harmonic_amplitudes, "harmonic_amplitudes", self.harmonics),
-        )
+        settle_amplitudes(self, self.harmonics)
 
     def expand(self) -> ToneSet:
         """Blade pass harmonics as tones (speed-proportional)."""

@@ -41,6 +41,7 @@ __all__ = [
     "family_amplitudes",
     "fmt_number",
     "object_array",
+    "settle_amplitudes",
     "short_repr",
     "speed_to_hz",
 ]
@@ -170,6 +171,16 @@ def check_amplitudes(
             value=out[i],
         )
     return out
+
+
+def settle_amplitudes(source: Any, lines: int) -> None:
+    """Check and store a frozen source's ``amplitude`` and ``harmonic_amplitudes`` (at most
+    ``lines`` of them), refusing both together: the one check every family source runs."""
+    amplitude = check_amplitude(source.amplitude)
+    object.__setattr__(source, "amplitude", amplitude)
+    check_one_amplitude_form(amplitude, source.harmonic_amplitudes)
+    harmonic = check_amplitudes(source.harmonic_amplitudes, "harmonic_amplitudes", lines)
+    object.__setattr__(source, "harmonic_amplitudes", harmonic)
 
 
 def check_one_amplitude_form(amplitude: float | None, harmonic_amplitudes: object) -> None:
