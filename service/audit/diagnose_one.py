@@ -13,10 +13,10 @@ from pydantic import ValidationError
 
 from ..config import Settings
 from ..contract.diagnose import DiagnoseIn
-from ..usecases.diagnose import diagnose_payload
+from ..usecases.diagnose import diagnose_payload, is_aliased
 from ..usecases.measure import Measured, Upload
 
-__all__ = ["DiagnosisFailed", "diagnose_recording", "diagnose_recording_measured"]
+__all__ = ["DiagnosisFailed", "diagnose_recording", "diagnose_recording_measured", "is_aliased"]
 
 
 class DiagnosisFailed(Exception):

@@ -7,6 +7,8 @@ from typing import Any
 
 import pyarrow as pa
 
+from .diagnose_one import is_aliased  # the answer's own rule, not a second copy
+
 __all__ = [
     "PEAK_SCHEMA",
     "SUMMARY_SCHEMA",
@@ -66,20 +68,6 @@ SUMMARY_SCHEMA = pa.schema(
         ("computation_version", pa.string()),
     ]
 )
-
-
-def is_aliased(peak: dict[str, Any]) -> bool:
-    """Whether a peak's verdict says it came from above the Nyquist frequency.
-
-    The answer's own ``aliased`` field when it has one; otherwise derived from the
-    verdict: an alias, or a family member or mirror whose true frequency lies in a Nyquist
-    zone above the first.
-    """
-    if "aliased" in peak and peak["aliased"] is not None:
-        return bool(peak["aliased"])
-    if peak["verdict"] == "alias":
-        return True
-    return peak["verdict"] in ("family", "mirror") and (peak.get("zone") or 0) > 1
 
 
 def peak_rows(key: str, recording: str, channel: int, payload: dict[str, Any]) -> dict[str, list]:
